@@ -1,0 +1,129 @@
+// Results out: GWAS-SSF rows, BGZF files written under a temporary name and
+// renamed only when complete, tabix indexes, the metadata sidecar.
+#pragma once
+
+#include <cstddef>
+#include <cstdint>
+#include <memory>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+namespace tamis {
+
+// ---- rows ----------------------------------------------------------------
+
+// One results line. Optional fields are written as "#NA" when empty.
+struct ResultRow {
+  std::string chromosome;  // already mapped (see map_chromosome)
+  std::int64_t position = 0;
+  std::string effect_allele;  // the ALT allele
+  std::string other_allele;   // the REF allele
+  double beta = 0.0;
+  double standard_error = 0.0;
+  double effect_allele_frequency = 0.0;
+  double log_p = 0.0;  // ln of the reported p_value
+  std::string variant_id;
+  std::string rsid;  // empty: #NA
+  std::size_t n = 0;
+  std::optional<double> info;
+  std::string test;  // "score", "lrt", ...
+  double score_chisq = 0.0;
+  double score_log_p = 0.0;
+  std::optional<double> wald_chisq, wald_log_p, lrt_chisq, lrt_log_p, log10p_spread;
+  double mac = 0.0;
+  double call_rate = 0.0;
+  std::optional<std::size_t> n_cases;
+};
+
+// The column names, in file order; the first eight are the GWAS-SSF mandatory set.
+const std::vector<std::string>& result_columns();
+std::string result_header_line();  // the names joined by tabs, with '\n'
+void append_result_row(const ResultRow& row, std::string& out);  // one line with '\n'
+
+// p from ln p: plain "%.6g" when representable, else mantissa and exponent
+// from the logarithm ("3.2e-1088"); never "0".
+std::string format_p_value(double log_p);
+
+// GWAS-SSF chromosome codes: "chr" prefix removed, 1-22, X=23, Y=24, MT/M=25.
+// Returns nothing for a contig that has no code.
+std::optional<std::string> map_chromosome_ssf(const std::string& contig);
+
+// ---- files ---------------------------------------------------------------
+
+enum class IndexKind { none, tabix_results, tabix_vcf };
+
+// A BGZF text file written under "<final>.partial" and renamed on commit.
+// The destructor removes the temporary file unless commit() succeeded, and
+// the temporary name is registered so that a signal handler can remove it.
+class BgzfTextFile {
+ public:
+  explicit BgzfTextFile(std::string final_path);
+  ~BgzfTextFile();
+  BgzfTextFile(const BgzfTextFile&) = delete;
+  BgzfTextFile& operator=(const BgzfTextFile&) = delete;
+
+  void write(std::string_view text);  // throws tamis::Error (output) on a write failure
+  // Closes the file, builds its index (tabix_results: sequence column 1,
+  // position column 2, one header line skipped; tabix_vcf: the VCF preset)
+  // and renames the data file and the index to their final names.
+  void commit(IndexKind index);
+  const std::string& final_path() const { return final_path_; }
+  const std::string& temporary_path() const { return temporary_path_; }
+
+ private:
+  struct Impl;
+  std::unique_ptr<Impl> impl_;
+  std::string final_path_;
+  std::string temporary_path_;
+};
+
+// A plain text file with the same temporary-name discipline.
+class PlainTextFile {
+ public:
+  explicit PlainTextFile(std::string final_path);
+  ~PlainTextFile();
+  PlainTextFile(const PlainTextFile&) = delete;
+  PlainTextFile& operator=(const PlainTextFile&) = delete;
+
+  void write(std::string_view text);
+  void commit();
+  const std::string& final_path() const { return final_path_; }
+
+ private:
+  struct Impl;
+  std::unique_ptr<Impl> impl_;
+  std::string final_path_;
+  std::string temporary_path_;
+};
+
+// Removes every registered temporary file. Async-signal-safe (unlink only).
+void remove_registered_temporaries() noexcept;
+
+// Throws tamis::Error (output) unless `prefix`'s directory exists and a file
+// can be created there.
+void check_output_prefix_writable(const std::string& prefix);
+
+// Hex md5 of a file's bytes.
+std::string md5_hex_of_file(const std::string& path);
+
+// ---- GWAS-SSF metadata sidecar -------------------------------------------
+
+struct SidecarFields {
+  std::string data_file_name;  // base name of the data file
+  std::string genome_assembly;  // "#NA"-free: empty writes "unknown"
+  std::string trait_description;
+  std::size_t sample_size = 0;
+  std::optional<std::size_t> case_count, control_count;
+  std::string software_version;
+  std::vector<std::string> adjusted_covariates;
+  // Extra "key: value" lines appended verbatim (shards, fingerprints, ...).
+  std::vector<std::pair<std::string, std::string>> extra;
+};
+
+// Writes "<data_path>-meta.yaml" (temporary name, then renamed); computes
+// data_file_md5sum from the committed data file.
+void write_metadata_sidecar(const std::string& data_path, const SidecarFields& fields);
+
+}  // namespace tamis

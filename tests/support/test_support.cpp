@@ -1,0 +1,75 @@
+#include "support/test_support.hpp"
+
+#include <sys/stat.h>
+#include <sys/wait.h>
+#include <zlib.h>
+
+#include <array>
+#include <cstdio>
+#include <cstdlib>
+#include <fstream>
+#include <sstream>
+#include <stdexcept>
+
+namespace tamis::testing {
+
+std::string make_temp_dir(const std::string& test_name) {
+  const char* root = std::getenv("TAMIS_TEST_TMP");
+  std::string base = root ? root : "/tmp/tamis_tests";
+  std::string dir = base + "/" + test_name;
+  run_command("rm -rf '" + dir + "' && mkdir -p '" + dir + "'");
+  return dir;
+}
+
+int run_command(const std::string& command) {
+  int status = std::system(command.c_str());
+  if (status == -1) return -1;
+  if (WIFEXITED(status)) return WEXITSTATUS(status);
+  return 128 + WTERMSIG(status);
+}
+
+std::string capture_command(const std::string& command, int* exit_code) {
+  FILE* pipe = popen(command.c_str(), "r");
+  if (!pipe) throw std::runtime_error("popen failed: " + command);
+  std::string output;
+  std::array<char, 4096> buffer;
+  size_t got;
+  while ((got = fread(buffer.data(), 1, buffer.size(), pipe)) > 0) output.append(buffer.data(), got);
+  int status = pclose(pipe);
+  if (exit_code) *exit_code = WIFEXITED(status) ? WEXITSTATUS(status) : 128 + WTERMSIG(status);
+  return output;
+}
+
+std::string read_text_file(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) throw std::runtime_error("cannot open " + path);
+  std::stringstream buffer;
+  buffer << in.rdbuf();
+  return buffer.str();
+}
+
+void write_text_file(const std::string& path, const std::string& text) {
+  std::ofstream out(path, std::ios::binary);
+  out << text;
+}
+
+std::string read_gzip_file(const std::string& path) {
+  gzFile file = gzopen(path.c_str(), "rb");
+  if (!file) throw std::runtime_error("cannot open " + path);
+  std::string text;
+  std::array<char, 65536> buffer;
+  int got;
+  while ((got = gzread(file, buffer.data(), buffer.size())) > 0) text.append(buffer.data(), got);
+  gzclose(file);
+  return text;
+}
+
+bool file_exists(const std::string& path) {
+  struct stat info;
+  return stat(path.c_str(), &info) == 0;
+}
+
+std::string tamis_binary() { return TAMIS_BINARY; }
+std::string source_dir() { return TAMIS_SOURCE_DIR; }
+
+}  // namespace tamis::testing

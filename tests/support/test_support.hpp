@@ -1,0 +1,27 @@
+// Helpers shared by the test executables.
+#pragma once
+
+#include <string>
+
+namespace tamis::testing {
+
+// A fresh, empty directory for one test (under TAMIS_TEST_TMP or /tmp).
+std::string make_temp_dir(const std::string& test_name);
+
+// Runs a shell command; returns its exit status (the code, not the raw wait status).
+int run_command(const std::string& command);
+
+// Runs a shell command and returns what it printed on stdout.
+std::string capture_command(const std::string& command, int* exit_code = nullptr);
+
+std::string read_text_file(const std::string& path);
+void write_text_file(const std::string& path, const std::string& text);
+// The decompressed text of a gzip / BGZF file.
+std::string read_gzip_file(const std::string& path);
+bool file_exists(const std::string& path);
+
+// Path of the tamis executable under test and of the source tree.
+std::string tamis_binary();
+std::string source_dir();
+
+}  // namespace tamis::testing
