@@ -1,0 +1,61 @@
+// The scan pipeline: read genotypes serially, decode and test blocks in
+// parallel, write rows in input order.
+#pragma once
+
+#include <cstddef>
+#include <cstdint>
+#include <map>
+#include <string>
+#include <vector>
+
+#include "tamis/genotype_reader.hpp"
+#include "tamis/trait_table.hpp"
+#include "tamis/types.hpp"
+
+namespace tamis {
+
+enum class ChromosomeCodes { ssf, as_is };
+
+struct ScanOptions {
+  std::vector<std::string> genotype_paths;
+  std::string traits_path;
+  TableOptions table;
+  std::vector<std::string> traits;
+  std::map<std::string, TraitKind> kind_overrides;
+  std::vector<std::string> covariates;
+  DosageField dosage_field = DosageField::automatic;
+  double confirm_below = 1e-4;  // 0: no confirmation; >= 1: confirm every variant
+  double spread_flag = 1.0;     // log10 units of disagreement that flag a confirmed hit
+  std::string out_prefix;
+  int threads = 1;
+  ChromosomeCodes chromosome_codes = ChromosomeCodes::ssf;
+  std::string genome_assembly;
+  std::string command_line;  // recorded in the log
+  std::size_t records_per_block = 128;
+};
+
+// Per-trait tallies of what happened to each tested allele.
+struct TraitTally {
+  std::uint64_t written = 0;
+  std::uint64_t monomorphic = 0;
+  std::uint64_t in_covariate_span = 0;  // no variation left once covariates are adjusted for
+  std::uint64_t confirmed = 0;
+  std::uint64_t discordant = 0;  // confirmed with log10p_spread above the flag
+  std::uint64_t confirm_not_converged = 0;
+};
+
+struct ScanSummary {
+  std::uint64_t records = 0;
+  std::uint64_t alleles = 0;
+  std::vector<std::string> result_files;
+  std::map<std::string, TraitTally> tallies;
+};
+
+// Runs the whole scan. Throws tamis::Error for anything the user can fix;
+// no result file exists under its final name unless the scan completed.
+ScanSummary run_scan(const ScanOptions& options);
+
+// The result file name of one trait.
+std::string result_path(const std::string& out_prefix, const std::string& trait);
+
+}  // namespace tamis

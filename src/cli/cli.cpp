@@ -1,0 +1,273 @@
+#include "tamis/cli.hpp"
+
+#include <CLI/CLI.hpp>
+#include <signal.h>
+#include <unistd.h>
+
+#include <cmath>
+#include <cstdio>
+#include <set>
+#include <thread>
+
+#include "tamis/errors.hpp"
+#include "tamis/results_writer.hpp"
+#include "tamis/run_log.hpp"
+#include "tamis/scan.hpp"
+#include "tamis/simulate.hpp"
+
+namespace tamis {
+namespace {
+
+[[noreturn]] void refuse_option(const std::string& option, const std::string& what, const std::string& fix) {
+  throw Error(ExitCode::usage, option, what, fix);
+}
+
+void check_readable(const std::string& option, const std::string& path) {
+  if (access(path.c_str(), R_OK) != 0) {
+    refuse_option(option, "cannot read '" + path + "': " + std::strerror(errno),
+                  "check the path and the file's permissions");
+  }
+}
+
+std::string quote_argument(const std::string& argument) {
+  if (!argument.empty() && argument.find_first_of(" \t\"'$\\") == std::string::npos) return argument;
+  std::string quoted = "'";
+  for (char c : argument) quoted += c == '\'' ? std::string("'\\''") : std::string(1, c);
+  return quoted + "'";
+}
+
+std::string join_command_line(int argc, char** argv) {
+  std::string text;
+  for (int arg_idx = 0; arg_idx < argc; ++arg_idx) {
+    if (arg_idx) text += ' ';
+    text += quote_argument(argv[arg_idx]);
+  }
+  return text;
+}
+
+std::vector<std::string> split_list(const std::string& text) {
+  std::vector<std::string> items;
+  std::string item;
+  for (char c : text) {
+    if (c == ',') {
+      items.push_back(item);
+      item.clear();
+    } else {
+      item += c;
+    }
+  }
+  items.push_back(item);
+  return items;
+}
+
+// Raw option values as CLI11 fills them; checked and converted by check_scan_options.
+struct ScanArguments {
+  std::vector<std::string> genotypes;
+  std::string traits;
+  std::string sample_column;
+  std::vector<std::string> trait_names;
+  std::string covariates;
+  std::vector<std::string> trait_kinds;
+  std::string dosage_from = "auto";
+  double confirm_below = 1e-4;
+  double disagreement_flag = 1.0;
+  std::string out;
+  int threads = 0;
+  std::string chromosome_codes = "ssf";
+  std::string genome_assembly;
+  std::string missing_tokens;
+  bool quiet = false;
+};
+
+void check_trait_names(const std::vector<std::string>& traits) {
+  if (traits.empty()) refuse_option("--trait", "no trait given", "name at least one trait column with --trait");
+  std::set<std::string> seen;
+  for (const std::string& trait : traits) {
+    if (trait.empty() || trait.find_first_of("/\\ \t") != std::string::npos) {
+      refuse_option("--trait", "trait name '" + trait + "' cannot be part of a file name",
+                    "rename the column to letters, digits, '_', '-' or '.'");
+    }
+    if (!seen.insert(trait).second) refuse_option("--trait", "trait '" + trait + "' is given twice", "list each trait once");
+  }
+}
+
+std::map<std::string, TraitKind> parse_trait_kinds(const std::vector<std::string>& specs,
+                                                   const std::vector<std::string>& traits) {
+  std::map<std::string, TraitKind> kinds;
+  for (const std::string& spec : specs) {
+    const auto equals = spec.find('=');
+    const std::string name = spec.substr(0, equals);
+    const std::string kind = equals == std::string::npos ? "" : spec.substr(equals + 1);
+    if (kind != "binary" && kind != "quantitative") {
+      refuse_option("--trait-kind", "'" + spec + "' is not NAME=binary or NAME=quantitative",
+                    "write for example --trait-kind winter_wheeze=binary");
+    }
+    if (std::find(traits.begin(), traits.end(), name) == traits.end()) {
+      refuse_option("--trait-kind", "'" + name + "' is not one of the traits given with --trait",
+                    "add --trait " + name + " or correct the name");
+    }
+    kinds[name] = kind == "binary" ? TraitKind::binary : TraitKind::quantitative;
+  }
+  return kinds;
+}
+
+DosageField parse_dosage_field(const std::string& text) {
+  if (text == "auto") return DosageField::automatic;
+  if (text == "DS") return DosageField::ds;
+  if (text == "GP") return DosageField::gp;
+  if (text == "GT") return DosageField::gt;
+  refuse_option("--dosage-from", "'" + text + "' is not auto, DS, GP or GT", "pick one of auto, DS, GP, GT");
+}
+
+ScanOptions check_scan_options(const ScanArguments& arguments, const std::string& command_line) {
+  ScanOptions options;
+  // The output location comes first: a scan that cannot write must not start reading.
+  check_output_prefix_writable(arguments.out);
+  options.out_prefix = arguments.out;
+  check_trait_names(arguments.trait_names);
+  options.traits = arguments.trait_names;
+  options.kind_overrides = parse_trait_kinds(arguments.trait_kinds, arguments.trait_names);
+  if (!arguments.covariates.empty()) options.covariates = split_list(arguments.covariates);
+  for (const std::string& covariate : options.covariates) {
+    if (covariate.empty()) refuse_option("--covariates", "the list has an empty name", "separate names by single commas");
+  }
+  options.dosage_field = parse_dosage_field(arguments.dosage_from);
+  if (!(arguments.confirm_below >= 0.0 && arguments.confirm_below <= 1.0)) {
+    refuse_option("--confirm-below", "must be a p-value between 0 and 1", "use 0 to skip confirmation or 1 to confirm all");
+  }
+  options.confirm_below = arguments.confirm_below;
+  if (!(arguments.disagreement_flag > 0.0)) {
+    refuse_option("--disagreement-flag", "must be a positive number of log10 units", "the default is 1");
+  }
+  options.spread_flag = arguments.disagreement_flag;
+  const unsigned cores = std::max(1u, std::thread::hardware_concurrency());
+  if (arguments.threads < 0) refuse_option("--threads", "must be at least 1", "leave it out to use every core");
+  options.threads = arguments.threads == 0 ? static_cast<int>(cores) : arguments.threads;
+  if (arguments.chromosome_codes != "ssf" && arguments.chromosome_codes != "as-is") {
+    refuse_option("--chromosome-codes", "'" + arguments.chromosome_codes + "' is not ssf or as-is", "");
+  }
+  options.chromosome_codes = arguments.chromosome_codes == "ssf" ? ChromosomeCodes::ssf : ChromosomeCodes::as_is;
+  options.genome_assembly = arguments.genome_assembly;
+  options.table.sample_column = arguments.sample_column;
+  if (!arguments.missing_tokens.empty()) {
+    options.table.missing_tokens = split_list(arguments.missing_tokens);
+    options.table.missing_tokens.push_back("");
+  }
+  for (const std::string& path : arguments.genotypes) check_readable("--genotypes", path);
+  check_readable("--traits", arguments.traits);
+  options.genotype_paths = arguments.genotypes;
+  options.traits_path = arguments.traits;
+  options.command_line = command_line;
+  return options;
+}
+
+void add_scan_command(CLI::App& app, ScanArguments& arguments) {
+  CLI::App* scan = app.add_subcommand("scan", "Test every variant against one or more traits");
+  scan->add_option("--genotypes", arguments.genotypes, "VCF, VCF.gz or BCF files, scanned in the order given")
+      ->required();
+  scan->add_option("--traits", arguments.traits, "Trait and covariate table (tab- or comma-separated)")->required();
+  scan->add_option("--sample-column", arguments.sample_column, "Sample ID column (default: the first)");
+  scan->add_option("--trait", arguments.trait_names, "Trait column to test (repeatable)")->required();
+  scan->add_option("--covariates", arguments.covariates, "Covariate columns, comma-separated");
+  scan->add_option("--trait-kind", arguments.trait_kinds, "NAME=binary|quantitative (repeatable)");
+  scan->add_option("--dosage-from", arguments.dosage_from, "auto, DS, GP or GT")->capture_default_str();
+  scan->add_option("--confirm-below", arguments.confirm_below,
+                   "Refit variants whose score p-value is below this (0: none, 1: all)")
+      ->capture_default_str();
+  scan->add_option("--disagreement-flag", arguments.disagreement_flag,
+                   "Flag confirmed hits whose tests differ by more than this many log10 units")
+      ->capture_default_str();
+  scan->add_option("--out", arguments.out, "Output prefix")->required();
+  scan->add_option("--threads", arguments.threads, "Worker threads (default: every core)");
+  scan->add_option("--chromosome-codes", arguments.chromosome_codes, "ssf or as-is")->capture_default_str();
+  scan->add_option("--genome-assembly", arguments.genome_assembly, "Assembly recorded in the metadata, e.g. GRCh38");
+  scan->add_option("--missing-tokens", arguments.missing_tokens,
+                   "Comma-separated tokens read as missing (default: NA,na,NaN,.)");
+  scan->add_flag("--quiet", arguments.quiet, "Print nothing but errors");
+}
+
+void add_simulate_command(CLI::App& app, SimulationOptions& options) {
+  CLI::App* simulate = app.add_subcommand("simulate", "Write a synthetic cohort for demos and tests");
+  simulate->add_option("--out", options.out_prefix, "Output prefix")->required();
+  simulate->add_option("--seed", options.seed, "Random seed")->capture_default_str();
+  simulate->add_option("--samples", options.samples, "Number of people")->capture_default_str();
+  simulate->add_option("--variants", options.variants, "Number of VCF records")->capture_default_str();
+  simulate->add_option("--chromosomes", options.chromosomes, "Number of chromosomes")->capture_default_str();
+  simulate->add_option("--prevalence", options.prevalence, "Share of cases for winter_wheeze")->capture_default_str();
+  simulate->add_option("--missing-rate", options.missing_rate, "Share of missing genotypes and table values")
+      ->capture_default_str();
+  simulate->add_option("--rare-fraction", options.rare_fraction, "Share of variants with frequency below 1%")
+      ->capture_default_str();
+  simulate->add_option("--causal", options.causal_per_trait, "Planted variants per trait (0: a null cohort)")
+      ->capture_default_str();
+}
+
+int execute_scan(const ScanArguments& arguments, const std::string& command_line) {
+  const ScanOptions options = check_scan_options(arguments, command_line);
+  RunLog& log = current_log();
+  log.set_echo(!arguments.quiet);
+  log.open(options.out_prefix + ".log");
+  try {
+    const ScanSummary summary = run_scan(options);
+    for (const std::string& path : summary.result_files) log.line("results: " + path);
+    log.line("log: " + log.path());
+  } catch (const Error& error) {
+    log.detail(std::string("error: ") + error.what());
+    throw;
+  }
+  return 0;
+}
+
+int execute_simulate(const SimulationOptions& options) {
+  const SimulationOutputs outputs = simulate_cohort(options);
+  std::fprintf(stderr, "genotypes: %s\ntraits: %s\nplanted effects: %s\n", outputs.vcf_path.c_str(),
+               outputs.table_path.c_str(), outputs.truth_path.c_str());
+  return 0;
+}
+
+extern "C" void remove_temporaries_and_exit(int signal_number) {
+  remove_registered_temporaries();
+  const char message[] = "tamis: interrupted; no results were written under their final names\n";
+  ssize_t ignored = write(STDERR_FILENO, message, sizeof message - 1);
+  (void)ignored;
+  _exit(signal_number == SIGINT ? static_cast<int>(ExitCode::interrupted) : 128 + signal_number);
+}
+
+void install_signal_handlers() {
+  struct sigaction action {};
+  action.sa_handler = remove_temporaries_and_exit;
+  sigemptyset(&action.sa_mask);
+  for (int signal_number : {SIGINT, SIGTERM, SIGHUP}) sigaction(signal_number, &action, nullptr);
+}
+
+}  // namespace
+
+int run_command_line(int argc, char** argv) {
+  install_signal_handlers();
+  CLI::App app("tamis: genome-wide association scans with score screening and likelihood confirmation", "tamis");
+  app.set_version_flag("--version", std::string("tamis ") + TAMIS_VERSION);
+  app.require_subcommand(1);
+  ScanArguments scan_arguments;
+  SimulationOptions simulation_options;
+  add_scan_command(app, scan_arguments);
+  add_simulate_command(app, simulation_options);
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& error) {
+    const int code = app.exit(error);
+    return code == 0 ? 0 : static_cast<int>(ExitCode::usage);
+  }
+  try {
+    if (app.got_subcommand("scan")) return execute_scan(scan_arguments, join_command_line(argc, argv));
+    return execute_simulate(simulation_options);
+  } catch (const Error& error) {
+    std::fprintf(stderr, "tamis: error: %s\n", error.what());
+    return static_cast<int>(error.code());
+  } catch (const std::exception& error) {
+    std::fprintf(stderr, "tamis: internal error: %s\n  this is a bug in tamis; please report it with the command line\n",
+                 error.what());
+    return static_cast<int>(ExitCode::internal);
+  }
+}
+
+}  // namespace tamis

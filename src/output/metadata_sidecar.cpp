@@ -1,0 +1,118 @@
+// The GWAS-SSF metadata file that travels beside a results file.
+#include <cassert>
+#include <cstdio>
+#include <string>
+
+#include "tamis/results_writer.hpp"
+
+namespace tamis {
+
+namespace {
+
+constexpr const char* ssf_file_type = "GWAS-SSF v1.0";
+
+// Double-quoted YAML scalars accept any text once backslash, quote and
+// control characters are escaped, so every free-text value is written so.
+std::string quote_yaml(const std::string& text) {
+  std::string quoted = "\"";
+  for (unsigned char letter : text) {
+    switch (letter) {
+      case '"': quoted += "\\\""; break;
+      case '\\': quoted += "\\\\"; break;
+      case '\n': quoted += "\\n"; break;
+      case '\t': quoted += "\\t"; break;
+      case '\r': quoted += "\\r"; break;
+      default:
+        if (letter < 0x20 || letter == 0x7f) {
+          char escape[8];
+          std::snprintf(escape, sizeof escape, "\\x%02x", letter);
+          quoted += escape;
+        } else {
+          quoted += static_cast<char>(letter);
+        }
+    }
+  }
+  quoted += '"';
+  return quoted;
+}
+
+bool is_plain_yaml_key(const std::string& key) {
+  if (key.empty()) return false;
+  for (char letter : key) {
+    bool allowed = (letter >= 'a' && letter <= 'z') || (letter >= 'A' && letter <= 'Z') ||
+                   (letter >= '0' && letter <= '9') || letter == '_' || letter == '-' ||
+                   letter == '.';
+    if (!allowed) return false;
+  }
+  return true;
+}
+
+// Extra values go in as given when YAML would read them back unchanged;
+// anything that could be mistaken for structure (": ", " #", quotes,
+// brackets, leading or trailing spaces, line breaks) is quoted instead.
+std::string extra_value_text(const std::string& value) {
+  if (value.empty()) return "\"\"";
+  const std::string indicators = "-?:,[]{}#&*!|>'\"%@`";
+  bool plain = indicators.find(value.front()) == std::string::npos && value.front() != ' ' &&
+               value.back() != ' ' && value.find(": ") == std::string::npos &&
+               value.find(" #") == std::string::npos && value.back() != ':';
+  for (unsigned char letter : value) {
+    if (letter < 0x20 || letter == 0x7f || letter == '"' || letter == '\'') plain = false;
+  }
+  return plain ? value : quote_yaml(value);
+}
+
+std::string base_name_of(const std::string& path) {
+  std::size_t slash = path.find_last_of('/');
+  return slash == std::string::npos ? path : path.substr(slash + 1);
+}
+
+std::string sidecar_text(const std::string& data_path, const SidecarFields& fields) {
+  const std::string file_name =
+      fields.data_file_name.empty() ? base_name_of(data_path) : fields.data_file_name;
+  const std::string assembly = fields.genome_assembly.empty() ? "unknown" : fields.genome_assembly;
+  const std::string version =
+      fields.software_version.empty() ? std::string(TAMIS_VERSION) : fields.software_version;
+
+  std::string text;
+  text += "# GWAS-SSF metadata for " + file_name + "\n";
+  text += "data_file_name: " + quote_yaml(file_name) + "\n";
+  text += "file_type: " + quote_yaml(ssf_file_type) + "\n";
+  text += "data_file_md5sum: " + quote_yaml(md5_hex_of_file(data_path)) + "\n";
+  text += "genome_assembly: " + quote_yaml(assembly) + "\n";
+  text += "coordinate_system: 1-based\n";
+  text += "is_harmonised: false\n";
+  text += "is_sorted: true\n";
+  text += "analysis_software: " + quote_yaml("tamis " + version) + "\n";
+  if (fields.adjusted_covariates.empty()) {
+    text += "adjusted_covariates: []\n";
+  } else {
+    text += "adjusted_covariates:\n";
+    for (const std::string& covariate : fields.adjusted_covariates) {
+      text += "  - " + quote_yaml(covariate) + "\n";
+    }
+  }
+  text += "trait_description:\n";
+  text += "  - " + quote_yaml(fields.trait_description) + "\n";
+  text += "sample_size: " + std::to_string(fields.sample_size) + "\n";
+  if (fields.case_count) text += "case_count: " + std::to_string(*fields.case_count) + "\n";
+  if (fields.control_count) {
+    text += "control_count: " + std::to_string(*fields.control_count) + "\n";
+  }
+  for (const auto& [key, value] : fields.extra) {
+    assert(is_plain_yaml_key(key) && "extra sidecar keys are chosen by tamis, not the user");
+    (void)is_plain_yaml_key;
+    text += key + ": " + extra_value_text(value) + "\n";
+  }
+  return text;
+}
+
+}  // namespace
+
+void write_metadata_sidecar(const std::string& data_path, const SidecarFields& fields) {
+  PlainTextFile sidecar(data_path + "-meta.yaml");
+  sidecar.write(sidecar_text(data_path, fields));
+  sidecar.commit();
+}
+
+}  // namespace tamis

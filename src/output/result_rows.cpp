@@ -1,0 +1,177 @@
+// GWAS-SSF result rows: column order, number formatting, chromosome codes.
+#include <cmath>
+#include <cstdio>
+#include <string>
+
+#include "tamis/results_writer.hpp"
+
+namespace tamis {
+
+namespace {
+
+constexpr const char* missing_text = "#NA";
+
+// Below this, exp() of the logarithm loses precision to subnormals, so the
+// p-value is rebuilt from log10 instead. exp(-700) is about 1e-304, safely
+// above DBL_MIN (2.2e-308).
+constexpr double smallest_direct_log_p = -700.0;
+
+void append_text(std::string& out, const std::string& text) {
+  out += text.empty() ? missing_text : text;
+}
+
+// GWAS-SSF writes any value that is not a finite number as "#NA".
+void append_number(std::string& out, double value) {
+  if (!std::isfinite(value)) {
+    out += missing_text;
+    return;
+  }
+  char buffer[40];
+  std::snprintf(buffer, sizeof buffer, "%.9g", value);
+  out += buffer;
+}
+
+void append_optional_number(std::string& out, const std::optional<double>& value) {
+  if (value) {
+    append_number(out, *value);
+  } else {
+    out += missing_text;
+  }
+}
+
+void append_optional_p_value(std::string& out, const std::optional<double>& log_p) {
+  out += log_p ? format_p_value(*log_p) : missing_text;
+}
+
+void append_count(std::string& out, std::size_t value) { out += std::to_string(value); }
+
+bool is_autosome_code(const std::string& text) {
+  if (text.empty() || text.size() > 2 || text[0] == '0') return false;
+  for (char digit : text) {
+    if (digit < '0' || digit > '9') return false;
+  }
+  int number = std::stoi(text);
+  return number >= 1 && number <= 22;
+}
+
+std::string to_upper(std::string text) {
+  for (char& letter : text) {
+    if (letter >= 'a' && letter <= 'z') letter = static_cast<char>(letter - 'a' + 'A');
+  }
+  return text;
+}
+
+}  // namespace
+
+const std::vector<std::string>& result_columns() {
+  static const std::vector<std::string> columns = {
+      "chromosome", "base_pair_location", "effect_allele", "other_allele",
+      "beta", "standard_error", "effect_allele_frequency", "p_value",
+      "variant_id", "rsid", "n", "info", "ref_allele", "test",
+      "neg_log_10_p_value", "score_chisq", "score_p", "wald_chisq", "wald_p",
+      "lrt_chisq", "lrt_p", "log10p_spread", "mac", "call_rate", "n_cases"};
+  return columns;
+}
+
+std::string result_header_line() {
+  std::string line;
+  for (const std::string& column : result_columns()) {
+    if (!line.empty()) line += '\t';
+    line += column;
+  }
+  line += '\n';
+  return line;
+}
+
+std::string format_p_value(double log_p) {
+  if (std::isnan(log_p) || log_p == -INFINITY) return missing_text;
+  if (log_p >= 0.0) return "1";
+  char buffer[48];
+  if (log_p > smallest_direct_log_p) {
+    std::snprintf(buffer, sizeof buffer, "%.6g", std::exp(log_p));
+    return buffer;
+  }
+  const double log10_p = log_p / std::log(10.0);
+  double exponent = std::floor(log10_p);
+  double mantissa = std::pow(10.0, log10_p - exponent);
+  // Round to the six significant digits that "%.6g" shows, so that a mantissa
+  // of 9.9999996 becomes 1 with the exponent raised rather than "10e-1000".
+  mantissa = std::round(mantissa * 1e5) / 1e5;
+  if (mantissa >= 10.0) {
+    mantissa /= 10.0;
+    exponent += 1.0;
+  }
+  std::snprintf(buffer, sizeof buffer, "%.6ge%d", mantissa, static_cast<int>(exponent));
+  return buffer;
+}
+
+void append_result_row(const ResultRow& row, std::string& out) {
+  append_text(out, row.chromosome);
+  out += '\t';
+  out += std::to_string(row.position);
+  out += '\t';
+  append_text(out, row.effect_allele);
+  out += '\t';
+  append_text(out, row.other_allele);
+  out += '\t';
+  append_number(out, row.beta);
+  out += '\t';
+  append_number(out, row.standard_error);
+  out += '\t';
+  append_number(out, row.effect_allele_frequency);
+  out += '\t';
+  out += format_p_value(row.log_p);
+  out += '\t';
+  append_text(out, row.variant_id);
+  out += '\t';
+  append_text(out, row.rsid);
+  out += '\t';
+  append_count(out, row.n);
+  out += '\t';
+  append_optional_number(out, row.info);
+  out += '\t';
+  // The effect allele is always ALT, so the reference is the other allele.
+  out += "OA";
+  out += '\t';
+  append_text(out, row.test);
+  out += '\t';
+  append_number(out, -row.log_p / std::log(10.0));
+  out += '\t';
+  append_number(out, row.score_chisq);
+  out += '\t';
+  out += format_p_value(row.score_log_p);
+  out += '\t';
+  append_optional_number(out, row.wald_chisq);
+  out += '\t';
+  append_optional_p_value(out, row.wald_log_p);
+  out += '\t';
+  append_optional_number(out, row.lrt_chisq);
+  out += '\t';
+  append_optional_p_value(out, row.lrt_log_p);
+  out += '\t';
+  append_optional_number(out, row.log10p_spread);
+  out += '\t';
+  append_number(out, row.mac);
+  out += '\t';
+  append_number(out, row.call_rate);
+  out += '\t';
+  if (row.n_cases) {
+    append_count(out, *row.n_cases);
+  } else {
+    out += missing_text;
+  }
+  out += '\n';
+}
+
+std::optional<std::string> map_chromosome_ssf(const std::string& contig) {
+  std::string name = contig;
+  if (name.size() > 3 && to_upper(name.substr(0, 3)) == "CHR") name = name.substr(3);
+  if (is_autosome_code(name)) return name;
+  const std::string upper = to_upper(name);
+  if (upper == "X" || upper == "23") return std::string("23");
+  if (upper == "Y" || upper == "24") return std::string("24");
+  if (upper == "MT" || upper == "M" || upper == "25") return std::string("25");
+  return std::nullopt;
+}
+
+}  // namespace tamis

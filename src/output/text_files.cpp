@@ -1,0 +1,278 @@
+// Output files written under "<final>.partial" and renamed only when complete,
+// so a failed or interrupted run never leaves a file that looks finished.
+#include <htslib/bgzf.h>
+#include <htslib/hts.h>
+#include <htslib/tbx.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <cerrno>
+#include <cstdio>
+#include <cstdlib>
+#include <cstring>
+#include <string>
+
+#include "output/temporary_registry.hpp"
+#include "tamis/errors.hpp"
+#include "tamis/results_writer.hpp"
+
+namespace tamis {
+
+namespace {
+
+constexpr const char* space_fix =
+    "check that the output directory exists, is writable and has free space "
+    "(df -h), then run again";
+
+std::string temporary_name_for(const std::string& final_path) { return final_path + ".partial"; }
+
+std::string system_reason() {
+  return errno != 0 ? std::string(" (") + std::strerror(errno) + ")" : std::string();
+}
+
+[[noreturn]] void throw_output_error(const std::string& path, const std::string& problem) {
+  throw Error(ExitCode::output, path, problem, space_fix);
+}
+
+void rename_or_throw(const std::string& from, const std::string& to) {
+  errno = 0;
+  if (std::rename(from.c_str(), to.c_str()) != 0) {
+    throw_output_error(to, "could not rename the finished file from " + from + system_reason());
+  }
+}
+
+// A registered temporary name that is removed when this object goes away,
+// unless it was released after a successful rename.
+class TemporaryName {
+ public:
+  explicit TemporaryName(std::string path)
+      : path_(std::move(path)), slot_(output_detail::register_temporary(path_)) {}
+  ~TemporaryName() {
+    if (!released_) unlink(path_.c_str());
+    output_detail::unregister_temporary(slot_);
+  }
+  TemporaryName(const TemporaryName&) = delete;
+  TemporaryName& operator=(const TemporaryName&) = delete;
+
+  const std::string& path() const { return path_; }
+  void release() {
+    released_ = true;
+    output_detail::unregister_temporary(slot_);
+    slot_ = -1;
+  }
+
+ private:
+  std::string path_;
+  int slot_;
+  bool released_ = false;
+};
+
+tbx_conf_t results_index_conf() {
+  tbx_conf_t conf{};
+  conf.preset = TBX_GENERIC;
+  conf.sc = 1;  // chromosome
+  conf.bc = 2;  // base_pair_location
+  conf.ec = 0;  // a variant ends where it begins
+  conf.meta_char = '#';
+  conf.line_skip = 1;  // the header line
+  return conf;
+}
+
+void build_index(const std::string& data_path, const std::string& index_path,
+                 const std::string& final_path, IndexKind kind) {
+  const tbx_conf_t conf = kind == IndexKind::tabix_vcf ? tbx_conf_vcf : results_index_conf();
+  // min_shift 0 asks for a .tbi index.
+  errno = 0;
+  int status = tbx_index_build3(data_path.c_str(), index_path.c_str(), 0, 0, &conf);
+  if (status != 0) {
+    throw_output_error(final_path, "could not build the tabix index" + system_reason() +
+                                       (status == -2 ? " (the data is not BGZF)" : ""));
+  }
+}
+
+}  // namespace
+
+// ---- BgzfTextFile ----------------------------------------------------------
+
+struct BgzfTextFile::Impl {
+  explicit Impl(const std::string& temporary_path) : data(temporary_path) {}
+  TemporaryName data;
+  BGZF* handle = nullptr;
+  bool committed = false;
+
+  void close_quietly() {
+    if (handle) bgzf_close(handle);
+    handle = nullptr;
+  }
+};
+
+BgzfTextFile::BgzfTextFile(std::string final_path)
+    : final_path_(std::move(final_path)), temporary_path_(temporary_name_for(final_path_)) {
+  impl_ = std::make_unique<Impl>(temporary_path_);
+  errno = 0;
+  impl_->handle = bgzf_open(temporary_path_.c_str(), "w");
+  if (!impl_->handle) {
+    throw_output_error(final_path_, "could not create the temporary file " + temporary_path_ +
+                                        system_reason());
+  }
+}
+
+BgzfTextFile::~BgzfTextFile() {
+  if (impl_) impl_->close_quietly();
+}
+
+void BgzfTextFile::write(std::string_view text) {
+  if (!impl_->handle) throw_output_error(final_path_, "write after the file was closed");
+  errno = 0;
+  ssize_t written = bgzf_write(impl_->handle, text.data(), text.size());
+  if (written < 0 || static_cast<std::size_t>(written) < text.size()) {
+    std::string reason = system_reason();
+    impl_->close_quietly();
+    unlink(temporary_path_.c_str());
+    throw_output_error(final_path_, "writing the results failed" + reason);
+  }
+}
+
+void BgzfTextFile::commit(IndexKind index) {
+  if (!impl_->handle) throw_output_error(final_path_, "commit after the file was closed");
+  errno = 0;
+  int close_status = bgzf_close(impl_->handle);
+  impl_->handle = nullptr;
+  if (close_status != 0) {
+    std::string reason = system_reason();
+    unlink(temporary_path_.c_str());
+    throw_output_error(final_path_, "finishing the compressed file failed" + reason);
+  }
+  const std::string final_index = final_path_ + ".tbi";
+  if (index == IndexKind::none) {
+    // An index left from an earlier run would describe the old data.
+    unlink(final_index.c_str());
+  } else {
+    TemporaryName index_file(temporary_path_ + ".tbi");
+    build_index(temporary_path_, index_file.path(), final_path_, index);
+    rename_or_throw(index_file.path(), final_index);
+    index_file.release();
+  }
+  rename_or_throw(temporary_path_, final_path_);
+  impl_->data.release();
+  impl_->committed = true;
+}
+
+// ---- PlainTextFile ---------------------------------------------------------
+
+struct PlainTextFile::Impl {
+  explicit Impl(const std::string& temporary_path) : data(temporary_path) {}
+  TemporaryName data;
+  std::FILE* handle = nullptr;
+
+  void close_quietly() {
+    if (handle) std::fclose(handle);
+    handle = nullptr;
+  }
+};
+
+PlainTextFile::PlainTextFile(std::string final_path)
+    : final_path_(std::move(final_path)), temporary_path_(temporary_name_for(final_path_)) {
+  impl_ = std::make_unique<Impl>(temporary_path_);
+  errno = 0;
+  impl_->handle = std::fopen(temporary_path_.c_str(), "wb");
+  if (!impl_->handle) {
+    throw_output_error(final_path_, "could not create the temporary file " + temporary_path_ +
+                                        system_reason());
+  }
+}
+
+PlainTextFile::~PlainTextFile() {
+  if (impl_) impl_->close_quietly();
+}
+
+void PlainTextFile::write(std::string_view text) {
+  if (!impl_->handle) throw_output_error(final_path_, "write after the file was closed");
+  errno = 0;
+  if (std::fwrite(text.data(), 1, text.size(), impl_->handle) != text.size()) {
+    std::string reason = system_reason();
+    impl_->close_quietly();
+    unlink(temporary_path_.c_str());
+    throw_output_error(final_path_, "writing failed" + reason);
+  }
+}
+
+void PlainTextFile::commit() {
+  if (!impl_->handle) throw_output_error(final_path_, "commit after the file was closed");
+  errno = 0;
+  bool flushed = std::fflush(impl_->handle) == 0 && std::ferror(impl_->handle) == 0;
+  std::string reason = system_reason();
+  errno = 0;
+  bool closed = std::fclose(impl_->handle) == 0;
+  if (reason.empty()) reason = system_reason();
+  impl_->handle = nullptr;
+  if (!flushed || !closed) {
+    unlink(temporary_path_.c_str());
+    throw_output_error(final_path_, "finishing the file failed" + reason);
+  }
+  rename_or_throw(temporary_path_, final_path_);
+  impl_->data.release();
+}
+
+// ---- checks and checksums --------------------------------------------------
+
+void check_output_prefix_writable(const std::string& prefix) {
+  std::string directory = ".";
+  std::size_t slash = prefix.find_last_of('/');
+  if (slash == 0) {
+    directory = "/";
+  } else if (slash != std::string::npos) {
+    directory = prefix.substr(0, slash);
+  }
+  const std::string fix = "create the directory " + directory +
+                          " or choose an output prefix in a directory you can write to";
+  struct stat info;
+  if (stat(directory.c_str(), &info) != 0) {
+    throw Error(ExitCode::output, prefix, "the output directory " + directory + " does not exist",
+                fix);
+  }
+  if (!S_ISDIR(info.st_mode)) {
+    throw Error(ExitCode::output, prefix, directory + " is not a directory", fix);
+  }
+  std::string probe = directory + "/.tamis-write-probe-XXXXXX";
+  errno = 0;
+  int descriptor = mkstemp(probe.data());
+  if (descriptor < 0) {
+    throw Error(ExitCode::output, prefix,
+                "cannot create files in the output directory " + directory + system_reason(), fix);
+  }
+  close(descriptor);
+  unlink(probe.c_str());
+}
+
+std::string md5_hex_of_file(const std::string& path) {
+  std::FILE* input = std::fopen(path.c_str(), "rb");
+  if (!input) {
+    throw Error(ExitCode::output, path, "cannot read the file to compute its md5" + system_reason(),
+                "check that the file was written and is readable");
+  }
+  hts_md5_context* context = hts_md5_init();
+  if (!context) {
+    std::fclose(input);
+    throw Error(ExitCode::internal, path, "could not start an md5 computation");
+  }
+  char buffer[1 << 16];
+  std::size_t got;
+  while ((got = std::fread(buffer, 1, sizeof buffer, input)) > 0) {
+    hts_md5_update(context, buffer, got);
+  }
+  bool read_failed = std::ferror(input) != 0;
+  std::fclose(input);
+  unsigned char digest[16];
+  hts_md5_final(digest, context);
+  hts_md5_destroy(context);
+  if (read_failed) {
+    throw Error(ExitCode::output, path, "reading the file for its md5 failed",
+                "check the disk and run again");
+  }
+  char hex[33];
+  hts_md5_hex(hex, digest);
+  return std::string(hex, 32);
+}
+
+}  // namespace tamis

@@ -1,0 +1,276 @@
+#include "tamis/scan.hpp"
+
+#include <tbb/enumerable_thread_specific.h>
+#include <tbb/global_control.h>
+#include <tbb/parallel_pipeline.h>
+
+#include <chrono>
+#include <cmath>
+#include <sstream>
+
+#include "scan/trait_pass.hpp"
+#include "tamis/errors.hpp"
+#include "tamis/results_writer.hpp"
+#include "tamis/run_log.hpp"
+
+namespace tamis {
+namespace {
+
+std::string join(const std::vector<std::string>& items, const char* separator) {
+  std::string text;
+  for (std::size_t item_idx = 0; item_idx < items.size(); ++item_idx) {
+    if (item_idx) text += separator;
+    text += items[item_idx];
+  }
+  return text;
+}
+
+std::string format_number(double value) {
+  char text[64];
+  std::snprintf(text, sizeof text, "%.9g", value);
+  return text;
+}
+
+void log_inputs(const ScanOptions& options, const GenotypeReader& reader, const TraitTable& table) {
+  RunLog& log = current_log();
+  log.detail("command: " + options.command_line);
+  log.detail(std::string("version: tamis ") + TAMIS_VERSION);
+  for (std::size_t file_idx = 0; file_idx < reader.paths().size(); ++file_idx) {
+    log.detail("genotypes: " + reader.paths()[file_idx] + " (dosage from " +
+               dosage_field_name(reader.resolved_field(file_idx)) + ")");
+  }
+  log.detail("traits table: " + table.path() + " (" + std::to_string(table.row_count()) +
+             " rows, sample column '" + table.sample_column_name() + "')");
+  log.detail("covariates: " + (options.covariates.empty() ? std::string("(none)") : join(options.covariates, ", ")));
+  log.line("samples: " + std::to_string(reader.sample_ids().size()) + " in the genotype files, " +
+           std::to_string(table.row_count()) + " rows in the table");
+}
+
+void log_samples(const AnalysisSet& set) {
+  const SampleAccounting& count = set.accounting;
+  std::ostringstream text;
+  text << "trait " << set.trait << " (" << trait_kind_name(set.kind) << "): " << count.analysed
+       << " analysis samples; matched " << count.matched << ", dropped " << count.genotype_only
+       << " not in the table, " << count.missing_trait << " missing the trait, "
+       << count.missing_covariate << " missing a covariate; " << count.table_only
+       << " table rows without genotypes";
+  if (set.kind == TraitKind::binary) {
+    text << "; " << set.case_count << " cases, " << set.control_count << " controls";
+  }
+  current_log().line(text.str());
+  for (const auto& [covariate, level] : set.reference_levels) {
+    current_log().detail("  " + covariate + ": reference level '" + level + "'");
+  }
+}
+
+void log_null_model(const std::string& trait, const NullModel& model) {
+  RunLog& log = current_log();
+  if (!model.dropped_columns.empty()) {
+    log.line("trait " + trait + ": dropped collinear covariate columns: " + join(model.dropped_columns, ", "));
+  }
+  std::ostringstream text;
+  text << "null model " << trait << ": ";
+  if (model.kind == TraitKind::quantitative) {
+    text << "least squares, sigma^2 = " << format_number(model.sigma2);
+  } else {
+    text << "logistic, " << model.iterations << " IRLS iterations, deviance = " << format_number(model.rss);
+  }
+  text << ", log-likelihood = " << format_number(model.log_likelihood);
+  log.line(text.str());
+  for (int column_idx = 0; column_idx < model.column_count(); ++column_idx) {
+    log.detail("  " + model.column_names[static_cast<std::size_t>(column_idx)] + " = " +
+               format_number(model.coefficients[column_idx]));
+  }
+}
+
+std::vector<TraitContext> prepare_traits(const ScanOptions& options, const TraitTable& table,
+                                         const std::vector<std::string>& samples) {
+  std::vector<TraitContext> traits(options.traits.size());
+  for (std::size_t trait_idx = 0; trait_idx < options.traits.size(); ++trait_idx) {
+    AnalysisRequest request;
+    request.trait = options.traits[trait_idx];
+    request.covariates = options.covariates;
+    auto override_it = options.kind_overrides.find(request.trait);
+    if (override_it != options.kind_overrides.end()) request.kind_override = override_it->second;
+    TraitContext& trait = traits[trait_idx];
+    trait.set = build_analysis_set(table, samples, request);
+    log_samples(trait.set);
+    trait.model = fit_null_model(request.trait, trait.set.kind, trait.set.y, trait.set.design,
+                                 trait.set.design_names);
+    log_null_model(request.trait, trait.model);
+    trait.confirm_below = options.confirm_below;
+    trait.spread_flag = options.spread_flag;
+  }
+  // The kernels hold references to the models, so they are made once the vector is final.
+  for (TraitContext& trait : traits) trait.kernel = std::make_unique<ScoreKernel>(trait.model);
+  return traits;
+}
+
+// Work carried through the pipeline for one batch of records.
+struct BlockWork {
+  RecordBatch batch;
+  DosageBlock block;
+  std::vector<std::string> chromosomes;
+  std::vector<TraitBlockOutput> outputs;
+};
+
+std::vector<std::string> map_chromosomes(const DosageBlock& block, ChromosomeCodes codes,
+                                         const std::vector<std::string>& paths) {
+  std::vector<std::string> mapped(block.size());
+  for (std::size_t site_idx = 0; site_idx < block.size(); ++site_idx) {
+    const VariantSite& site = block.sites[site_idx];
+    if (codes == ChromosomeCodes::as_is) {
+      mapped[site_idx] = site.chromosome;
+      continue;
+    }
+    auto code = map_chromosome_ssf(site.chromosome);
+    if (!code) {
+      throw Error(ExitCode::genotype_input,
+                  paths[site.file_index] + ", record " + std::to_string(site.record_number) + " (" +
+                      site.chromosome + ":" + std::to_string(site.position) + ")",
+                  "contig '" + site.chromosome + "' has no GWAS-SSF chromosome code (1-22, X, Y, MT)",
+                  "scan only the main chromosomes, or write contig names unchanged with --chromosome-codes as-is");
+    }
+    mapped[site_idx] = *code;
+  }
+  return mapped;
+}
+
+struct ResultSink {
+  std::vector<std::unique_ptr<BgzfTextFile>> files;
+  std::uint64_t records = 0;
+  std::uint64_t alleles = 0;
+};
+
+void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
+                  const std::vector<TraitContext>& traits, ResultSink& sink, ScanSummary& summary) {
+  tbb::enumerable_thread_specific<std::vector<TraitScratch>> scratch_per_thread(
+      [&] { return std::vector<TraitScratch>(traits.size()); });
+  const std::size_t tokens = static_cast<std::size_t>(options.threads) * 3;
+  const std::size_t sample_count = reader.sample_ids().size();
+
+  auto read_stage = [&](tbb::flow_control& control) -> std::shared_ptr<BlockWork> {
+    auto work = std::make_shared<BlockWork>();
+    if (reader.read_batch(work->batch, options.records_per_block) == 0) {
+      control.stop();
+      return nullptr;
+    }
+    return work;
+  };
+  auto test_stage = [&](std::shared_ptr<BlockWork> work) -> std::shared_ptr<BlockWork> {
+    work->block.sample_count = sample_count;
+    work->batch.decode(work->block);
+    work->chromosomes = map_chromosomes(work->block, options.chromosome_codes, reader.paths());
+    std::vector<TraitScratch>& scratch = scratch_per_thread.local();
+    work->outputs.resize(traits.size());
+    for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
+      process_trait_block(traits[trait_idx], work->block, work->chromosomes, scratch[trait_idx],
+                          work->outputs[trait_idx]);
+    }
+    return work;
+  };
+  auto write_stage = [&](std::shared_ptr<BlockWork> work) {
+    sink.records += work->batch.size();
+    sink.alleles += work->block.size();
+    for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
+      const TraitBlockOutput& output = work->outputs[trait_idx];
+      sink.files[trait_idx]->write(output.rows);
+      TraitTally& tally = summary.tallies[traits[trait_idx].set.trait];
+      tally.written += output.tally.written;
+      tally.monomorphic += output.tally.monomorphic;
+      tally.in_covariate_span += output.tally.in_covariate_span;
+      tally.confirmed += output.tally.confirmed;
+      tally.discordant += output.tally.discordant;
+      tally.confirm_not_converged += output.tally.confirm_not_converged;
+      for (const std::string& note : output.discordant_notes) current_log().detail(note);
+    }
+  };
+
+  tbb::parallel_pipeline(
+      tokens,
+      tbb::make_filter<void, std::shared_ptr<BlockWork>>(tbb::filter_mode::serial_in_order, read_stage) &
+          tbb::make_filter<std::shared_ptr<BlockWork>, std::shared_ptr<BlockWork>>(
+              tbb::filter_mode::parallel, test_stage) &
+          tbb::make_filter<std::shared_ptr<BlockWork>, void>(tbb::filter_mode::serial_in_order,
+                                                              write_stage));
+}
+
+std::string base_name(const std::string& path) {
+  const auto slash = path.find_last_of('/');
+  return slash == std::string::npos ? path : path.substr(slash + 1);
+}
+
+void write_sidecar(const ScanOptions& options, const TraitContext& trait, const std::string& path) {
+  SidecarFields fields;
+  fields.data_file_name = base_name(path);
+  fields.genome_assembly = options.genome_assembly;
+  fields.trait_description = trait.set.trait;
+  fields.sample_size = trait.set.genotype_index.size();
+  if (trait.set.kind == TraitKind::binary) {
+    fields.case_count = trait.set.case_count;
+    fields.control_count = trait.set.control_count;
+  }
+  fields.software_version = TAMIS_VERSION;
+  fields.adjusted_covariates = options.covariates;
+  write_metadata_sidecar(path, fields);
+}
+
+void log_tallies(const ScanSummary& summary, const std::vector<TraitContext>& traits) {
+  RunLog& log = current_log();
+  log.line("read " + std::to_string(summary.records) + " records, " + std::to_string(summary.alleles) +
+           " tested alleles");
+  if (summary.records == 0) log.line("note: the genotype files hold no records; results files have only the header");
+  for (const TraitContext& trait : traits) {
+    const TraitTally& tally = summary.tallies.at(trait.set.trait);
+    std::ostringstream text;
+    text << "trait " << trait.set.trait << ": " << tally.written << " written, " << tally.monomorphic
+         << " monomorphic in the analysis samples, " << tally.in_covariate_span
+         << " explained by the covariates, " << tally.confirmed << " confirmed, " << tally.discordant
+         << " flagged for disagreeing tests";
+    if (tally.confirm_not_converged) text << ", " << tally.confirm_not_converged << " refits not converged";
+    log.line(text.str());
+  }
+}
+
+}  // namespace
+
+std::string result_path(const std::string& out_prefix, const std::string& trait) {
+  return out_prefix + "." + trait + ".tsv.gz";
+}
+
+ScanSummary run_scan(const ScanOptions& options) {
+  const auto start = std::chrono::steady_clock::now();
+  tbb::global_control thread_limit(tbb::global_control::max_allowed_parallelism,
+                                   static_cast<std::size_t>(options.threads));
+  GenotypeReaderOptions reader_options;
+  reader_options.paths = options.genotype_paths;
+  reader_options.field = options.dosage_field;
+  reader_options.io_threads = options.threads > 1 ? 1 : 0;
+  GenotypeReader reader(reader_options);
+  const TraitTable table = TraitTable::load(options.traits_path, options.table);
+  log_inputs(options, reader, table);
+  const std::vector<TraitContext> traits = prepare_traits(options, table, reader.sample_ids());
+
+  ScanSummary summary;
+  ResultSink sink;
+  for (const TraitContext& trait : traits) {
+    summary.tallies[trait.set.trait] = TraitTally{};
+    sink.files.push_back(std::make_unique<BgzfTextFile>(result_path(options.out_prefix, trait.set.trait)));
+    sink.files.back()->write(result_header_line());
+  }
+  run_pipeline(options, reader, traits, sink, summary);
+  summary.records = sink.records;
+  summary.alleles = sink.alleles;
+
+  for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
+    sink.files[trait_idx]->commit(IndexKind::tabix_results);
+    write_sidecar(options, traits[trait_idx], sink.files[trait_idx]->final_path());
+    summary.result_files.push_back(sink.files[trait_idx]->final_path());
+  }
+  log_tallies(summary, traits);
+  const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  current_log().line("wall time: " + format_number(std::round(seconds * 100) / 100) + " s");
+  return summary;
+}
+
+}  // namespace tamis

@@ -1,0 +1,183 @@
+#include "scan/trait_pass.hpp"
+
+#include <algorithm>
+#include <cmath>
+
+#include "tamis/distributions.hpp"
+#include "tamis/results_writer.hpp"
+
+namespace tamis {
+namespace {
+
+// Gathers the trait's analysis samples into the sample-major block the kernel
+// reads, replacing missing dosages by the mean of the called ones.
+void gather_block(const std::vector<std::size_t>& sample_index, const DosageBlock& block,
+                  TraitScratch& scratch) {
+  const std::size_t width = block.size();
+  const std::size_t samples = sample_index.size();
+  scratch.genotypes.resize(samples * width);
+  scratch.summaries.assign(width, SiteSummary{});
+  for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
+    const double* dosages = block.site_dosages(site_idx);
+    SiteSummary& summary = scratch.summaries[site_idx];
+    for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
+      const double value = dosages[sample_index[sample_idx]];
+      if (std::isnan(value)) continue;
+      ++summary.called;
+      summary.sum += value;
+      summary.sum_squares += value * value;
+    }
+    const double fill = summary.mean();
+    double* out = scratch.genotypes.data() + site_idx;
+    for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
+      const double value = dosages[sample_index[sample_idx]];
+      out[sample_idx * width] = std::isnan(value) ? fill : value;
+    }
+  }
+}
+
+void copy_column(const TraitScratch& scratch, std::size_t width, std::size_t site_idx,
+                 Eigen::VectorXd& column) {
+  const std::size_t samples = scratch.genotypes.size() / width;
+  column.resize(static_cast<Eigen::Index>(samples));
+  for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
+    column[static_cast<Eigen::Index>(sample_idx)] = scratch.genotypes[sample_idx * width + site_idx];
+  }
+}
+
+bool looks_like_rsid(const std::string& id) {
+  if (id.size() < 3 || id[0] != 'r' || id[1] != 's') return false;
+  return std::all_of(id.begin() + 2, id.end(), [](char c) { return c >= '0' && c <= '9'; });
+}
+
+double variance_of(const SiteSummary& summary) {
+  const double mean = summary.mean();
+  return std::max(0.0, summary.sum_squares / static_cast<double>(summary.called) - mean * mean);
+}
+
+void fill_site_columns(const TraitContext& trait, const VariantSite& site,
+                       const std::string& chromosome, const SiteSummary& summary,
+                       ResultRow& row) {
+  const double allele_frequency = summary.sum / (2.0 * static_cast<double>(summary.called));
+  row.chromosome = chromosome;
+  row.position = site.position;
+  row.effect_allele = site.alt;
+  row.other_allele = site.ref;
+  row.effect_allele_frequency = allele_frequency;
+  row.variant_id = chromosome + "_" + std::to_string(site.position) + "_" + site.ref + "_" + site.alt;
+  row.rsid = looks_like_rsid(site.id) ? site.id : std::string();
+  row.n = trait.set.genotype_index.size();
+  row.info.reset();
+  if (site.source == DosageField::ds || site.source == DosageField::gp) {
+    row.info = variance_of(summary) / (2.0 * allele_frequency * (1.0 - allele_frequency));
+  }
+  const double allele_count = summary.sum;
+  row.mac = std::min(allele_count, 2.0 * static_cast<double>(summary.called) - allele_count);
+  row.call_rate = static_cast<double>(summary.called) / static_cast<double>(row.n);
+  row.n_cases.reset();
+  if (trait.set.kind == TraitKind::binary) row.n_cases = trait.set.case_count;
+}
+
+bool should_confirm(const TraitContext& trait, double score_log_p) {
+  if (trait.confirm_below <= 0.0) return false;
+  if (trait.confirm_below >= 1.0) return true;
+  return score_log_p < std::log(trait.confirm_below);
+}
+
+double spread_of(double score_log_p, double wald_log_p, double lrt_log_p) {
+  const double values[] = {neg_log10_from_log(score_log_p), neg_log10_from_log(wald_log_p),
+                           neg_log10_from_log(lrt_log_p)};
+  const auto [low, high] = std::minmax_element(std::begin(values), std::end(values));
+  return *high - *low;
+}
+
+void fill_score_columns(const ScoreResult& score, ResultRow& row) {
+  row.test = "score";
+  row.beta = score.beta;
+  row.standard_error = score.se;
+  row.log_p = score.log_p;
+  row.score_chisq = score.chisq;
+  row.score_log_p = score.log_p;
+  row.wald_chisq.reset();
+  row.wald_log_p.reset();
+  row.lrt_chisq.reset();
+  row.lrt_log_p.reset();
+  row.log10p_spread.reset();
+}
+
+void fill_confirmed_columns(const ConfirmResult& confirmed, ResultRow& row) {
+  row.test = "lrt";
+  row.beta = confirmed.beta;
+  row.standard_error = confirmed.se;
+  row.log_p = confirmed.lrt_log_p;
+  row.wald_chisq = confirmed.wald_chisq;
+  row.wald_log_p = confirmed.wald_log_p;
+  row.lrt_chisq = confirmed.lrt_chisq;
+  row.lrt_log_p = confirmed.lrt_log_p;
+  row.log10p_spread = spread_of(row.score_log_p, confirmed.wald_log_p, confirmed.lrt_log_p);
+}
+
+std::string describe_discordance(const TraitContext& trait, const ResultRow& row) {
+  char text[256];
+  std::snprintf(text, sizeof text,
+                "flag: %s %s: -log10 p score %.3f, Wald %.3f, LR %.3f (spread %.2f > %.2f)",
+                trait.set.trait.c_str(), row.variant_id.c_str(), neg_log10_from_log(row.score_log_p),
+                neg_log10_from_log(*row.wald_log_p), neg_log10_from_log(*row.lrt_log_p),
+                *row.log10p_spread, trait.spread_flag);
+  return text;
+}
+
+}  // namespace
+
+bool SiteSummary::varies() const {
+  if (called < 2) return false;
+  const double mean = sum / static_cast<double>(called);
+  // Dosages are at most 2 and come from text with a few decimals, so a
+  // spread below 1e-12 can only be rounding in the sums.
+  return sum_squares - mean * sum > 1e-12 * static_cast<double>(called);
+}
+
+void process_trait_block(const TraitContext& trait, const DosageBlock& block,
+                         const std::vector<std::string>& chromosomes, TraitScratch& scratch,
+                         TraitBlockOutput& output) {
+  output.rows.clear();
+  output.tally = TraitTally{};
+  output.discordant_notes.clear();
+  const std::size_t width = block.size();
+  if (width == 0) return;
+
+  gather_block(trait.set.genotype_index, block, scratch);
+  scratch.scores.resize(width);
+  trait.kernel->compute(scratch.genotypes.data(), width, scratch.score_scratch, scratch.scores.data());
+
+  ResultRow row;
+  for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
+    const SiteSummary& summary = scratch.summaries[site_idx];
+    if (!summary.varies()) {
+      ++output.tally.monomorphic;
+      continue;
+    }
+    const ScoreResult& score = scratch.scores[site_idx];
+    if (!score.testable) {
+      ++output.tally.in_covariate_span;
+      continue;
+    }
+    fill_site_columns(trait, block.sites[site_idx], chromosomes[site_idx], summary, row);
+    fill_score_columns(score, row);
+    if (should_confirm(trait, score.log_p)) {
+      copy_column(scratch, width, site_idx, scratch.column);
+      const ConfirmResult confirmed = confirm_variant(trait.model, scratch.column);
+      fill_confirmed_columns(confirmed, row);
+      ++output.tally.confirmed;
+      if (!confirmed.converged) ++output.tally.confirm_not_converged;
+      if (*row.log10p_spread > trait.spread_flag) {
+        ++output.tally.discordant;
+        output.discordant_notes.push_back(describe_discordance(trait, row));
+      }
+    }
+    append_result_row(row, output.rows);
+    ++output.tally.written;
+  }
+}
+
+}  // namespace tamis

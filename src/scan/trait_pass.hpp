@@ -1,0 +1,55 @@
+// One trait's work on one decoded block: summarise and impute the dosages of
+// the trait's analysis samples, run the blocked score test, confirm the hits
+// and format the rows. Pure computation: no I/O.
+#pragma once
+
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "tamis/confirm.hpp"
+#include "tamis/genotype_reader.hpp"
+#include "tamis/null_model.hpp"
+#include "tamis/scan.hpp"
+#include "tamis/score_kernel.hpp"
+#include "tamis/trait_table.hpp"
+
+namespace tamis {
+
+struct TraitContext {
+  AnalysisSet set;
+  NullModel model;
+  std::unique_ptr<ScoreKernel> kernel;
+  double confirm_below = 1e-4;
+  double spread_flag = 1.0;
+};
+
+// Dosage summary of one site over a trait's analysis samples.
+struct SiteSummary {
+  std::size_t called = 0;
+  double sum = 0.0;
+  double sum_squares = 0.0;
+  double mean() const { return called ? sum / static_cast<double>(called) : 0.0; }
+  bool varies() const;
+};
+
+struct TraitScratch {
+  std::vector<double> genotypes;  // sample-major block for the kernel
+  std::vector<SiteSummary> summaries;
+  std::vector<ScoreResult> scores;
+  ScoreScratch score_scratch;
+  Eigen::VectorXd column;
+};
+
+struct TraitBlockOutput {
+  std::string rows;
+  TraitTally tally;
+  std::vector<std::string> discordant_notes;  // one line per flagged hit
+};
+
+// `chromosomes[site_idx]` is the contig name as it is to be written.
+void process_trait_block(const TraitContext& trait, const DosageBlock& block,
+                         const std::vector<std::string>& chromosomes, TraitScratch& scratch,
+                         TraitBlockOutput& output);
+
+}  // namespace tamis

@@ -1,0 +1,373 @@
+#include "tamis/simulate.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <string>
+#include <vector>
+
+#include "tamis/errors.hpp"
+#include "tamis/results_writer.hpp"
+
+namespace tamis {
+namespace {
+
+// xoshiro256** seeded through splitmix64: small, fast, and the same stream on
+// every platform (the standard library's distributions are not).
+class Random {
+ public:
+  explicit Random(std::uint64_t seed) {
+    for (auto& word : state_) word = split_mix(seed);
+  }
+  std::uint64_t next() {
+    const std::uint64_t result = rotate(state_[1] * 5, 7) * 9;
+    const std::uint64_t shifted = state_[1] << 17;
+    state_[2] ^= state_[0];
+    state_[3] ^= state_[1];
+    state_[1] ^= state_[2];
+    state_[0] ^= state_[3];
+    state_[2] ^= shifted;
+    state_[3] = rotate(state_[3], 45);
+    return result;
+  }
+  double uniform() { return static_cast<double>(next() >> 11) * 0x1.0p-53; }
+  double uniform(double low, double high) { return low + (high - low) * uniform(); }
+  bool bernoulli(double p) { return uniform() < p; }
+  double normal() {
+    if (has_spare_) {
+      has_spare_ = false;
+      return spare_;
+    }
+    double u1 = uniform();
+    while (u1 <= 0.0) u1 = uniform();
+    const double u2 = uniform();
+    const double radius = std::sqrt(-2.0 * std::log(u1));
+    spare_ = radius * std::sin(2.0 * M_PI * u2);
+    has_spare_ = true;
+    return radius * std::cos(2.0 * M_PI * u2);
+  }
+  std::size_t index(std::size_t count) { return static_cast<std::size_t>(uniform() * count) % count; }
+
+ private:
+  static std::uint64_t rotate(std::uint64_t x, int k) { return (x << k) | (x >> (64 - k)); }
+  static std::uint64_t split_mix(std::uint64_t& x) {
+    std::uint64_t z = (x += 0x9e3779b97f4a7c15ULL);
+    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
+    z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
+    return z ^ (z >> 31);
+  }
+  std::uint64_t state_[4];
+  bool has_spare_ = false;
+  double spare_ = 0.0;
+};
+
+struct Village {
+  const char* name;
+  double mean_ancestry;  // share of founding group A
+  double fev1_shift;
+};
+constexpr Village kVillages[] = {{"hollin_bay", 0.2, 0.0}, {"gull_point", 0.5, 0.1}, {"reedmouth", 0.8, -0.15}};
+
+struct Person {
+  std::string id;
+  int age = 0;
+  bool female = false;
+  int village = 0;
+  double ancestry = 0.0;
+  double pcs[4] = {0, 0, 0, 0};
+  bool in_table = true;
+};
+
+struct CausalVariant {
+  std::size_t variant_idx = 0;
+  int trait = 0;  // 0: fev1_litres, 1: winter_wheeze
+  double effect = 0.0;
+  std::string chromosome;
+  std::int64_t position = 0;
+  std::vector<int> genotypes;
+};
+
+double clamp(double value, double low, double high) { return std::min(high, std::max(low, value)); }
+
+std::vector<Person> make_people(const SimulationOptions& options, Random& random) {
+  std::vector<Person> people(static_cast<std::size_t>(options.samples));
+  char id[32];
+  for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
+    Person& person = people[person_idx];
+    std::snprintf(id, sizeof id, "SR%05zu", person_idx + 1);
+    person.id = id;
+    person.age = 18 + static_cast<int>(random.index(63));
+    person.female = random.bernoulli(0.5);
+    person.village = static_cast<int>(random.index(3));
+    person.ancestry = clamp(kVillages[person.village].mean_ancestry + 0.12 * random.normal(), 0.0, 1.0);
+    person.pcs[0] = 0.08 * (person.ancestry - 0.5) + 0.004 * random.normal();
+    for (int pc_idx = 1; pc_idx < 4; ++pc_idx) person.pcs[pc_idx] = 0.02 * random.normal();
+    // About one in a hundred genotyped people never filled in the questionnaire.
+    person.in_table = !random.bernoulli(0.01);
+  }
+  return people;
+}
+
+struct VariantDesign {
+  double frequency_a = 0.0;
+  double frequency_b = 0.0;
+  double imputation_quality = 1.0;
+  bool triallelic = false;
+  double second_alt_frequency = 0.0;
+};
+
+VariantDesign design_variant(const SimulationOptions& options, Random& random) {
+  VariantDesign design;
+  const bool rare = random.bernoulli(options.rare_fraction);
+  const double ancestral = rare ? random.uniform(0.0005, 0.01) : random.uniform(0.01, 0.5);
+  const double spread = std::sqrt(0.02 * ancestral * (1.0 - ancestral));
+  design.frequency_a = clamp(ancestral + spread * random.normal(), 0.0002, 0.98);
+  design.frequency_b = clamp(ancestral + spread * random.normal(), 0.0002, 0.98);
+  design.imputation_quality = random.bernoulli(0.3) ? 1.0 : random.uniform(0.6, 1.0);
+  design.triallelic = random.bernoulli(0.01);
+  design.second_alt_frequency = random.uniform(0.005, 0.05);
+  return design;
+}
+
+void append_dosage(double dosage, std::string& line) {
+  const long thousandths = std::lround(clamp(dosage, 0.0, 2.0) * 1000.0);
+  line += static_cast<char>('0' + thousandths / 1000);
+  line += '.';
+  const long fraction = thousandths % 1000;
+  line += static_cast<char>('0' + fraction / 100);
+  line += static_cast<char>('0' + (fraction / 10) % 10);
+  line += static_cast<char>('0' + fraction % 10);
+}
+
+std::string vcf_header(const SimulationOptions& options, const std::vector<Person>& people,
+                       const std::vector<std::int64_t>& contig_lengths) {
+  std::string header = "##fileformat=VCFv4.3\n";
+  header += "##source=tamis simulate: Saltmarsh Ridge synthetic cohort, seed " + std::to_string(options.seed) + "\n";
+  for (std::size_t contig_idx = 0; contig_idx < contig_lengths.size(); ++contig_idx) {
+    header += "##contig=<ID=" + std::to_string(contig_idx + 1) + ",length=" +
+              std::to_string(contig_lengths[contig_idx]) + ">\n";
+  }
+  header += "##FORMAT=<ID=GT,Number=1,Type=String,Description=\"Genotype\">\n";
+  header += "##FORMAT=<ID=DS,Number=A,Type=Float,Description=\"Expected count of each ALT allele\">\n";
+  header += "#CHROM\tPOS\tID\tREF\tALT\tQUAL\tFILTER\tINFO\tFORMAT";
+  for (const Person& person : people) header += "\t" + person.id;
+  header += "\n";
+  return header;
+}
+
+std::vector<CausalVariant> choose_causal_variants(const SimulationOptions& options, Random& random) {
+  std::vector<CausalVariant> causal;
+  for (int trait = 0; trait < 2; ++trait) {
+    for (int causal_idx = 0; causal_idx < options.causal_per_trait; ++causal_idx) {
+      CausalVariant variant;
+      // Spread the planted variants evenly along the genome, away from the ends.
+      const double place = (causal_idx + 0.5 + 0.25 * trait) / options.causal_per_trait;
+      variant.variant_idx = static_cast<std::size_t>(place * (options.variants - 1));
+      variant.trait = trait;
+      const double sign = random.bernoulli(0.5) ? 1.0 : -1.0;
+      variant.effect = sign * (trait == 0 ? 0.16 : 0.55);
+      causal.push_back(variant);
+    }
+  }
+  return causal;
+}
+
+CausalVariant* find_causal(std::vector<CausalVariant>& causal, std::size_t variant_idx) {
+  for (CausalVariant& variant : causal) {
+    if (variant.variant_idx == variant_idx) return &variant;
+  }
+  return nullptr;
+}
+
+const char* random_base(Random& random) {
+  static const char* bases[] = {"A", "C", "G", "T"};
+  return bases[random.index(4)];
+}
+
+// Writes the VCF record by record; keeps the genotypes of the planted variants.
+void write_genotypes(const SimulationOptions& options, const std::vector<Person>& people,
+                     std::vector<CausalVariant>& causal, Random& random, const std::string& path) {
+  const int per_chromosome = std::max(1, options.variants / options.chromosomes);
+  std::vector<std::int64_t> contig_lengths(static_cast<std::size_t>(options.chromosomes), 0);
+  std::vector<std::vector<std::int64_t>> positions(contig_lengths.size());
+  for (int variant_idx = 0; variant_idx < options.variants; ++variant_idx) {
+    const std::size_t contig = std::min<std::size_t>(variant_idx / per_chromosome, contig_lengths.size() - 1);
+    std::int64_t& last = contig_lengths[contig];
+    last = (last == 0 ? 10000 : last) + 50 + static_cast<std::int64_t>(random.index(3000));
+    positions[contig].push_back(last);
+  }
+  for (auto& length : contig_lengths) length += 10000;
+
+  BgzfTextFile vcf(path);
+  vcf.write(vcf_header(options, people, contig_lengths));
+  std::string line;
+  std::size_t variant_idx = 0;
+  for (std::size_t contig = 0; contig < positions.size(); ++contig) {
+    for (std::int64_t position : positions[contig]) {
+      CausalVariant* planted = find_causal(causal, variant_idx);
+      VariantDesign design = design_variant(options, random);
+      if (planted) {
+        // Planted effects sit on common variants, so the demo shows clear peaks.
+        const double frequency = random.uniform(0.15, 0.45);
+        design.frequency_a = frequency + 0.02;
+        design.frequency_b = frequency - 0.02;
+        design.triallelic = false;
+        planted->chromosome = std::to_string(contig + 1);
+        planted->position = position;
+      }
+      const char* ref = random_base(random);
+      const char* alt = random_base(random);
+      while (alt == ref) alt = random_base(random);
+      const char* alt2 = random_base(random);
+      while (alt2 == ref || alt2 == alt) alt2 = random_base(random);
+      line.clear();
+      line += std::to_string(contig + 1) + "\t" + std::to_string(position) + "\t";
+      line += random.bernoulli(0.7) ? "rs" + std::to_string(1000000 + variant_idx) : std::string(".");
+      line += std::string("\t") + ref + "\t" + alt + (design.triallelic ? std::string(",") + alt2 : "");
+      line += "\t.\tPASS\t.\tGT:DS";
+      for (const Person& person : people) {
+        const double frequency =
+            person.ancestry * design.frequency_a + (1.0 - person.ancestry) * design.frequency_b;
+        int alleles[2];
+        for (int& allele : alleles) {
+          allele = random.bernoulli(frequency) ? 1 : 0;
+          if (allele == 0 && design.triallelic && random.bernoulli(design.second_alt_frequency)) allele = 2;
+        }
+        if (planted) planted->genotypes.push_back(alleles[0] + alleles[1]);
+        if (random.bernoulli(options.missing_rate)) {
+          line += design.triallelic ? "\t./.:.,." : "\t./.:.";
+          continue;
+        }
+        line += '\t';
+        line += static_cast<char>('0' + alleles[0]);
+        line += '/';
+        line += static_cast<char>('0' + alleles[1]);
+        line += ':';
+        const int first_count = (alleles[0] == 1) + (alleles[1] == 1);
+        // Imperfect imputation pulls the dosage towards the expected count.
+        const double quality = design.imputation_quality;
+        append_dosage(quality * first_count + (1.0 - quality) * 2.0 * frequency, line);
+        if (design.triallelic) {
+          line += ',';
+          append_dosage((alleles[0] == 2) + (alleles[1] == 2), line);
+        }
+      }
+      line += '\n';
+      vcf.write(line);
+      ++variant_idx;
+    }
+  }
+  vcf.commit(IndexKind::tabix_vcf);
+}
+
+double mean_case_probability(const std::vector<double>& base_logits, double intercept) {
+  double total = 0.0;
+  for (double logit : base_logits) total += 1.0 / (1.0 + std::exp(-(logit + intercept)));
+  return total / static_cast<double>(base_logits.size());
+}
+
+// The intercept whose average case probability matches the target prevalence.
+double solve_intercept(const std::vector<double>& base_logits, double prevalence) {
+  double low = -20.0, high = 20.0;
+  for (int step = 0; step < 100; ++step) {
+    const double middle = 0.5 * (low + high);
+    (mean_case_probability(base_logits, middle) < prevalence ? low : high) = middle;
+  }
+  return 0.5 * (low + high);
+}
+
+std::string maybe_missing(const std::string& value, double missing_rate, Random& random) {
+  return random.bernoulli(missing_rate) ? std::string("NA") : value;
+}
+
+std::string fixed(double value, int decimals) {
+  char text[64];
+  std::snprintf(text, sizeof text, "%.*f", decimals, value);
+  return text;
+}
+
+void write_table(const SimulationOptions& options, const std::vector<Person>& people,
+                 const std::vector<CausalVariant>& causal, Random& random, const std::string& path) {
+  std::vector<double> fev1(people.size()), wheeze_logit(people.size());
+  for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
+    const Person& person = people[person_idx];
+    fev1[person_idx] = 4.2 - 0.025 * (person.age - 45) - 0.7 * person.female +
+                       0.6 * (person.ancestry - 0.5) + kVillages[person.village].fev1_shift +
+                       0.5 * random.normal();
+    wheeze_logit[person_idx] = 0.02 * (person.age - 45) + 0.3 * !person.female + 1.0 * (person.ancestry - 0.5);
+  }
+  for (const CausalVariant& variant : causal) {
+    auto& target = variant.trait == 0 ? fev1 : wheeze_logit;
+    for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
+      target[person_idx] += variant.effect * variant.genotypes[person_idx];
+    }
+  }
+  const double intercept = solve_intercept(wheeze_logit, options.prevalence);
+
+  PlainTextFile table(path);
+  table.write("participant\tage\tsex\tvillage\tpc1\tpc2\tpc3\tpc4\tfev1_litres\twinter_wheeze\n");
+  const double rate = options.missing_rate;
+  for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
+    const Person& person = people[person_idx];
+    const bool is_case = random.bernoulli(1.0 / (1.0 + std::exp(-(wheeze_logit[person_idx] + intercept))));
+    if (!person.in_table) continue;
+    std::string row = person.id;
+    row += "\t" + maybe_missing(std::to_string(person.age), rate, random);
+    row += "\t" + maybe_missing(person.female ? "F" : "M", rate, random);
+    row += "\t" + maybe_missing(kVillages[person.village].name, rate, random);
+    for (double pc : person.pcs) row += "\t" + fixed(pc, 6);
+    row += "\t" + maybe_missing(fixed(fev1[person_idx], 4), rate, random);
+    row += "\t" + maybe_missing(is_case ? "1" : "0", rate, random);
+    table.write(row + "\n");
+  }
+  // A few questionnaires came back from people who were never genotyped.
+  const int extra = std::max(1, options.samples / 200);
+  for (int extra_idx = 0; extra_idx < extra; ++extra_idx) {
+    char id[32];
+    std::snprintf(id, sizeof id, "SR9%04d", extra_idx + 1);
+    table.write(std::string(id) + "\t50\tF\tgull_point\t0.0\t0.0\t0.0\t0.0\t3.9000\t0\n");
+  }
+  table.commit();
+}
+
+void write_truth(const std::vector<CausalVariant>& causal, const std::string& path) {
+  PlainTextFile truth(path);
+  truth.write("trait\tchromosome\tposition\teffect\n");
+  for (const CausalVariant& variant : causal) {
+    truth.write(std::string(variant.trait == 0 ? "fev1_litres" : "winter_wheeze") + "\t" + variant.chromosome +
+                "\t" + std::to_string(variant.position) + "\t" + fixed(variant.effect, 3) + "\n");
+  }
+  truth.commit();
+}
+
+void check_options(const SimulationOptions& options) {
+  auto refuse = [](const std::string& what, const std::string& fix) {
+    throw Error(ExitCode::usage, "tamis simulate", what, fix);
+  };
+  if (options.samples < 10) refuse("--samples must be at least 10", "ask for more samples");
+  if (options.variants < 1) refuse("--variants must be at least 1", "ask for more variants");
+  if (options.chromosomes < 1 || options.chromosomes > 22) refuse("--chromosomes must be 1 to 22", "");
+  if (options.prevalence <= 0.0 || options.prevalence >= 1.0) refuse("--prevalence must lie strictly between 0 and 1", "");
+  if (options.missing_rate < 0.0 || options.missing_rate >= 0.5) refuse("--missing-rate must lie in [0, 0.5)", "");
+  if (options.rare_fraction < 0.0 || options.rare_fraction > 1.0) refuse("--rare-fraction must lie in [0, 1]", "");
+  if (options.causal_per_trait < 0 || options.causal_per_trait > options.variants / 4) {
+    refuse("--causal must be between 0 and a quarter of --variants", "");
+  }
+}
+
+}  // namespace
+
+SimulationOutputs simulate_cohort(const SimulationOptions& options) {
+  check_options(options);
+  check_output_prefix_writable(options.out_prefix);
+  SimulationOutputs outputs{options.out_prefix + ".vcf.gz", options.out_prefix + ".traits.tsv",
+                            options.out_prefix + ".truth.tsv"};
+  Random random(options.seed);
+  const std::vector<Person> people = make_people(options, random);
+  std::vector<CausalVariant> causal = choose_causal_variants(options, random);
+  write_genotypes(options, people, causal, random, outputs.vcf_path);
+  write_table(options, people, causal, random, outputs.table_path);
+  write_truth(causal, outputs.truth_path);
+  return outputs;
+}
+
+}  // namespace tamis
