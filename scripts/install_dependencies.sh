@@ -1,0 +1,21 @@
+#!/usr/bin/env bash
+# Installs the Debian packages tamis needs to build, test and run its demo.
+# Packages already present are left alone; installing needs root.
+set -euo pipefail
+packages=(
+  build-essential cmake pkg-config
+  libhts-dev libeigen3-dev libtbb-dev libcli11-dev zlib1g-dev
+  libgtest-dev libbenchmark-dev
+  r-base-core bcftools tabix
+)
+missing=()
+for package in "${packages[@]}"; do
+  dpkg-query -W -f='${Status}' "$package" 2>/dev/null | grep -q "install ok installed" || missing+=("$package")
+done
+if [ ${#missing[@]} -eq 0 ]; then exit 0; fi
+echo "installing: ${missing[*]}"
+sudo_cmd=()
+if [ "$(id -u)" -ne 0 ]; then sudo_cmd=(sudo); fi
+export DEBIAN_FRONTEND=noninteractive
+"${sudo_cmd[@]}" apt-get update -qq
+"${sudo_cmd[@]}" apt-get install -y -qq --no-install-recommends "${missing[@]}"
