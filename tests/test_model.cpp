@@ -128,7 +128,7 @@ TEST(Distributions, ChiSquareLogTailIsFiniteSmoothAndMonotone) {
   const double leading = -s / 2.0 - 0.5 * std::log(3.14159265358979323846 * s / 2.0) +
                          std::log1p(-1.0 / s + 3.0 / (s * s));
   EXPECT_LE(relative_error(log_chisq1_upper_tail(s), leading), 1e-14);
-  EXPECT_NEAR(neg_log10_from_log(log_chisq1_upper_tail(s)), 21719.9, 0.1);
+  EXPECT_NEAR(neg_log10_from_log(log_chisq1_upper_tail(s)), 21717.32, 0.01);  // p ~ 4.8e-21718
   EXPECT_EQ(neg_log10_from_log(0.0), 0.0);
   EXPECT_FALSE(std::signbit(neg_log10_from_log(0.0)));
   EXPECT_DOUBLE_EQ(neg_log10_from_log(std::log(1e-8)), 8.0);
@@ -157,7 +157,7 @@ TEST(Distributions, IncompleteBetaClosedForms) {
       expect_relative("incomplete beta closed forms", log_regularized_incomplete_beta(x, a, 1.0),
                       a * std::log(x), 1e-12, "I_x(a,1)");
       expect_relative("incomplete beta closed forms", log_regularized_incomplete_beta(x, 1.0, a),
-                      std::log1p(-std::pow(1.0 - x, a)), 1e-12, "I_x(1,b)");
+                      std::log1p(-std::exp(a * std::log1p(-x))), 1e-12, "I_x(1,b)");
     }
   }
 }

@@ -1,0 +1,393 @@
+// Streaming VCF / VCF.gz / BCF reading. Records are read serially here and
+// decoded later (record_decoding.cpp), possibly on several threads at once.
+#include "tamis/genotype_reader.hpp"
+
+#include <htslib/bgzf.h>
+#include <htslib/hts.h>
+#include <htslib/tbx.h>
+#include <htslib/vcf.h>
+
+#include <cerrno>
+#include <cstring>
+#include <unordered_map>
+
+#include "genotypes/record_batch_impl.hpp"
+#include "tamis/errors.hpp"
+
+namespace tamis {
+
+const char* dosage_field_name(DosageField field) {
+  switch (field) {
+    case DosageField::automatic: return "auto";
+    case DosageField::ds: return "DS";
+    case DosageField::gp: return "GP";
+    case DosageField::gt: return "GT";
+  }
+  return "?";
+}
+
+namespace {
+
+constexpr const char* damaged_file_fix =
+    "the file looks truncated or damaged: check it with `bgzip -t` (compressed VCF) or "
+    "`bcftools view` and download or copy it again";
+
+[[noreturn]] void throw_input_error(const std::string& where, const std::string& what,
+                                    const std::string& fix) {
+  throw Error(ExitCode::genotype_input, where, what, fix);
+}
+
+std::string system_reason() {
+  return errno != 0 ? std::string(" (") + std::strerror(errno) + ")" : std::string();
+}
+
+std::vector<std::string> split_on(const std::string& text, char separator) {
+  std::vector<std::string> parts;
+  std::size_t start = 0;
+  while (true) {
+    std::size_t end = text.find(separator, start);
+    parts.push_back(text.substr(start, end == std::string::npos ? std::string::npos : end - start));
+    if (end == std::string::npos) break;
+    start = end + 1;
+  }
+  return parts;
+}
+
+// The raw header text, read without htslib's header parser, which refuses
+// some headers (duplicate sample names) without saying where the problem is.
+std::string read_raw_header_text(const std::string& path) {
+  htsFile* file = hts_open(path.c_str(), "r");
+  if (!file) return "";
+  std::string text;
+  const htsFormat* format = hts_get_format(file);
+  if (format->format == vcf) {
+    kstring_t line = {0, 0, nullptr};
+    while (hts_getline(file, KS_SEP_LINE, &line) >= 0 && line.l > 0 && line.s[0] == '#') {
+      text.append(line.s, line.l);
+      text += '\n';
+    }
+    free(line.s);
+  } else if (format->format == bcf && file->is_bgzf) {
+    // BCF: "BCF\2\2", a little-endian 32-bit text length, then the text.
+    uint8_t prefix[9];
+    if (bgzf_read(file->fp.bgzf, prefix, sizeof prefix) == sizeof prefix) {
+      uint32_t length = le_to_u32(prefix + 5);
+      std::string buffer(length, '\0');
+      if (bgzf_read(file->fp.bgzf, buffer.data(), length) == static_cast<ssize_t>(length)) {
+        text = buffer.c_str();
+      }
+    }
+  }
+  hts_close(file);
+  return text;
+}
+
+std::vector<std::string> sample_names_in_raw_header(const std::string& header_text) {
+  for (const std::string& line : split_on(header_text, '\n')) {
+    if (line.rfind("#CHROM", 0) != 0) continue;
+    std::vector<std::string> columns = split_on(line, '\t');
+    // Eight fixed columns and FORMAT come before the samples (VCF 4.3, 1.5).
+    if (columns.size() <= 9) return {};
+    return std::vector<std::string>(columns.begin() + 9, columns.end());
+  }
+  return {};
+}
+
+void check_no_duplicate_samples(const std::string& path, const std::vector<std::string>& samples) {
+  std::unordered_map<std::string, std::size_t> first_position;
+  for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) {
+    auto [found, inserted] = first_position.emplace(samples[sample_idx], sample_idx);
+    if (inserted) continue;
+    throw_input_error(path + ", header",
+                      "sample ID '" + samples[sample_idx] + "' appears twice, as sample " +
+                          std::to_string(found->second + 1) + " and sample " +
+                          std::to_string(sample_idx + 1) + " of the #CHROM line",
+                      "give every sample a distinct ID, e.g. with `bcftools reheader -s`");
+  }
+}
+
+std::vector<std::string> declared_format_fields(const bcf_hdr_t* header) {
+  std::vector<std::string> fields;
+  for (int hrec_idx = 0; hrec_idx < header->nhrec; ++hrec_idx) {
+    const bcf_hrec_t* hrec = header->hrec[hrec_idx];
+    if (hrec->type != BCF_HL_FMT) continue;
+    int key_idx = bcf_hrec_find_key(const_cast<bcf_hrec_t*>(hrec), "ID");
+    if (key_idx >= 0) fields.emplace_back(hrec->vals[key_idx]);
+  }
+  return fields;
+}
+
+std::string join_fields(const std::vector<std::string>& fields) {
+  if (fields.empty()) return "none";
+  std::string text;
+  for (const std::string& field : fields) text += (text.empty() ? "" : ", ") + field;
+  return text;
+}
+
+int format_tag_id(const bcf_hdr_t* header, const char* tag) {
+  int tag_id = bcf_hdr_id2int(header, BCF_DT_ID, tag);
+  if (tag_id < 0 || !bcf_hdr_idinfo_exists(header, BCF_HL_FMT, tag_id)) return -1;
+  return tag_id;
+}
+
+DosageField resolve_field(const std::string& path, const bcf_hdr_t* header, DosageField wanted) {
+  const std::string declared = join_fields(declared_format_fields(header));
+  if (wanted == DosageField::automatic) {
+    for (DosageField candidate : {DosageField::ds, DosageField::gp, DosageField::gt}) {
+      if (format_tag_id(header, dosage_field_name(candidate)) >= 0) return candidate;
+    }
+    throw_input_error(path + ", header",
+                      "the header declares none of the FORMAT fields DS, GP or GT (it declares: " +
+                          declared + ")",
+                      "provide genotypes (GT), dosages (DS) or genotype probabilities (GP)");
+  }
+  if (format_tag_id(header, dosage_field_name(wanted)) < 0) {
+    throw_input_error(path + ", header",
+                      std::string("the requested dosage field FORMAT/") + dosage_field_name(wanted) +
+                          " is not declared in the header (it declares: " + declared + ")",
+                      "request one of the declared fields, or let tamis choose (auto)");
+  }
+  return wanted;
+}
+
+void check_field_type(const std::string& path, const bcf_hdr_t* header, DosageField field,
+                      int tag_id) {
+  const int type = bcf_hdr_id2type(header, BCF_HL_FMT, tag_id);
+  const bool wanted_type = field == DosageField::gt ? type == BCF_HT_STR : type == BCF_HT_REAL;
+  if (wanted_type) return;
+  throw_input_error(path + ", header",
+                    std::string("FORMAT/") + dosage_field_name(field) + " is declared with Type=" +
+                        (type == BCF_HT_INT ? "Integer" : type == BCF_HT_STR ? "String" : "Flag") +
+                        ", expected Type=" + (field == DosageField::gt ? "String" : "Float") +
+                        " (VCF 4.3, section 1.6.2)",
+                    "fix the ##FORMAT line, e.g. with `bcftools reheader -h`");
+}
+
+std::string describe_sample_mismatch(const std::vector<std::string>& expected,
+                                     const std::vector<std::string>& found) {
+  const std::size_t shared = std::min(expected.size(), found.size());
+  for (std::size_t sample_idx = 0; sample_idx < shared; ++sample_idx) {
+    if (expected[sample_idx] == found[sample_idx]) continue;
+    return "sample " + std::to_string(sample_idx + 1) + " is '" + found[sample_idx] +
+           "' where the first file has '" + expected[sample_idx] + "'";
+  }
+  return "it lists " + std::to_string(found.size()) + " samples where the first file lists " +
+         std::to_string(expected.size());
+}
+
+// The CHROM and POS columns of the line htslib failed on, when it is text.
+std::string place_of_unparsed_line(htsFile* file) {
+  if (hts_get_format(file)->format != vcf || file->line.l == 0) return "";
+  std::string line(file->line.s, file->line.l);
+  std::vector<std::string> columns = split_on(line.substr(0, line.find('\n')), '\t');
+  if (columns.size() < 2) return "";
+  return columns[0] + ":" + columns[1];
+}
+
+struct InputFile {
+  std::shared_ptr<genotype_detail::FileInfo> info;
+  htsFile* handle = nullptr;
+  bcf_hdr_t* header = nullptr;
+  std::uint64_t records_read = 0;
+  std::string last_place;  // chrom:pos of the last record read
+
+  InputFile() = default;
+  InputFile(const InputFile&) = delete;
+  InputFile& operator=(const InputFile&) = delete;
+  ~InputFile() {
+    if (header) bcf_hdr_destroy(header);
+    if (handle) hts_close(handle);
+  }
+};
+
+std::string record_where(const InputFile& input, std::uint64_t record_number,
+                         const std::string& place) {
+  std::string where = input.info->path + ", record " + std::to_string(record_number);
+  if (!place.empty()) where += " (" + place + ")";
+  return where;
+}
+
+std::optional<std::uint64_t> indexed_count_of(const std::string& path, htsFile* handle) {
+  const htsFormat* format = hts_get_format(handle);
+  hts_idx_t* index = nullptr;
+  tbx_t* tabix = nullptr;
+  if (format->format == bcf) {
+    index = bcf_index_load3(path.c_str(), nullptr, HTS_IDX_SILENT_FAIL);
+  } else if (format->format == vcf && format->compression == bgzf) {
+    tabix = tbx_index_load3(path.c_str(), nullptr, HTS_IDX_SILENT_FAIL);
+    if (tabix) index = tabix->idx;
+  }
+  if (!index) return std::nullopt;
+  std::uint64_t total = 0;
+  const int sequence_count = hts_idx_nseq(index);
+  for (int tid = 0; tid < sequence_count; ++tid) {
+    std::uint64_t mapped = 0, unmapped = 0;
+    // A contig without records has no statistics; it contributes nothing.
+    if (hts_idx_get_stat(index, tid, &mapped, &unmapped) == 0) total += mapped;
+  }
+  if (tabix) {
+    tbx_destroy(tabix);
+  } else {
+    hts_idx_destroy(index);
+  }
+  return total;
+}
+
+// A BGZF-level failure means damaged bytes; otherwise htslib read a whole
+// line of text and could not parse it.
+[[noreturn]] void throw_read_error(const InputFile& input, std::uint64_t record_number) {
+  htsFile* handle = input.handle;
+  const bool damaged = handle->is_bgzf && handle->fp.bgzf->errcode != 0;
+  const std::string line_place = damaged ? "" : place_of_unparsed_line(handle);
+  if (!line_place.empty()) {
+    throw_input_error(record_where(input, record_number, line_place),
+                      "htslib could not parse this record (its message is above)",
+                      "make the record follow VCF 4.3; `bcftools view` stops at the same place");
+  }
+  const std::string place =
+      "after " + (input.last_place.empty() ? std::string("the header") : input.last_place);
+  throw_input_error(record_where(input, record_number, place),
+                    "reading failed: the data is damaged or cut short", damaged_file_fix);
+}
+
+}  // namespace
+
+struct GenotypeReader::Impl {
+  std::vector<std::string> paths;
+  std::vector<std::unique_ptr<InputFile>> inputs;
+  std::shared_ptr<std::vector<std::string>> sample_ids = std::make_shared<std::vector<std::string>>();
+  std::size_t current_input = 0;
+
+  std::unique_ptr<InputFile> open_input(const std::string& path, const GenotypeReaderOptions& options);
+  void read_header(InputFile& input);
+  void check_samples_match(const InputFile& input, std::vector<std::string> samples);
+};
+
+std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& path,
+                                                            const GenotypeReaderOptions& options) {
+  auto input = std::make_unique<InputFile>();
+  errno = 0;
+  input->handle = hts_open(path.c_str(), "r");
+  if (!input->handle) {
+    throw_input_error(path, "cannot open the genotype file" + system_reason(),
+                      "check the path and that the file is readable");
+  }
+  const htsFormat* format = hts_get_format(input->handle);
+  if (format->format != vcf && format->format != bcf) {
+    char* description = hts_format_description(format);
+    std::string detected = description ? description : "unknown";
+    free(description);
+    throw_input_error(path, "not a VCF or BCF file (htslib sees: " + detected + ")",
+                      "give a VCF, bgzip-compressed VCF or BCF file");
+  }
+  if (input->handle->is_bgzf && bgzf_check_EOF(input->handle->fp.bgzf) == 0) {
+    throw_input_error(path, "the BGZF end-of-file marker is missing, so the file is incomplete",
+                      damaged_file_fix);
+  }
+  if (options.io_threads > 0 && hts_set_threads(input->handle, options.io_threads) != 0) {
+    throw_input_error(path, "could not start " + std::to_string(options.io_threads) +
+                                " decompression threads",
+                      "use fewer input/output threads");
+  }
+  auto info = std::make_shared<genotype_detail::FileInfo>();
+  info->path = path;
+  info->file_index = inputs.size();
+  info->sample_ids = sample_ids;
+  input->info = info;
+  read_header(*input);
+  info->field = resolve_field(path, input->header, options.field);
+  info->tag_id = format_tag_id(input->header, dosage_field_name(info->field));
+  check_field_type(path, input->header, info->field, info->tag_id);
+  return input;
+}
+
+void GenotypeReader::Impl::read_header(InputFile& input) {
+  const std::string& path = input.info->path;
+  input.header = bcf_hdr_read(input.handle);
+  if (!input.header) {
+    // htslib rejects duplicate sample names without saying which; look for them.
+    check_no_duplicate_samples(path, sample_names_in_raw_header(read_raw_header_text(path)));
+    throw_input_error(path + ", header", "htslib could not parse the VCF header",
+                      "check the ## lines and the #CHROM line, e.g. with `bcftools view -h`");
+  }
+  const int sample_count = bcf_hdr_nsamples(input.header);
+  std::vector<std::string> samples(input.header->samples, input.header->samples + sample_count);
+  check_no_duplicate_samples(path, samples);
+  check_samples_match(input, std::move(samples));
+}
+
+void GenotypeReader::Impl::check_samples_match(const InputFile& input,
+                                               std::vector<std::string> samples) {
+  if (inputs.empty()) {
+    *sample_ids = std::move(samples);
+    return;
+  }
+  if (samples == *sample_ids) return;
+  throw_input_error(input.info->path + ", header",
+                    "the samples differ from those of the first file " + paths.front() + ": " +
+                        describe_sample_mismatch(*sample_ids, samples),
+                    "give files that list the same samples in the same order "
+                    "(e.g. `bcftools view -s` with one sample list for every file)");
+}
+
+GenotypeReader::GenotypeReader(const GenotypeReaderOptions& options) : impl_(std::make_unique<Impl>()) {
+  impl_->paths = options.paths;
+  for (const std::string& path : options.paths) {
+    impl_->inputs.push_back(impl_->open_input(path, options));
+  }
+}
+
+GenotypeReader::~GenotypeReader() = default;
+
+const std::vector<std::string>& GenotypeReader::sample_ids() const { return *impl_->sample_ids; }
+
+const std::vector<std::string>& GenotypeReader::paths() const { return impl_->paths; }
+
+DosageField GenotypeReader::resolved_field(std::size_t file_index) const {
+  return impl_->inputs.at(file_index)->info->field;
+}
+
+std::optional<std::uint64_t> GenotypeReader::indexed_record_count() const {
+  if (impl_->inputs.empty()) return std::nullopt;
+  std::uint64_t total = 0;
+  for (const auto& input : impl_->inputs) {
+    std::optional<std::uint64_t> count = indexed_count_of(input->info->path, input->handle);
+    if (!count) return std::nullopt;
+    total += *count;
+  }
+  return total;
+}
+
+std::size_t GenotypeReader::read_batch(RecordBatch& batch, std::size_t max_records) {
+  if (!batch.impl_) batch.impl_ = std::make_unique<RecordBatch::Impl>();
+  RecordBatch::Impl& records = *batch.impl_;
+  records.reserve(max_records);
+  records.count = 0;
+  records.sample_count = impl_->sample_ids->size();
+
+  while (records.count < max_records && impl_->current_input < impl_->inputs.size()) {
+    InputFile& input = *impl_->inputs[impl_->current_input];
+    bcf1_t* record = records.records[records.count];
+    const int status = bcf_read(input.handle, input.header, record);
+    if (status == -1) {
+      ++impl_->current_input;
+      continue;
+    }
+    const std::uint64_t record_number = input.records_read + 1;
+    // Undefined contigs and tags are only warnings: htslib adds them to the header.
+    const int fatal_errors = record->errcode & ~(BCF_ERR_CTG_UNDEF | BCF_ERR_TAG_UNDEF);
+    if (status < -1 || fatal_errors != 0) throw_read_error(input, record_number);
+    input.records_read = record_number;
+    genotype_detail::RecordOrigin& origin = records.origins[records.count];
+    origin.file = input.info;
+    origin.record_number = record_number;
+    // Copied now: htslib may grow the header's contig list while later
+    // records are read, and decoding must not look into a changing header.
+    origin.chromosome = bcf_seqname_safe(input.header, record);
+    input.last_place = origin.chromosome + ":" + std::to_string(record->pos + 1);
+    ++records.count;
+  }
+  return records.count;
+}
+
+}  // namespace tamis

@@ -1,0 +1,63 @@
+// What a RecordBatch holds: htslib records plus where each came from. Shared
+// by the reader (which fills batches) and the decoder (which empties them).
+#pragma once
+
+#include <htslib/vcf.h>
+
+#include <cstdint>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "tamis/genotype_reader.hpp"
+
+namespace tamis {
+
+namespace genotype_detail {
+
+// Everything decoding needs to know about a file. Decoding never touches the
+// htslib header, which the reading thread may still extend (htslib adds
+// undeclared contigs and tags to it), so the FORMAT tag is resolved to its
+// numeric id once, when the file is opened.
+struct FileInfo {
+  std::string path;
+  std::size_t file_index = 0;
+  DosageField field = DosageField::gt;
+  int tag_id = -1;  // the header's id of the FORMAT tag named by `field`
+  std::shared_ptr<const std::vector<std::string>> sample_ids;
+};
+
+struct RecordOrigin {
+  std::shared_ptr<const FileInfo> file;
+  std::uint64_t record_number = 0;
+  std::string chromosome;
+};
+
+}  // namespace genotype_detail
+
+struct RecordBatch::Impl {
+  // A pool that only grows: records are reused from one batch to the next so
+  // that htslib keeps its buffers.
+  std::vector<bcf1_t*> records;
+  std::vector<genotype_detail::RecordOrigin> origins;
+  std::size_t count = 0;
+  std::size_t sample_count = 0;
+
+  Impl() = default;
+  Impl(const Impl&) = delete;
+  Impl& operator=(const Impl&) = delete;
+  ~Impl() {
+    for (bcf1_t* record : records) bcf_destroy(record);
+  }
+
+  void reserve(std::size_t record_count) {
+    while (records.size() < record_count) {
+      bcf1_t* record = bcf_init();
+      if (!record) throw std::bad_alloc();
+      records.push_back(record);
+    }
+    if (origins.size() < record_count) origins.resize(record_count);
+  }
+};
+
+}  // namespace tamis
