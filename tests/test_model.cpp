@@ -151,13 +151,19 @@ TEST(Distributions, StudentTwoSidedLogTailMatchesR) {
 }
 
 TEST(Distributions, IncompleteBetaClosedForms) {
-  // Formula: I_x(a, 1) = x^a and I_x(1, b) = 1 - (1 - x)^b.
+  // Formula: I_x(a, 1) = x^a and I_x(1, b) = 1 - (1 - x)^b (its log evaluated
+  // without cancellation on either side).
+  auto log_one_minus_power = [](double x, double b) {
+    const double log_power = b * std::log1p(-x);
+    const double value = -std::expm1(log_power);
+    return value < 0.5 ? std::log(value) : std::log1p(-std::exp(log_power));
+  };
   for (double x : {1e-8, 0.01, 0.3, 0.5, 0.9, 0.999}) {
     for (double a : {0.5, 1.0, 2.5, 40.0}) {
       expect_relative("incomplete beta closed forms", log_regularized_incomplete_beta(x, a, 1.0),
                       a * std::log(x), 1e-12, "I_x(a,1)");
       expect_relative("incomplete beta closed forms", log_regularized_incomplete_beta(x, 1.0, a),
-                      std::log1p(-std::exp(a * std::log1p(-x))), 1e-12, "I_x(1,b)");
+                      log_one_minus_power(x, a), 1e-12, "I_x(1,b)");
     }
   }
 }
@@ -321,6 +327,13 @@ TEST(Confirm, LogisticMatchesR) {
                      -4.2074123271542008e-01};
   check_against_reference("glm g1/g2", model, f.g1, g1, false, 1e-4);
   check_against_reference("glm g1/g2", model, f.g2, g2, false, 1e-4);
+  // summary.glm computes the SE from the weights at the start of its last
+  // iteration; evaluated at the converged fit (R 4.2.2:
+  // sqrt(diag(solve(t(X) %*% (X * w)))) with w = fitted(b1) (1 - fitted(b1))) it is:
+  expect_relative("glm SE at the converged fit", confirm_variant(model, f.g1).se, 8.3255652548253500e-01,
+                  1e-10, "g1");
+  expect_relative("glm SE at the converged fit", confirm_variant(model, f.g2).se, 8.8450908087936020e-01,
+                  1e-10, "g2");
 }
 
 // ---------------------------------------------------------------------------
@@ -365,8 +378,20 @@ TEST(ScoreKernel, BlockedResultEqualsSingleColumnBitwise) {
   for (TraitKind kind : {TraitKind::quantitative, TraitKind::binary}) {
     Random rng(kind == TraitKind::binary ? 11 : 7);
     const int n = 301;
-    const Cohort cohort = simulate_cohort(n, kind, rng);
+    Cohort cohort = simulate_cohort(n, kind, rng);
+    if (kind == TraitKind::binary) {
+      // Seven null-model columns instead of four, so the kernel's other
+      // register-block shapes are exercised too.
+      cohort.design.conservativeResize(Eigen::NoChange, 7);
+      for (int s = 0; s < n; ++s) {
+        cohort.design(s, 4) = cohort.design(s, 1) * cohort.design(s, 1);
+        cohort.design(s, 5) = cohort.design(s, 2) * cohort.design(s, 3) / 40.0;
+        cohort.design(s, 6) = rng.normal();
+      }
+      cohort.names.insert(cohort.names.end(), {"x1_squared", "x2_x3", "x4"});
+    }
     const NullModel model = fit_null_model("sim", kind, cohort.y, cohort.design, cohort.names);
+    ASSERT_EQ(model.column_count(), kind == TraitKind::binary ? 7 : 4);
     ScoreKernel kernel(model);
     ScoreScratch scratch;
 

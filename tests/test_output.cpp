@@ -57,7 +57,7 @@ std::vector<std::string> split_tabs(const std::string& line) {
 
 TEST(ResultRows, HeaderLineListsTheColumnsInOrder) {
   // The first eight names are the GWAS-SSF mandatory columns, in the order the
-  // GWAS-SSF specification gives them.
+  // GWAS-SSF specification gives them (from memory of the GWAS-SSF v1.0 text).
   EXPECT_EQ(result_header_line(),
             "chromosome\tbase_pair_location\teffect_allele\tother_allele\tbeta\t"
             "standard_error\teffect_allele_frequency\tp_value\tvariant_id\trsid\tn\tinfo\t"
@@ -70,7 +70,7 @@ TEST(ResultRows, EmptyOptionalsAreWrittenAsNA) {
   std::string line;
   append_result_row(make_score_only_row(), line);
   // "#NA" is the GWAS-SSF spelling of a missing value; ref_allele "OA" says the
-  // other allele is the reference (GWAS-SSF).
+  // other allele is the reference (GWAS-SSF v1.0, from memory).
   EXPECT_EQ(line,
             "2\t150\tT\tC\t0.125\t0.0625\t0.25\t0.5\t2:150:C:T\t#NA\t1000\t#NA\tOA\tscore\t"
             "0.301029996\t4\t0.5\t#NA\t#NA\t#NA\t#NA\t#NA\t500\t1\t#NA\n");
@@ -106,11 +106,20 @@ TEST(ResultRows, FilledOptionalsAreWritten) {
   EXPECT_EQ(fields[24], "120");
 }
 
-TEST(PValues, RepresentableValuesUseSixSignificantDigits) {
+TEST(PValues, RepresentableValuesUseNineSignificantDigits) {
   EXPECT_EQ(format_p_value(0.0), "1");
   EXPECT_EQ(format_p_value(std::log(0.05)), "0.05");
   EXPECT_EQ(format_p_value(std::log(1e-300)), "1e-300");
-  EXPECT_EQ(format_p_value(std::log(1.23456789e-20)), "1.23457e-20");
+  EXPECT_EQ(format_p_value(std::log(1.234567891e-20)), "1.23456789e-20");
+}
+
+TEST(PValues, PValueOfOneHasZeroNegativeLog10) {
+  ResultRow row = make_score_only_row();
+  row.log_p = 0.0;
+  std::string line;
+  append_result_row(row, line);
+  EXPECT_EQ(split_tabs(line)[7], "1");
+  EXPECT_EQ(split_tabs(line)[14], "0");  // -log10(1) = 0, not "-0"
 }
 
 TEST(PValues, TinyValuesComeFromTheLogarithm) {
@@ -126,7 +135,7 @@ TEST(PValues, TinyValuesComeFromTheLogarithm) {
   std::size_t e_at = text.find('e');
   ASSERT_NE(e_at, std::string::npos) << text;
   EXPECT_EQ(text.substr(e_at), "e-1086");
-  EXPECT_NEAR(std::stod(text.substr(0, e_at)), expected_mantissa, 1e-5);
+  EXPECT_NEAR(std::stod(text.substr(0, e_at)), expected_mantissa, 1e-8);
 
   std::string line;
   ResultRow row = make_score_only_row();
@@ -136,8 +145,8 @@ TEST(PValues, TinyValuesComeFromTheLogarithm) {
 }
 
 TEST(PValues, MantissaRoundingRaisesTheExponent) {
-  // log10 p just below -1000 gives a mantissa of 9.99999998 that rounds to 10.
-  const double log_p = (-1000.0 - 1e-9) * std::log(10.0);
+  // log10 p just below -1000 gives a mantissa of 9.9999999998 that rounds to 10.
+  const double log_p = (-1000.0 - 1e-11) * std::log(10.0);
   EXPECT_EQ(format_p_value(log_p), "1e-1000");
 }
 
@@ -150,7 +159,8 @@ TEST(PValues, NeverZero) {
 }
 
 TEST(Chromosomes, MapToGwasSsfCodes) {
-  // Codes from the GWAS-SSF specification: 1-22, X=23, Y=24, MT=25.
+  // Codes from the GWAS-SSF specification: 1-22, X=23, Y=24, MT=25 (from memory
+  // of the GWAS-SSF v1.0 text).
   EXPECT_EQ(map_chromosome_ssf("1"), "1");
   EXPECT_EQ(map_chromosome_ssf("chr1"), "1");
   EXPECT_EQ(map_chromosome_ssf("CHR22"), "22");
@@ -288,9 +298,10 @@ std::string make_noisy_text(std::size_t length, unsigned seed) {
 enum ChildOutcome { child_saw_output_error = 0, child_saw_no_error = 10,
                     child_saw_other_error = 11, child_left_partial = 12 };
 
-TEST(BgzfFiles, FullDiskIsAnOutputErrorAndLeavesNoFile) {
+TEST(OutputFiles, FullDiskIsAnOutputErrorAndLeavesNoFile) {
   const std::string dir = make_temp_dir("output_full_disk");
   const std::string path = dir + "/scan.tsv.gz";
+  const std::string plain_path = dir + "/scan.log";
   pid_t child = fork();
   ASSERT_GE(child, 0);
   if (child == 0) {
@@ -298,10 +309,10 @@ TEST(BgzfFiles, FullDiskIsAnOutputErrorAndLeavesNoFile) {
     signal(SIGXFSZ, SIG_IGN);
     rlimit limit{256 * 1024, 256 * 1024};
     setrlimit(RLIMIT_FSIZE, &limit);
+    const std::string chunk = make_noisy_text(1 << 20, 7);
     int outcome = child_saw_no_error;
     try {
       BgzfTextFile file(path);
-      const std::string chunk = make_noisy_text(1 << 20, 7);
       for (int chunk_idx = 0; chunk_idx < 8; ++chunk_idx) file.write(chunk);
       file.commit(IndexKind::tabix_results);
     } catch (const Error& error) {
@@ -312,6 +323,20 @@ TEST(BgzfFiles, FullDiskIsAnOutputErrorAndLeavesNoFile) {
     if (outcome == child_saw_output_error && access((path + ".partial").c_str(), F_OK) == 0) {
       outcome = child_left_partial;
     }
+    if (outcome != child_saw_output_error) _exit(outcome);
+    outcome = child_saw_no_error;
+    try {
+      PlainTextFile file(plain_path);
+      file.write(chunk);
+      file.commit();
+    } catch (const Error& error) {
+      outcome = error.code() == ExitCode::output ? child_saw_output_error : child_saw_other_error;
+    } catch (...) {
+      outcome = child_saw_other_error;
+    }
+    if (outcome == child_saw_output_error && access((plain_path + ".partial").c_str(), F_OK) == 0) {
+      outcome = child_left_partial;
+    }
     _exit(outcome);
   }
   int status = 0;
@@ -320,6 +345,8 @@ TEST(BgzfFiles, FullDiskIsAnOutputErrorAndLeavesNoFile) {
   EXPECT_EQ(WEXITSTATUS(status), child_saw_output_error);
   EXPECT_FALSE(file_exists(path));
   EXPECT_FALSE(file_exists(path + ".partial"));
+  EXPECT_FALSE(file_exists(plain_path));
+  EXPECT_FALSE(file_exists(plain_path + ".partial"));
 }
 
 TEST(PlainFiles, CommitRenamesAndUncommittedIsRemoved) {
@@ -412,7 +439,7 @@ TEST(Sidecar, HoldsTheGwasSsfKeysAndTheDataChecksum) {
     }
     return false;
   };
-  // Key names from the GWAS-SSF metadata schema (GWAS Catalog).
+  // Key names from the GWAS-SSF metadata schema of the GWAS Catalog (from memory).
   EXPECT_TRUE(has_line("data_file_name: \"height.tsv.gz\""));
   EXPECT_TRUE(has_line("file_type: \"GWAS-SSF v1.0\""));
   EXPECT_TRUE(has_line("data_file_md5sum: \"" + md5sum_of(path) + "\""));

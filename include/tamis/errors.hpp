@@ -18,6 +18,7 @@ enum class ExitCode : int {
   genotype_input = 4,  // a VCF / VCF.gz / BCF file, its index, or its records
   model = 5,         // a trait or covariate set that cannot be analysed
   output = 6,        // results could not be written (permissions, full disk)
+  results_input = 7,  // a results file read back (report): damaged, edited or not from tamis
   interrupted = 130  // stopped by SIGINT or SIGTERM; no final file was written
 };
 

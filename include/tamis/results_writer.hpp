@@ -42,7 +42,7 @@ const std::vector<std::string>& result_columns();
 std::string result_header_line();  // the names joined by tabs, with '\n'
 void append_result_row(const ResultRow& row, std::string& out);  // one line with '\n'
 
-// p from ln p: plain "%.6g" when representable, else mantissa and exponent
+// p from ln p: plain "%.9g" when representable, else mantissa and exponent
 // from the logarithm ("3.2e-1088"); never "0".
 std::string format_p_value(double log_p);
 

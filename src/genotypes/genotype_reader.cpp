@@ -4,6 +4,7 @@
 
 #include <htslib/bgzf.h>
 #include <htslib/hts.h>
+#include <htslib/kseq.h>
 #include <htslib/tbx.h>
 #include <htslib/vcf.h>
 
@@ -179,6 +180,10 @@ std::string describe_sample_mismatch(const std::vector<std::string>& expected,
 std::string place_of_unparsed_line(htsFile* file) {
   if (hts_get_format(file)->format != vcf || file->line.l == 0) return "";
   std::string line(file->line.s, file->line.l);
+  // htslib's parser splits the line in place, turning tabs into NULs.
+  for (char& letter : line) {
+    if (letter == '\0') letter = '\t';
+  }
   std::vector<std::string> columns = split_on(line.substr(0, line.find('\n')), '\t');
   if (columns.size() < 2) return "";
   return columns[0] + ":" + columns[1];
@@ -280,7 +285,9 @@ std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& p
     throw_input_error(path, "not a VCF or BCF file (htslib sees: " + detected + ")",
                       "give a VCF, bgzip-compressed VCF or BCF file");
   }
-  if (input->handle->is_bgzf && bgzf_check_EOF(input->handle->fp.bgzf) == 0) {
+  // Plain gzip has no end-of-file marker; BGZF does, and a missing one means
+  // the copy stopped early.
+  if (format->compression == bgzf && bgzf_check_EOF(input->handle->fp.bgzf) == 0) {
     throw_input_error(path, "the BGZF end-of-file marker is missing, so the file is incomplete",
                       damaged_file_fix);
   }

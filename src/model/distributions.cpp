@@ -133,19 +133,22 @@ double log_student_t_two_sided(double t, double df) {
   const double abs_t = std::fabs(t);
   if (abs_t == 0.0) return 0.0;
   if (std::isinf(abs_t)) return -std::numeric_limits<double>::max();
-  // x = df / (df + t^2), y = t^2 / (df + t^2), without overflow for huge t.
+  // x = df / (df + t^2), y = t^2 / (df + t^2) and their logs, through the
+  // smaller of t^2/df and df/t^2 so that neither cancels nor overflows.
   double x, y, log_x, log_y;
-  if (abs_t <= 1.0) {
-    const double t2 = abs_t * abs_t;
-    x = df / (df + t2);
-    y = t2 / (df + t2);
-    log_x = -std::log1p(t2 / df);
-    log_y = std::log(y);
+  if (abs_t <= std::sqrt(df)) {
+    const double q = abs_t * (abs_t / df);  // t^2 / df <= 1
+    x = 1.0 / (1.0 + q);
+    y = q / (1.0 + q);
+    log_x = -std::log1p(q);
+    log_y = std::log(q) - std::log1p(q);
   } else {
-    const double ratio = df / abs_t / abs_t;  // df / t^2
+    const double ratio = (df / abs_t) / abs_t;  // df / t^2 < 1, may underflow for huge t
+    const double log_ratio =
+        ratio > 1e-300 ? std::log(ratio) : std::log(df) - 2.0 * std::log(abs_t);
     x = ratio / (1.0 + ratio);
     y = 1.0 / (1.0 + ratio);
-    log_x = std::log(df) - 2.0 * std::log(abs_t) - std::log1p(ratio);
+    log_x = log_ratio - std::log1p(ratio);
     log_y = -std::log1p(ratio);
   }
   return log_ibeta(x, y, log_x, log_y, df / 2.0, 0.5);

@@ -45,6 +45,13 @@ void append_optional_p_value(std::string& out, const std::optional<double>& log_
 
 void append_count(std::string& out, std::size_t value) { out += std::to_string(value); }
 
+// Matches format_p_value: a p-value written as "1" has -log10 p of exactly 0
+// (never "-0").
+double negative_log10_p(double log_p) {
+  if (log_p >= 0.0) return 0.0;
+  return -log_p / std::log(10.0);
+}
+
 bool is_autosome_code(const std::string& text) {
   if (text.empty() || text.size() > 2 || text[0] == '0') return false;
   for (char digit : text) {
@@ -88,20 +95,20 @@ std::string format_p_value(double log_p) {
   if (log_p >= 0.0) return "1";
   char buffer[48];
   if (log_p > smallest_direct_log_p) {
-    std::snprintf(buffer, sizeof buffer, "%.6g", std::exp(log_p));
+    std::snprintf(buffer, sizeof buffer, "%.9g", std::exp(log_p));
     return buffer;
   }
   const double log10_p = log_p / std::log(10.0);
   double exponent = std::floor(log10_p);
   double mantissa = std::pow(10.0, log10_p - exponent);
-  // Round to the six significant digits that "%.6g" shows, so that a mantissa
-  // of 9.9999996 becomes 1 with the exponent raised rather than "10e-1000".
-  mantissa = std::round(mantissa * 1e5) / 1e5;
+  // Round to the nine significant digits that "%.9g" shows, so that a mantissa
+  // of 9.9999999996 becomes 1 with the exponent raised rather than "10e-1000".
+  mantissa = std::round(mantissa * 1e8) / 1e8;
   if (mantissa >= 10.0) {
     mantissa /= 10.0;
     exponent += 1.0;
   }
-  std::snprintf(buffer, sizeof buffer, "%.6ge%d", mantissa, static_cast<int>(exponent));
+  std::snprintf(buffer, sizeof buffer, "%.9ge%d", mantissa, static_cast<int>(exponent));
   return buffer;
 }
 
@@ -135,7 +142,7 @@ void append_result_row(const ResultRow& row, std::string& out) {
   out += '\t';
   append_text(out, row.test);
   out += '\t';
-  append_number(out, -row.log_p / std::log(10.0));
+  append_number(out, negative_log10_p(row.log_p));
   out += '\t';
   append_number(out, row.score_chisq);
   out += '\t';

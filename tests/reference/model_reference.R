@@ -73,4 +73,9 @@ for (gname in c("g1", "g2")) {
                                pchisq(z^2, 1, lower.tail = FALSE, log.p = TRUE), lr,
                                pchisq(lr, 1, lower.tail = FALSE, log.p = TRUE), sc)), "}\n", sep = "")
   cat("// iterations:", b1$iter, " converged:", b1$converged, "\n")
+  # summary.glm's SE uses the weights of the last IRLS iteration's start; the SE
+  # at the converged fit itself is (X'WX)^-1 with W from fitted(b1):
+  Xf <- model.matrix(b1); wf <- fitted(b1) * (1 - fitted(b1))
+  cat("// SE at the converged fit, sqrt(diag(solve(t(X) %*% (X * w)))):",
+      sprintf("%.16e", sqrt(diag(solve(t(Xf) %*% (Xf * wf))))["g"]), "\n")
 }

@@ -1,0 +1,46 @@
+// tamis report: per-trait Manhattan and QQ plots (PNG and SVG), the genomic
+// inflation factor, lead loci by distance clumping, and one self-contained
+// HTML page, from finished results files.
+#pragma once
+
+#include <cstddef>
+#include <cstdint>
+#include <string>
+#include <vector>
+
+namespace tamis {
+
+struct ReportOptions {
+  std::vector<std::string> results;  // PREFIX.TRAIT.tsv.gz files, one trait each
+  std::string out_prefix;            // writes OUT.summary.tsv, OUT.loci.tsv, OUT.html, OUT.TRAIT.*.png/svg
+  double lead_threshold = 5e-8;      // a lead locus needs p below this
+  std::int64_t clump_window = 500000;  // bases either side of a lead that it takes
+  std::size_t label_limit = 20;      // lead loci named on each Manhattan plot (most significant first)
+  std::size_t page_loci_limit = 50;  // lead loci listed per trait on the HTML page (the .tsv has all)
+};
+
+// What was found for one trait, for the command to print.
+struct TraitReport {
+  std::string trait;
+  std::string results_path;
+  std::size_t n_variants = 0;
+  double lambda_gc = 0;  // NaN when no row has a score statistic
+  std::size_t n_lead_loci = 0;
+  std::size_t manhattan_points_drawn = 0;
+  std::size_t qq_points_drawn = 0;
+};
+
+struct ReportSummary {
+  std::vector<std::string> written_files;  // in the order written
+  std::vector<TraitReport> traits;
+};
+
+// Throws tamis::Error: usage for bad options, results_input for a malformed
+// results file, output when a file cannot be written.
+ReportSummary run_report(const ReportOptions& options);
+
+// lambda_GC = median(score chi-square) / 0.454936, the median of chi-square(1)
+// (Devlin & Roeder 1999). NaN values are ignored; NaN when none remain.
+double compute_lambda_gc(std::vector<float> score_chisq);
+
+}  // namespace tamis

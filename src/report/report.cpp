@@ -1,0 +1,182 @@
+// The report command: one pass per results file, then the tables and the page.
+#include "tamis/report.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <limits>
+#include <set>
+
+#include "report/html_page.hpp"
+#include "report/lead_loci.hpp"
+#include "report/manhattan_plot.hpp"
+#include "report/qq_plot.hpp"
+#include "report/trait_results.hpp"
+#include "tamis/errors.hpp"
+#include "tamis/results_writer.hpp"
+
+namespace tamis {
+
+namespace {
+
+// The median of chi-square(1): R 4.2.2, qchisq(0.5, 1) = 0.45493642311957283.
+constexpr double chisq1_median = 0.45493642311957283;
+
+void check_options(const ReportOptions& options) {
+  if (options.results.empty()) {
+    throw Error(ExitCode::usage, "", "no results files were given", "name one or more PREFIX.TRAIT.tsv.gz files");
+  }
+  if (!(options.lead_threshold > 0.0 && options.lead_threshold <= 1.0)) {
+    throw Error(ExitCode::usage, "", "the lead threshold must lie in (0, 1]",
+                "give a p-value such as 5e-8 (the genome-wide convention)");
+  }
+  if (options.clump_window < 0) {
+    throw Error(ExitCode::usage, "", "the clumping window must not be negative", "give a distance such as 500 kb");
+  }
+  if (options.out_prefix.empty()) {
+    throw Error(ExitCode::usage, "", "no output prefix was given", "name one, for example results/cohort.report");
+  }
+  check_output_prefix_writable(options.out_prefix);
+}
+
+// Trait names become parts of file names; anything but letters, digits, '.',
+// '-' and '_' is replaced, and a repeated name gets a number.
+std::string file_stem_for(const std::string& trait, std::set<std::string>& used) {
+  std::string stem;
+  for (char letter : trait) {
+    bool plain = (letter >= 'a' && letter <= 'z') || (letter >= 'A' && letter <= 'Z') ||
+                 (letter >= '0' && letter <= '9') || letter == '.' || letter == '-' || letter == '_';
+    stem += plain ? letter : '_';
+  }
+  if (stem.empty()) stem = "trait";
+  std::string unique = stem;
+  for (int copy = 2; used.count(unique) > 0; ++copy) unique = stem + "-" + std::to_string(copy);
+  used.insert(unique);
+  return unique;
+}
+
+std::string format_number(double value, const char* format) {
+  if (std::isnan(value)) return "#NA";
+  char text[64];
+  std::snprintf(text, sizeof text, format, value);
+  return text;
+}
+
+std::string summary_line(const report::TraitResults& results, const TraitReport& trait) {
+  return trait.trait + '\t' + std::to_string(trait.n_variants) + '\t' + format_number(trait.lambda_gc, "%.9g") +
+         '\t' + std::to_string(results.n_below_genome_wide) + '\t' + std::to_string(trait.n_lead_loci) + '\t' +
+         format_number(results.max_neg_log_10_p, "%.9g") + '\t' + std::to_string(results.n_discordant) + '\n';
+}
+
+report::LocusRow make_locus_row(const report::TraitResults& results, const report::LeadLocus& lead) {
+  const report::LeadCandidate& candidate = results.candidates[lead.candidate_idx];
+  report::LocusRow row;
+  row.trait = results.trait;
+  row.chromosome = results.chromosome_names[results.chromosome_of[candidate.variant_idx]];
+  row.lead_position = results.position_of[candidate.variant_idx];
+  row.lead_variant_id = candidate.variant_id;
+  row.lead_rsid = candidate.rsid;
+  row.p_value = candidate.p_value_text;
+  row.neg_log_10_p_value = candidate.neg_log_10_p_text;
+  row.beta = candidate.beta_text;
+  row.span_start = lead.span_start;
+  row.span_end = lead.span_end;
+  row.n_variants = lead.n_variants;
+  return row;
+}
+
+std::string locus_line(const report::LocusRow& row) {
+  return row.trait + '\t' + row.chromosome + '\t' + std::to_string(row.lead_position) + '\t' + row.lead_variant_id +
+         '\t' + row.lead_rsid + '\t' + row.p_value + '\t' + row.neg_log_10_p_value + '\t' + row.beta + '\t' +
+         std::to_string(row.span_start) + '\t' + std::to_string(row.span_end) + '\t' + std::to_string(row.n_variants) +
+         '\n';
+}
+
+void write_text(const std::string& path, const std::string& text, ReportSummary& summary) {
+  PlainTextFile file(path);
+  file.write(text);
+  file.commit();
+  summary.written_files.push_back(path);
+}
+
+}  // namespace
+
+double compute_lambda_gc(std::vector<float> score_chisq) {
+  score_chisq.erase(std::remove_if(score_chisq.begin(), score_chisq.end(), [](float value) { return std::isnan(value); }),
+                    score_chisq.end());
+  if (score_chisq.empty()) return std::numeric_limits<double>::quiet_NaN();
+  const std::size_t middle = score_chisq.size() / 2;
+  std::nth_element(score_chisq.begin(), score_chisq.begin() + middle, score_chisq.end());
+  double median = score_chisq[middle];
+  if (score_chisq.size() % 2 == 0) {
+    const double below = *std::max_element(score_chisq.begin(), score_chisq.begin() + middle);
+    median = 0.5 * (below + median);
+  }
+  return median / chisq1_median;
+}
+
+ReportSummary run_report(const ReportOptions& options) {
+  check_options(options);
+  ReportSummary summary;
+  report::PageContent page;
+  std::string summary_text = "trait\tn_variants\tlambda_gc\tn_below_5e-8\tn_lead_loci\tmax_neg_log_10_p\tn_discordant\n";
+  std::string loci_text =
+      "trait\tchromosome\tlead_position\tlead_variant_id\tlead_rsid\tp_value\tneg_log_10_p_value\tbeta\tspan_start\t"
+      "span_end\tn_variants\n";
+  std::set<std::string> used_stems;
+
+  for (const std::string& path : options.results) {
+    report::TraitResults results = report::load_trait_results(path, options.lead_threshold);
+    TraitReport trait;
+    trait.trait = results.trait;
+    trait.results_path = path;
+    trait.n_variants = results.n_rows;
+    trait.lambda_gc = compute_lambda_gc(std::move(results.score_chisq_of));
+    results.score_chisq_of = {};
+    const std::vector<report::LeadLocus> leads = report::clump_lead_loci(results, options.clump_window);
+    trait.n_lead_loci = leads.size();
+
+    const std::string stem = options.out_prefix + "." + file_stem_for(results.trait, used_stems);
+    report::TraitSection section;
+    section.trait = results.trait;
+    section.results_path = path;
+    section.log_path = results.log_path;
+    section.manhattan_png = stem + ".manhattan.png";
+    section.qq_png = stem + ".qq.png";
+    report::ManhattanFacts facts;
+    facts.lambda_gc = trait.lambda_gc;
+    facts.label_limit = options.label_limit;
+    trait.manhattan_points_drawn =
+        report::render_manhattan(results, leads, facts, section.manhattan_png, stem + ".manhattan.svg");
+    trait.qq_points_drawn = report::render_qq(results, trait.lambda_gc, section.qq_png, stem + ".qq.svg");
+    for (const char* written : {".manhattan.png", ".manhattan.svg", ".qq.png", ".qq.svg"}) {
+      summary.written_files.push_back(stem + written);
+    }
+
+    summary_text += summary_line(results, trait);
+    for (const report::LeadLocus& lead : leads) {
+      report::LocusRow row = make_locus_row(results, lead);
+      loci_text += locus_line(row);
+      if (section.loci.size() < options.page_loci_limit) section.loci.push_back(std::move(row));
+    }
+    section.n_loci_total = leads.size();
+    section.summary_cells = {results.trait,
+                             std::to_string(trait.n_variants),
+                             format_number(trait.lambda_gc, "%.4f"),
+                             std::to_string(results.n_below_genome_wide),
+                             std::to_string(trait.n_lead_loci),
+                             format_number(results.max_neg_log_10_p, "%.2f"),
+                             std::to_string(results.n_discordant)};
+    page.sections.push_back(std::move(section));
+    summary.traits.push_back(trait);
+  }
+
+  write_text(options.out_prefix + ".summary.tsv", summary_text, summary);
+  write_text(options.out_prefix + ".loci.tsv", loci_text, summary);
+  page.lead_threshold = options.lead_threshold;
+  page.clump_window = options.clump_window;
+  write_text(options.out_prefix + ".html", report::compose_html_page(page), summary);
+  return summary;
+}
+
+}  // namespace tamis
