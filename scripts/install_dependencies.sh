@@ -7,6 +7,7 @@ packages=(
   libhts-dev libeigen3-dev libtbb-dev libcli11-dev zlib1g-dev
   libgtest-dev libbenchmark-dev
   r-base-core bcftools tabix
+  libcairo2-dev python3-pandas python3-matplotlib
 )
 missing=()
 for package in "${packages[@]}"; do

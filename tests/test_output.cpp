@@ -439,9 +439,11 @@ TEST(Sidecar, HoldsTheGwasSsfKeysAndTheDataChecksum) {
     }
     return false;
   };
-  // Key names from the GWAS-SSF metadata schema of the GWAS Catalog (from memory).
+  // Key names and nesting from the GWAS-SSF metadata schema
+  // (schema/metadata-yamale-schema.yaml in the GWAS Catalog's
+  // gwas-summary-statistics-standard repository).
   EXPECT_TRUE(has_line("data_file_name: \"height.tsv.gz\""));
-  EXPECT_TRUE(has_line("file_type: \"GWAS-SSF v1.0\""));
+  EXPECT_TRUE(has_line("file_type: \"GWAS-SSF v1.1\""));
   EXPECT_TRUE(has_line("data_file_md5sum: \"" + md5sum_of(path) + "\""));
   EXPECT_TRUE(has_line("genome_assembly: \"GRCh38\""));
   EXPECT_TRUE(has_line("coordinate_system: 1-based"));
@@ -452,9 +454,11 @@ TEST(Sidecar, HoldsTheGwasSsfKeysAndTheDataChecksum) {
   EXPECT_TRUE(has_line("  - \"PC1\""));
   EXPECT_TRUE(has_line("trait_description:"));
   EXPECT_TRUE(has_line("  - \"standing height: \\\"adult\\\"\""));
-  EXPECT_TRUE(has_line("sample_size: 1000"));
-  EXPECT_TRUE(has_line("case_count: 300"));
-  EXPECT_TRUE(has_line("control_count: 700"));
+  EXPECT_TRUE(has_line("samples:"));
+  EXPECT_TRUE(has_line("  - sample_size: 1000"));
+  EXPECT_TRUE(has_line("    case_control_study: true"));
+  EXPECT_TRUE(has_line("    case_count: 300"));
+  EXPECT_TRUE(has_line("    control_count: 700"));
   EXPECT_TRUE(has_line("shard: 3/10"));
   EXPECT_TRUE(has_line("note: \"a: b # c\""));
 }

@@ -20,6 +20,11 @@ struct ConfirmResult {
 };
 
 // `genotype` holds the variant's imputed dosages for the null model's samples.
+// Logistic refits start from (null coefficients, 0), halve steps when the
+// deviance rises and stop after 100 iterations; a diverging fit (separation)
+// returns converged = false with the last finite values, never NaN or inf.
+// A genotype in the covariate span (not estimable) returns converged = false
+// with every statistic 0 (ln p = 0).
 ConfirmResult confirm_variant(const NullModel& model, const Eigen::VectorXd& genotype);
 
 }  // namespace tamis

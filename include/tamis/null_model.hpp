@@ -36,11 +36,13 @@ struct NullModel {
   int column_count() const { return static_cast<int>(design.cols()); }
 };
 
-// Fits the null model. Columns of `design` that are exactly collinear with
+// Fits the null model. `design` comes with its intercept (a column of ones)
+// as column 0; a binary trait is coded 0/1. Columns of `design` that are exactly collinear with
 // earlier columns (relative tolerance 1e-9 after orthogonalisation) are
 // dropped and listed in dropped_columns. Throws tamis::Error (ExitCode::model)
 // naming the trait when no residual degrees of freedom remain (n <= p + 1),
-// when the trait is constant, or when a logistic fit does not converge.
+// when the trait is constant, or when a logistic fit does not converge or
+// separates cases from controls (the message names the likely covariate).
 NullModel fit_null_model(const std::string& trait_name, TraitKind kind,
                          const Eigen::VectorXd& y, const Eigen::MatrixXd& design,
                          const std::vector<std::string>& column_names);

@@ -14,9 +14,10 @@ struct ScoreResult {
   double v = 0.0;       // variance of U under the null
   double chisq = 0.0;   // U^2 / V
   double log_p = 0.0;   // ln P(chi2_1 > chisq)
-  double beta = 0.0;    // one-step estimate U / V'
-  double se = 0.0;      // 1 / sqrt(V')
-  bool testable = true; // false when V is zero (the variant lies in the covariate span)
+  double beta = 0.0;    // one-step estimate U / V' (V' = V / sigma^2 linear, V logistic)
+  double se = 0.0;      // its SE: sqrt(sigma^2 / V') linear, 1 / sqrt(V') logistic; (beta/se)^2 = chisq
+  bool testable = true; // false when V is zero (the variant lies in the covariate span);
+                        // then chisq = log_p = beta = se = v = 0
 };
 
 // Reused per thread so that a scan allocates nothing per block.

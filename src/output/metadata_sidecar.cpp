@@ -9,7 +9,10 @@ namespace tamis {
 
 namespace {
 
-constexpr const char* ssf_file_type = "GWAS-SSF v1.0";
+// The data file follows the v1.1 column set; the sample block follows the
+// standard's metadata schema (schema/metadata-yamale-schema.yaml of the
+// GWAS-SSF repository), where sizes and case counts sit under `samples`.
+constexpr const char* ssf_file_type = "GWAS-SSF v1.1";
 
 // Double-quoted YAML scalars accept any text once backslash, quote and
 // control characters are escaped, so every free-text value is written so.
@@ -94,10 +97,12 @@ std::string sidecar_text(const std::string& data_path, const SidecarFields& fiel
   }
   text += "trait_description:\n";
   text += "  - " + quote_yaml(fields.trait_description) + "\n";
-  text += "sample_size: " + std::to_string(fields.sample_size) + "\n";
-  if (fields.case_count) text += "case_count: " + std::to_string(*fields.case_count) + "\n";
+  text += "samples:\n";
+  text += "  - sample_size: " + std::to_string(fields.sample_size) + "\n";
+  text += std::string("    case_control_study: ") + (fields.case_count ? "true" : "false") + "\n";
+  if (fields.case_count) text += "    case_count: " + std::to_string(*fields.case_count) + "\n";
   if (fields.control_count) {
-    text += "control_count: " + std::to_string(*fields.control_count) + "\n";
+    text += "    control_count: " + std::to_string(*fields.control_count) + "\n";
   }
   for (const auto& [key, value] : fields.extra) {
     assert(is_plain_yaml_key(key) && "extra sidecar keys are chosen by tamis, not the user");

@@ -72,9 +72,10 @@ void draw_background(cairo_t* cairo, const ManhattanLayout& layout) {
   set_colour(cairo, colours::band);
   for (std::size_t strip_idx = 1; strip_idx < layout.strips.size(); strip_idx += 2) {
     const ChromosomeStrip& strip = layout.strips[strip_idx];
-    const double half_gap = layout.strips.size() > 1 ? strip_gap / 2 : 0;
-    cairo_rectangle(cairo, strip.x_start - half_gap, frame.top, strip.x_end - strip.x_start + 2 * half_gap,
-                    frame.height());
+    const bool last = strip_idx + 1 == layout.strips.size();
+    const double left = (layout.strips[strip_idx - 1].x_end + strip.x_start) / 2;
+    const double right = last ? frame.right : (strip.x_end + layout.strips[strip_idx + 1].x_start) / 2;
+    cairo_rectangle(cairo, left, frame.top, right - left, frame.height());
   }
   cairo_fill(cairo);
 }
@@ -256,14 +257,16 @@ ManhattanLayout lay_out_manhattan(const TraitResults& results) {
   if (count == 0) return layout;
   // Many contigs (as-is mode) shrink the gaps and the narrowest strip.
   const double gap = std::min(strip_gap, 0.1 * layout.frame.width() / count);
-  const double available = layout.frame.width() - gap * (count - 1);
+  // Inset so that the outermost dots are not cut by the panel's edge.
+  const double inset = 8.0;
+  const double available = layout.frame.width() - 2 * inset - gap * (count - 1);
   const double narrowest = std::min(narrowest_strip, 0.5 * available / count);
   std::vector<double> lengths;
   for (const ChromosomeStrip& strip : layout.strips) {
     lengths.push_back(std::max<double>(1.0, static_cast<double>(strip.last_position - strip.first_position)));
   }
   std::vector<double> widths = strip_widths(lengths, available, narrowest);
-  double x = layout.frame.left;
+  double x = layout.frame.left + inset;
   for (std::size_t strip_idx = 0; strip_idx < count; ++strip_idx) {
     layout.strips[strip_idx].x_start = x;
     layout.strips[strip_idx].x_end = x + widths[strip_idx];

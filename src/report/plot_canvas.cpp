@@ -92,7 +92,7 @@ std::vector<double> choose_ticks(double top, int wanted) {
   const double rough = std::max(top, 1e-9) / wanted;
   const double magnitude = std::pow(10.0, std::floor(std::log10(rough)));
   double step = magnitude;
-  for (double factor : {1.0, 2.0, 2.5, 5.0, 10.0}) {
+  for (double factor : {1.0, 2.0, 5.0, 10.0}) {
     step = factor * magnitude;
     if (step >= rough) break;
   }

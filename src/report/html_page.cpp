@@ -1,0 +1,183 @@
+#include "report/html_page.hpp"
+
+#include <cstdio>
+#include <fstream>
+#include <set>
+#include <sstream>
+
+#include "tamis/errors.hpp"
+
+namespace tamis::report {
+
+namespace {
+
+constexpr std::size_t longest_log_header = 400;  // lines; a header is a few dozen
+
+const char* const page_style = R"(
+body { font-family: "DejaVu Sans", Verdana, sans-serif; background: #fcfbf7; color: #262629;
+       margin: 0 auto; max-width: 1840px; padding: 24px 32px 48px; }
+h1 { font-size: 26px; margin: 0 0 4px; }
+h2 { font-size: 21px; margin: 36px 0 10px; border-bottom: 2px solid #1d6f7a; padding-bottom: 4px; }
+h3 { font-size: 16px; margin: 18px 0 6px; color: #461f58; }
+p.note { color: #6b6e74; font-size: 13px; margin: 4px 0 12px; }
+table { border-collapse: collapse; font-size: 13px; margin: 6px 0 12px; }
+th { background: #e8efef; text-align: left; padding: 5px 10px; border-bottom: 1px solid #b9c9cb; }
+td { padding: 4px 10px; border-bottom: 1px solid #e4e1d8; font-variant-numeric: tabular-nums; }
+td.number { text-align: right; }
+.plots { display: flex; flex-wrap: wrap; gap: 16px; align-items: flex-start; }
+.plots img.manhattan { width: 100%; max-width: 1800px; height: auto; }
+.plots img.qq { width: 520px; height: auto; }
+pre { background: #f3f1ea; border: 1px solid #e0dccf; padding: 10px 12px; font-size: 12px;
+      overflow-x: auto; white-space: pre-wrap; }
+)";
+
+std::string read_binary_file(const std::string& path) {
+  std::ifstream file(path, std::ios::binary);
+  if (!file) {
+    throw Error(ExitCode::output, path, "cannot read back the plot to inline it in the page",
+                "check that nothing removed the file while the report ran");
+  }
+  std::ostringstream bytes;
+  bytes << file.rdbuf();
+  return bytes.str();
+}
+
+std::string png_image(const std::string& path, const std::string& css_class, const std::string& description) {
+  return "<img class=\"" + css_class + "\" alt=\"" + escape_html(description) + "\" src=\"data:image/png;base64," +
+         encode_base64(read_binary_file(path)) + "\">\n";
+}
+
+std::string cell(const std::string& text, bool number = false) {
+  return std::string(number ? "<td class=\"number\">" : "<td>") + escape_html(text) + "</td>";
+}
+
+std::string header_row(const std::vector<std::string>& names) {
+  std::string row = "<tr>";
+  for (const std::string& name : names) row += "<th>" + escape_html(name) + "</th>";
+  return row + "</tr>\n";
+}
+
+std::string summary_table(const PageContent& page) {
+  std::string html = "<table class=\"summary\">\n";
+  html += header_row({"trait", "variants", "\u03bb (genomic control)", "p < 5e-8", "lead loci",
+                      "max \u2212log10 p", "tests discordant > 1 log10"});
+  for (const TraitSection& section : page.sections) {
+    html += "<tr>";
+    for (std::size_t cell_idx = 0; cell_idx < section.summary_cells.size(); ++cell_idx) {
+      html += cell(section.summary_cells[cell_idx], cell_idx > 0);
+    }
+    html += "</tr>\n";
+  }
+  return html + "</table>\n";
+}
+
+std::string loci_table(const TraitSection& section) {
+  if (section.loci.empty()) return "<p class=\"note\">No variant passes the lead threshold.</p>\n";
+  std::string html = "<table class=\"loci\">\n";
+  html += header_row({"chromosome", "lead position", "lead variant", "rsid", "p", "\u2212log10 p", "beta",
+                      "locus start", "locus end", "variants"});
+  for (const LocusRow& row : section.loci) {
+    html += "<tr>" + cell(row.chromosome) + cell(std::to_string(row.lead_position), true) +
+            cell(row.lead_variant_id) + cell(row.lead_rsid == "#NA" ? "" : row.lead_rsid) + cell(row.p_value, true) +
+            cell(row.neg_log_10_p_value, true) + cell(row.beta, true) + cell(std::to_string(row.span_start), true) +
+            cell(std::to_string(row.span_end), true) + cell(std::to_string(row.n_variants), true) + "</tr>\n";
+  }
+  html += "</table>\n";
+  if (section.n_loci_total > section.loci.size()) {
+    html += "<p class=\"note\">The " + std::to_string(section.loci.size()) + " most significant of " +
+            std::to_string(section.n_loci_total) + " lead loci; the loci table file lists them all.</p>\n";
+  }
+  return html;
+}
+
+std::string log_section(const PageContent& page) {
+  std::string html;
+  std::set<std::string> shown;
+  for (const TraitSection& section : page.sections) {
+    if (!shown.insert(section.log_path).second) continue;
+    const std::vector<std::string> lines = read_log_header(section.log_path);
+    if (lines.empty()) continue;
+    html += "<h3>" + escape_html(section.log_path) + "</h3>\n<pre>";
+    for (const std::string& line : lines) html += escape_html(line) + "\n";
+    html += "</pre>\n";
+  }
+  if (html.empty()) return "";
+  return "<h2>Run log</h2>\n<p class=\"note\">The opening lines of each scan's log: command, version, inputs, "
+         "samples and null models.</p>\n" + html;
+}
+
+}  // namespace
+
+std::string encode_base64(const std::string& bytes) {
+  static const char alphabet[] = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+  std::string encoded;
+  encoded.reserve((bytes.size() + 2) / 3 * 4);
+  std::size_t byte_idx = 0;
+  for (; byte_idx + 2 < bytes.size(); byte_idx += 3) {
+    const unsigned group = (static_cast<unsigned char>(bytes[byte_idx]) << 16) |
+                           (static_cast<unsigned char>(bytes[byte_idx + 1]) << 8) |
+                           static_cast<unsigned char>(bytes[byte_idx + 2]);
+    for (int shift = 18; shift >= 0; shift -= 6) encoded += alphabet[(group >> shift) & 0x3f];
+  }
+  const std::size_t left = bytes.size() - byte_idx;
+  if (left > 0) {
+    unsigned group = static_cast<unsigned char>(bytes[byte_idx]) << 16;
+    if (left == 2) group |= static_cast<unsigned char>(bytes[byte_idx + 1]) << 8;
+    encoded += alphabet[(group >> 18) & 0x3f];
+    encoded += alphabet[(group >> 12) & 0x3f];
+    encoded += left == 2 ? alphabet[(group >> 6) & 0x3f] : '=';
+    encoded += '=';
+  }
+  return encoded;
+}
+
+std::string escape_html(const std::string& text) {
+  std::string escaped;
+  for (char letter : text) {
+    switch (letter) {
+      case '&': escaped += "&amp;"; break;
+      case '<': escaped += "&lt;"; break;
+      case '>': escaped += "&gt;"; break;
+      case '"': escaped += "&quot;"; break;
+      default: escaped += letter;
+    }
+  }
+  return escaped;
+}
+
+std::vector<std::string> read_log_header(const std::string& log_path) {
+  std::vector<std::string> lines;
+  std::ifstream log(log_path);
+  std::string line;
+  while (std::getline(log, line) && lines.size() < longest_log_header) {
+    if (line.compare(0, 5, "read ") == 0) break;
+    if (!line.empty() && line.back() == '\r') line.pop_back();
+    lines.push_back(line);
+  }
+  return lines;
+}
+
+std::string compose_html_page(const PageContent& page) {
+  std::string html = "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n";
+  html += "<title>tamis report</title>\n<style>" + std::string(page_style) + "</style>\n</head>\n<body>\n";
+  html += "<h1>tamis report</h1>\n";
+  char criteria[200];
+  std::snprintf(criteria, sizeof criteria,
+                "Lead loci: p &lt; %g, each lead taking the variants within %lld bases on its chromosome. "
+                "Lines on the Manhattan plots: p = 5e-8 (genome-wide) and 1e-5 (suggestive).",
+                page.lead_threshold, static_cast<long long>(page.clump_window));
+  html += "<p class=\"note\">" + std::string(criteria) + "</p>\n";
+  html += "<h2>Summary</h2>\n" + summary_table(page);
+  for (const TraitSection& section : page.sections) {
+    html += "<h2>" + escape_html(section.trait) + "</h2>\n";
+    html += "<p class=\"note\">" + escape_html(section.results_path) + "</p>\n<div class=\"plots\">\n";
+    html += png_image(section.manhattan_png, "manhattan", "Manhattan plot of " + section.trait);
+    html += png_image(section.qq_png, "qq", "QQ plot of " + section.trait);
+    html += "</div>\n<h3>Lead loci</h3>\n" + loci_table(section);
+  }
+  html += log_section(page);
+  html += "</body>\n</html>\n";
+  return html;
+}
+
+}  // namespace tamis::report

@@ -1,0 +1,42 @@
+// The report page: one HTML file with the plots inlined as PNG data URIs, the
+// summary and lead loci tables and the run logs' headers; nothing external.
+#pragma once
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+namespace tamis::report {
+
+struct LocusRow {
+  std::string trait, chromosome;
+  std::int64_t lead_position = 0;
+  std::string lead_variant_id, lead_rsid, p_value, neg_log_10_p_value, beta;
+  std::int64_t span_start = 0, span_end = 0;
+  std::size_t n_variants = 0;
+};
+
+struct TraitSection {
+  std::string trait, results_path, log_path;
+  std::string manhattan_png, qq_png;     // read back and inlined
+  std::vector<std::string> summary_cells;  // in the summary table's column order
+  std::vector<LocusRow> loci;            // the most significant, up to the page limit
+  std::size_t n_loci_total = 0;
+};
+
+struct PageContent {
+  std::vector<TraitSection> sections;
+  double lead_threshold = 5e-8;
+  std::int64_t clump_window = 500000;
+};
+
+std::string compose_html_page(const PageContent& page);
+
+// Pieces, exposed for the tests.
+std::string encode_base64(const std::string& bytes);
+std::string escape_html(const std::string& text);
+// The lines of a run log before its first "read " line (command, version,
+// inputs, samples, null models); empty when the log cannot be read.
+std::vector<std::string> read_log_header(const std::string& log_path);
+
+}  // namespace tamis::report
