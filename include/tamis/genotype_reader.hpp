@@ -27,6 +27,7 @@ struct VariantSite {
   std::size_t file_index = 0;
   std::uint64_t record_number = 0;  // 1-based record number within its file
   DosageField source = DosageField::gt;  // the FORMAT field the dosages came from
+  bool has_hard_calls = false;  // the record has GT, so ploidy and diploid_calls are filled
 };
 
 // Decoded dosages for a run of sites, site-major: the dosage of site v for
@@ -35,14 +36,27 @@ struct DosageBlock {
   std::size_t sample_count = 0;
   std::vector<VariantSite> sites;
   std::vector<double> dosages;
+  // Site-major like dosages, filled for sites with has_hard_calls: the number
+  // of called alleles in the sample's GT (0 when the call is missing), and for
+  // a fully called diploid GT the count of the tested allele (0, 1, 2), else -1.
+  std::vector<std::uint8_t> ploidy;
+  std::vector<std::int8_t> diploid_calls;
 
   std::size_t size() const { return sites.size(); }
   const double* site_dosages(std::size_t site_idx) const {
     return dosages.data() + site_idx * sample_count;
   }
+  const std::uint8_t* site_ploidy(std::size_t site_idx) const {
+    return ploidy.data() + site_idx * sample_count;
+  }
+  const std::int8_t* site_diploid_calls(std::size_t site_idx) const {
+    return diploid_calls.data() + site_idx * sample_count;
+  }
   void clear() {
     sites.clear();
     dosages.clear();
+    ploidy.clear();
+    diploid_calls.clear();
   }
 };
 
