@@ -32,7 +32,7 @@ std::vector<std::string> lines_of(const std::string& text) {
 std::string without_file_name(const std::string& yaml) {
   std::string kept;
   for (const std::string& line : lines_of(yaml)) {
-    if (line.rfind("data_file_name", 0) != 0) kept += line + "\n";
+    if (line.rfind("data_file_name", 0) != 0 && line.rfind("#", 0) != 0) kept += line + "\n";
   }
   return kept;
 }

@@ -27,12 +27,7 @@ std::string fixture(const std::string& name) {
   return testing::source_dir() + "/test_data/" + name;
 }
 
-DosageBlock read_all(const std::vector<std::string>& paths,
-                     DosageField field = DosageField::automatic, int io_threads = 0) {
-  GenotypeReaderOptions options;
-  options.paths = paths;
-  options.field = field;
-  options.io_threads = io_threads;
+DosageBlock read_with(const GenotypeReaderOptions& options) {
   GenotypeReader reader(options);
   DosageBlock block;
   RecordBatch batch;
@@ -41,6 +36,15 @@ DosageBlock read_all(const std::vector<std::string>& paths,
   while (reader.read_batch(batch, 2) > 0) batch.decode(block);
   EXPECT_EQ(reader.read_batch(batch, 2), 0u);
   return block;
+}
+
+DosageBlock read_all(const std::vector<std::string>& paths,
+                     DosageField field = DosageField::automatic, int io_threads = 0) {
+  GenotypeReaderOptions options;
+  options.paths = paths;
+  options.field = field;
+  options.io_threads = io_threads;
+  return read_with(options);
 }
 
 // The same data as VCF.gz (bgzip 1.16) and BCF (bcftools 1.16 view -Ob), each
@@ -156,7 +160,10 @@ void expect_identical_blocks(const DosageBlock& left, const DosageBlock& right) 
     EXPECT_EQ(a.allele_index, b.allele_index);
     EXPECT_EQ(a.record_number, b.record_number);
     EXPECT_EQ(a.source, b.source);
+    EXPECT_EQ(a.has_hard_calls, b.has_hard_calls);
   }
+  EXPECT_EQ(left.ploidy, right.ploidy);
+  EXPECT_EQ(left.diploid_calls, right.diploid_calls);
   ASSERT_EQ(left.dosages.size(), right.dosages.size());
   for (std::size_t value_idx = 0; value_idx < left.dosages.size(); ++value_idx) {
     const double a = left.dosages[value_idx], b = right.dosages[value_idx];
@@ -344,8 +351,150 @@ TEST(GenotypeDosages, DistinctBatchesDecodeInParallel) {
   for (const DosageBlock& part : parallel) {
     joined.sites.insert(joined.sites.end(), part.sites.begin(), part.sites.end());
     joined.dosages.insert(joined.dosages.end(), part.dosages.begin(), part.dosages.end());
+    joined.ploidy.insert(joined.ploidy.end(), part.ploidy.begin(), part.ploidy.end());
+    joined.diploid_calls.insert(joined.diploid_calls.end(), part.diploid_calls.begin(),
+                                part.diploid_calls.end());
   }
   expect_identical_blocks(serial, joined);
+}
+
+// ---- hard calls -------------------------------------------------------------
+
+// What a GT string as bcftools prints it says about one ALT allele: the
+// called alleles (not '.') and, for a fully called diploid GT, the copies.
+struct ExpectedCall {
+  int ploidy = 0;
+  int diploid_call = -1;
+};
+
+ExpectedCall expected_call(const std::string& call, int allele) {
+  ExpectedCall expected;
+  const std::vector<std::string> parts = split_any(call, "/|");
+  int copies = 0;
+  bool any_missing = false;
+  for (const std::string& part : parts) {
+    if (part == ".") {
+      any_missing = true;
+      continue;
+    }
+    ++expected.ploidy;
+    copies += std::stoi(part) == allele;
+  }
+  if (parts.size() == 2 && !any_missing) expected.diploid_call = copies;
+  return expected;
+}
+
+// Each record of `calls` (bcftools query '[%GT\t]\n') against the hard calls
+// of the sites decoded from it; a record that `record_has_gt` marks false has
+// no GT, so its sites carry ploidy 0 and no call.
+void expect_calls_match_table(const DosageBlock& block, const std::string& calls,
+                              const std::vector<bool>& record_has_gt) {
+  ASSERT_EQ(block.ploidy.size(), block.dosages.size());
+  ASSERT_EQ(block.diploid_calls.size(), block.dosages.size());
+  std::size_t site_idx = 0;
+  std::size_t record_idx = 0;
+  for (const auto& cells : split_table(calls)) {
+    ASSERT_LT(site_idx, block.size());
+    ASSERT_LT(record_idx, record_has_gt.size());
+    const int alt_count = block.sites[site_idx].alt_count;
+    for (int allele = 1; allele <= alt_count; ++allele, ++site_idx) {
+      const VariantSite& site = block.sites[site_idx];
+      EXPECT_EQ(site.has_hard_calls, record_has_gt[record_idx]) << site.position;
+      for (std::size_t sample_idx = 0; sample_idx < cells.size(); ++sample_idx) {
+        const ExpectedCall expected = record_has_gt[record_idx] ? expected_call(cells[sample_idx], allele)
+                                                                : ExpectedCall{};
+        const std::string context = site.chromosome + ":" + std::to_string(site.position) + " allele " +
+                                    std::to_string(allele) + " sample " + std::to_string(sample_idx + 1) +
+                                    " GT " + cells[sample_idx];
+        EXPECT_EQ(block.site_ploidy(site_idx)[sample_idx], expected.ploidy) << context;
+        EXPECT_EQ(block.site_diploid_calls(site_idx)[sample_idx], expected.diploid_call) << context;
+      }
+    }
+    ++record_idx;
+  }
+  EXPECT_EQ(site_idx, block.size());
+}
+
+TEST(GenotypeHardCalls, GtCallsMatchBcftoolsQueryInEveryFormat) {
+  const std::string dir = make_temp_dir("genotypes_hard_calls_gt");
+  const FormatCopies copies = make_format_copies(fixture("genotypes_gt.vcf"), dir);
+  // The calls as bcftools 1.16 prints them; ploidy and copies follow from the strings.
+  const std::string calls = capture_command("bcftools query -f '[%GT\\t]\\n' '" + copies.vcf + "'");
+  for (const std::string& path : {copies.vcf, copies.vcf_gz, copies.bcf}) {
+    SCOPED_TRACE(path);
+    expect_calls_match_table(read_all({path}), calls, std::vector<bool>(7, true));
+  }
+}
+
+TEST(GenotypeHardCalls, HandWorkedCallsOfMixedPloidyRecords) {
+  const DosageBlock block = read_all({fixture("genotypes_gt.vcf")});
+  ASSERT_EQ(block.size(), 9u);
+  // Hand-worked from the fixture. 1:300: 0/. 1|1 . 0/1
+  EXPECT_EQ(std::vector<int>(block.site_ploidy(3), block.site_ploidy(3) + 4),
+            (std::vector<int>{1, 2, 0, 2}));
+  EXPECT_EQ(std::vector<int>(block.site_diploid_calls(3), block.site_diploid_calls(3) + 4),
+            (std::vector<int>{-1, 2, -1, 1}));
+  // X:2000 T A,G with calls 2 1 ./1 1/2; allele G (index 2) is site 8.
+  EXPECT_EQ(std::vector<int>(block.site_ploidy(8), block.site_ploidy(8) + 4),
+            (std::vector<int>{1, 1, 1, 2}));
+  EXPECT_EQ(std::vector<int>(block.site_diploid_calls(7), block.site_diploid_calls(7) + 4),
+            (std::vector<int>{-1, -1, -1, 1}));
+  EXPECT_EQ(std::vector<int>(block.site_diploid_calls(8), block.site_diploid_calls(8) + 4),
+            (std::vector<int>{-1, -1, -1, 1}));
+}
+
+TEST(GenotypeHardCalls, FilledAlongsideDsAndGpDosages) {
+  // Which records carry GT, read off the fixtures' FORMAT columns: in the DS
+  // fixture 2:50 has GQ:DS only; in the GP fixture 1:200 has GP only.
+  const std::vector<std::pair<std::string, std::vector<bool>>> fixtures = {
+      {"genotypes_ds.vcf", {true, true, true, false, true}},
+      {"genotypes_gp.vcf", {true, false, true}}};
+  for (const auto& [name, has_gt] : fixtures) {
+    SCOPED_TRACE(name);
+    const std::string dir = make_temp_dir("genotypes_hard_calls_" + name);
+    const FormatCopies copies = make_format_copies(fixture(name), dir);
+    // The calls as bcftools 1.16 prints them.
+    const std::string calls = capture_command("bcftools query -f '[%GT\\t]\\n' '" + copies.vcf + "'");
+    for (const std::string& path : {copies.vcf, copies.vcf_gz, copies.bcf}) {
+      SCOPED_TRACE(path);
+      expect_calls_match_table(read_all({path}), calls, has_gt);
+    }
+  }
+}
+
+TEST(GenotypeHardCalls, HaploidDosageScalesOnlyGtDosages) {
+  GenotypeReaderOptions options;
+  options.paths = {fixture("genotypes_gt.vcf")};
+  options.haploid_dosage = 2;
+  DosageBlock block = read_with(options);
+  ASSERT_EQ(block.size(), 9u);
+  // Hand-worked: X:1000 calls 0 1 0/1 . give 0 2 1 NaN; X:2000 2 1 ./1 1/2.
+  expect_site_dosages(block, 6, {0, 2, 1, nan_value});
+  expect_site_dosages(block, 7, {0, 2, nan_value, 1});
+  expect_site_dosages(block, 8, {2, 0, nan_value, 1});
+  expect_site_dosages(block, 0, {0, 1, 2, nan_value});  // diploid calls are unchanged
+  // The hard calls do not depend on the scale.
+  const DosageBlock unscaled = read_all(options.paths);
+  EXPECT_EQ(block.ploidy, unscaled.ploidy);
+  EXPECT_EQ(block.diploid_calls, unscaled.diploid_calls);
+
+  // DS stays as written even where GT is haploid (X:1000 GT:DS 0:0 1:1 0/1:0.8).
+  options.paths = {fixture("genotypes_ds.vcf")};
+  const DosageBlock ds_block = read_with(options);
+  expect_site_dosages(ds_block, ds_block.size() - 1, {0, 1, 0.8, nan_value});
+}
+
+TEST(GenotypeHardCalls, HaploidDosageOtherThanOneOrTwoIsAUsageError) {
+  GenotypeReaderOptions options;
+  options.paths = {fixture("genotypes_gt.vcf")};
+  options.haploid_dosage = 3;
+  try {
+    GenotypeReader reader(options);
+    ADD_FAILURE() << "expected a tamis::Error";
+  } catch (const Error& error) {
+    EXPECT_EQ(error.code(), ExitCode::usage);
+    EXPECT_NE(std::string(error.what()).find("3"), std::string::npos) << error.what();
+  }
 }
 
 // ---- files, samples and fields -------------------------------------------

@@ -24,6 +24,11 @@
 #include "tamis/results_reader.hpp"
 #include "tamis/results_writer.hpp"
 
+// Under LeakSanitizer (TAMIS_SANITIZE builds): fontconfig, which cairo uses
+// to find the plot font, keeps its configuration for the life of the process
+// by design; that is not a leak of ours.
+extern "C" const char* __lsan_default_suppressions() { return "leak:libfontconfig.so\n"; }
+
 namespace {
 
 using tamis::testing::make_temp_dir;
@@ -180,6 +185,58 @@ TEST(ReportSummary, LambdaOfHandCountedValues) {
   EXPECT_NEAR(tamis::compute_lambda_gc({3.0f, 0.1f, 0.9f, 0.2f, 0.4f, 0.5f, NAN}), 0.45f / 0.45493642311957283,
               1e-7);
   EXPECT_TRUE(std::isnan(tamis::compute_lambda_gc({NAN})));
+}
+
+TEST(ReportSummary, HeaderOnlyFileGivesEmptyPlotsAndMissingLambda) {
+  const std::string dir = make_temp_dir("report_empty_results");
+  write_results(dir + "/scan.none.tsv.gz", {});
+  tamis::ReportOptions options;
+  options.results = {dir + "/scan.none.tsv.gz"};
+  options.out_prefix = dir + "/report";
+  const tamis::ReportSummary summary = tamis::run_report(options);
+  EXPECT_EQ(summary_field(options.out_prefix, "n_variants"), "0");
+  EXPECT_EQ(summary_field(options.out_prefix, "lambda_gc"), "#NA");  // GWAS-SSF's missing value
+  EXPECT_EQ(summary.traits.at(0).manhattan_points_drawn, 0u);
+  cairo_surface_t* image = cairo_image_surface_create_from_png((options.out_prefix + ".none.qq.png").c_str());
+  EXPECT_EQ(cairo_surface_status(image), CAIRO_STATUS_SUCCESS);
+  cairo_surface_destroy(image);
+}
+
+TEST(ReportSummary, BadOptionsAreUsageErrors) {
+  tamis::ReportOptions options;
+  options.out_prefix = make_temp_dir("report_bad_options") + "/report";
+  try {
+    tamis::run_report(options);
+    ADD_FAILURE() << "no results files should be refused";
+  } catch (const tamis::Error& error) {
+    EXPECT_EQ(error.code(), tamis::ExitCode::usage);
+  }
+  options.results = {"x.tsv.gz"};
+  options.lead_threshold = 0;
+  try {
+    tamis::run_report(options);
+    ADD_FAILURE() << "a lead threshold of 0 should be refused";
+  } catch (const tamis::Error& error) {
+    EXPECT_EQ(error.code(), tamis::ExitCode::usage);
+  }
+}
+
+TEST(ReportSummary, ContigOrder) {
+  const std::string dir = make_temp_dir("report_contig_order");
+  // GWAS-SSF codes go in numeric order, whatever order the scan met them in.
+  write_results(dir + "/a.codes.tsv.gz", {make_row("2", 5, -1, 1), make_row("23", 5, -1, 1), make_row("1", 5, -1, 1),
+                                          make_row("10", 5, -1, 1)});
+  EXPECT_EQ(tamis::report::load_trait_results(dir + "/a.codes.tsv.gz", 5e-8).chromosome_names,
+            (std::vector<std::string>{"1", "2", "10", "23"}));
+  // Contig names (as-is mode) keep their order of first appearance.
+  write_results(dir + "/a.names.tsv.gz", {make_row("chrB", 5, -1, 1), make_row("chrA", 5, -1, 1),
+                                          make_row("scaffold_9", 5, -1, 1), make_row("chrB", 9, -1, 1)});
+  const auto names = tamis::report::load_trait_results(dir + "/a.names.tsv.gz", 5e-8);
+  EXPECT_EQ(names.chromosome_names, (std::vector<std::string>{"chrB", "chrA", "scaffold_9"}));
+  EXPECT_EQ(names.chromosome_of, (std::vector<std::uint32_t>{0, 1, 2, 0}));
+  EXPECT_EQ(tamis::report::chromosome_display_name("23"), "X");  // GWAS-SSF: 23 = X, 24 = Y, 25 = MT
+  EXPECT_EQ(tamis::report::chromosome_display_name("24"), "Y");
+  EXPECT_EQ(tamis::report::chromosome_display_name("25"), "MT");
 }
 
 // ---- lead loci -------------------------------------------------------------
@@ -370,6 +427,7 @@ TEST_F(RenderedReport, HtmlHoldsPlotsTablesAndLogHeader) {
         << suffix;
   }
   EXPECT_NE(html.find("<table class=\"summary\">"), std::string::npos);
+  EXPECT_NE(html.find("Lead loci: p &lt; 5e-8, each lead taking the variants within 500 kb"), std::string::npos);
   EXPECT_NE(html.find("<table class=\"loci\">"), std::string::npos);
   EXPECT_NE(html.find("<td>rs5000</td>"), std::string::npos);
   EXPECT_NE(html.find("<td>rs15000</td>"), std::string::npos);

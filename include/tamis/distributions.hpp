@@ -21,4 +21,12 @@ double chisq1_upper_quantile(double p);
 // -log10(p) from ln(p).
 double neg_log10_from_log(double log_p);
 
+// Natural log of P(Z > z) for a standard normal Z; exact in the sense above
+// for any finite z (z = +inf gives -DBL_MAX, z = -inf gives 0).
+double log_normal_upper_tail(double z);
+
+// The standard normal quantile z with P(Z <= z) = p, for 0 < p < 1
+// (Wichura 1988, algorithm AS 241; relative error about 1e-16).
+double normal_quantile(double p);
+
 }  // namespace tamis

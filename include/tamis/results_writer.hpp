@@ -61,10 +61,22 @@ class BgzfTextFile {
  public:
   explicit BgzfTextFile(std::string final_path);
   ~BgzfTextFile();
+  struct ResumeTag {};
+  BgzfTextFile(std::string final_path, std::uint64_t compressed_bytes, ResumeTag);
   BgzfTextFile(const BgzfTextFile&) = delete;
   BgzfTextFile& operator=(const BgzfTextFile&) = delete;
 
+  // Continues an interrupted file: "<final>.partial" is cut back to
+  // `compressed_bytes` (a size that checkpoint() returned) and appended to.
+  static std::unique_ptr<BgzfTextFile> resume(std::string final_path, std::uint64_t compressed_bytes);
+
   void write(std::string_view text);  // throws tamis::Error (output) on a write failure
+  // Ends the current BGZF block and flushes it to disk; returns the compressed
+  // size so far, a point from which resume() can continue.
+  std::uint64_t checkpoint();
+  // Leaves the temporary file in place when a signal stops the run, so that a
+  // later run can resume it (it is still removed when an error unwinds).
+  void keep_on_interrupt();
   // Closes the file, builds its index (tabix_results: sequence column 1,
   // position column 2, one header line skipped; tabix_vcf: the VCF preset)
   // and renames the data file and the index to their final names.

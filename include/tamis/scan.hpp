@@ -31,7 +31,14 @@ struct ScanOptions {
   ChromosomeCodes chromosome_codes = ChromosomeCodes::ssf;
   std::string genome_assembly;
   std::string command_line;  // recorded in the log
+  bool quiet = false;        // no progress display
+  bool resume = false;       // continue an interrupted run from its checkpoint
+  int shard = 0;             // --shard K/N: K (1-based) and N; 0 when not sharded
+  int shard_count = 0;
   std::size_t records_per_block = 128;
+  // Outputs are flushed to a block boundary and the checkpoint is saved every
+  // this many blocks, in every run, so a resumed file is byte-identical.
+  std::size_t blocks_per_checkpoint = 64;
 };
 
 // Per-trait tallies of what happened to each tested allele.
@@ -42,6 +49,7 @@ struct TraitTally {
   std::uint64_t confirmed = 0;
   std::uint64_t discordant = 0;  // confirmed with log10p_spread above the flag
   std::uint64_t confirm_not_converged = 0;
+  std::uint64_t filtered = 0;  // below a variant QC floor
 };
 
 struct ScanSummary {

@@ -10,6 +10,7 @@
 #include <thread>
 
 #include "tamis/errors.hpp"
+#include "tamis/report.hpp"
 #include "tamis/results_writer.hpp"
 #include "tamis/run_log.hpp"
 #include "tamis/scan.hpp"
@@ -77,6 +78,8 @@ struct ScanArguments {
   std::string genome_assembly;
   std::string missing_tokens;
   bool quiet = false;
+  bool resume = false;
+  int checkpoint_blocks = 64;
 };
 
 void check_trait_names(const std::vector<std::string>& traits) {
@@ -158,6 +161,12 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
   options.genotype_paths = arguments.genotypes;
   options.traits_path = arguments.traits;
   options.command_line = command_line;
+  options.quiet = arguments.quiet;
+  options.resume = arguments.resume;
+  if (arguments.checkpoint_blocks < 1) {
+    refuse_option("--checkpoint-blocks", "must be at least 1", "the default is 64");
+  }
+  options.blocks_per_checkpoint = static_cast<std::size_t>(arguments.checkpoint_blocks);
   return options;
 }
 
@@ -183,7 +192,12 @@ void add_scan_command(CLI::App& app, ScanArguments& arguments) {
   scan->add_option("--genome-assembly", arguments.genome_assembly, "Assembly recorded in the metadata, e.g. GRCh38");
   scan->add_option("--missing-tokens", arguments.missing_tokens,
                    "Comma-separated tokens read as missing (default: NA,na,NaN,.)");
-  scan->add_flag("--quiet", arguments.quiet, "Print nothing but errors");
+  scan->add_flag("--quiet", arguments.quiet, "Print nothing but errors (no progress display)");
+  scan->add_flag("--resume", arguments.resume,
+                 "Continue an interrupted run of the same command from its last checkpoint");
+  scan->add_option("--checkpoint-blocks", arguments.checkpoint_blocks,
+                   "Blocks of 128 records between checkpoints that --resume can continue from")
+      ->capture_default_str();
 }
 
 void add_simulate_command(CLI::App& app, SimulationOptions& options) {
@@ -200,6 +214,41 @@ void add_simulate_command(CLI::App& app, SimulationOptions& options) {
       ->capture_default_str();
   simulate->add_option("--causal", options.causal_per_trait, "Planted variants per trait (0: a null cohort)")
       ->capture_default_str();
+}
+
+struct ReportArguments {
+  ReportOptions options;
+  double clump_window_kb = 500.0;
+};
+
+void add_report_command(CLI::App& app, ReportArguments& arguments) {
+  CLI::App* report = app.add_subcommand("report", "Plots, inflation, lead loci and an HTML page from results files");
+  ReportOptions& options = arguments.options;
+  report->add_option("--results", options.results, "Results files PREFIX.TRAIT.tsv.gz, one per trait")->required();
+  report->add_option("--out", options.out_prefix, "Output prefix")->required();
+  report->add_option("--lead-below", options.lead_threshold, "A lead locus needs p below this")->capture_default_str();
+  report->add_option("--clump-window-kb", arguments.clump_window_kb,
+                     "Kilobases either side of a lead that belong to its locus")
+      ->capture_default_str();
+  report->add_option("--label-top", options.label_limit, "Lead loci named on each Manhattan plot")
+      ->capture_default_str();
+  report->add_option("--page-loci", options.page_loci_limit, "Lead loci listed per trait on the HTML page")
+      ->capture_default_str();
+}
+
+int execute_report(ReportArguments arguments) {
+  if (!(arguments.clump_window_kb >= 0.0)) {
+    refuse_option("--clump-window-kb", "must be zero or more", "the default is 500");
+  }
+  arguments.options.clump_window = static_cast<std::int64_t>(std::llround(arguments.clump_window_kb * 1000.0));
+  for (const std::string& path : arguments.options.results) check_readable("--results", path);
+  const ReportSummary summary = run_report(arguments.options);
+  for (const TraitReport& trait : summary.traits) {
+    std::fprintf(stderr, "%s: %zu variants, lambda_gc %.4f, %zu lead loci\n", trait.trait.c_str(), trait.n_variants,
+                 trait.lambda_gc, trait.n_lead_loci);
+  }
+  for (const std::string& path : summary.written_files) std::fprintf(stderr, "wrote %s\n", path.c_str());
+  return 0;
 }
 
 int execute_scan(const ScanArguments& arguments, const std::string& command_line) {
@@ -227,7 +276,9 @@ int execute_simulate(const SimulationOptions& options) {
 
 extern "C" void remove_temporaries_and_exit(int signal_number) {
   remove_registered_temporaries();
-  const char message[] = "tamis: interrupted; no results were written under their final names\n";
+  const char message[] =
+      "tamis: interrupted; no results were written under their final names "
+      "(a scan can continue with --resume)\n";
   ssize_t ignored = write(STDERR_FILENO, message, sizeof message - 1);
   (void)ignored;
   _exit(signal_number == SIGINT ? static_cast<int>(ExitCode::interrupted) : 128 + signal_number);
@@ -251,6 +302,8 @@ int run_command_line(int argc, char** argv) {
   SimulationOptions simulation_options;
   add_scan_command(app, scan_arguments);
   add_simulate_command(app, simulation_options);
+  ReportArguments report_arguments;
+  add_report_command(app, report_arguments);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& error) {
@@ -259,6 +312,7 @@ int run_command_line(int argc, char** argv) {
   }
   try {
     if (app.got_subcommand("scan")) return execute_scan(scan_arguments, join_command_line(argc, argv));
+    if (app.got_subcommand("report")) return execute_report(report_arguments);
     return execute_simulate(simulation_options);
   } catch (const Error& error) {
     std::fprintf(stderr, "tamis: error: %s\n", error.what());

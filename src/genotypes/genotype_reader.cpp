@@ -12,6 +12,7 @@
 #include <cstring>
 #include <unordered_map>
 
+#include "genotypes/genotype_index.hpp"
 #include "genotypes/record_batch_impl.hpp"
 #include "tamis/errors.hpp"
 
@@ -177,9 +178,9 @@ std::string describe_sample_mismatch(const std::vector<std::string>& expected,
 }
 
 // The CHROM and POS columns of the line htslib failed on, when it is text.
-std::string place_of_unparsed_line(htsFile* file) {
-  if (hts_get_format(file)->format != vcf || file->line.l == 0) return "";
-  std::string line(file->line.s, file->line.l);
+std::string place_of_unparsed_line(htsFile* file, const kstring_t& parsed_line) {
+  if (hts_get_format(file)->format != vcf || parsed_line.l == 0) return "";
+  std::string line(parsed_line.s, parsed_line.l);
   // htslib's parser splits the line in place, turning tabs into NULs.
   for (char& letter : line) {
     if (letter == '\0') letter = '\t';
@@ -195,14 +196,27 @@ struct InputFile {
   bcf_hdr_t* header = nullptr;
   std::uint64_t records_read = 0;
   std::string last_place;  // chrom:pos of the last record read
+  // Reading through regions: the index, the next region to visit and the
+  // iterator over the current one. `line` holds a VCF.gz record's text.
+  std::unique_ptr<genotype_detail::FileIndex> index;
+  std::size_t next_region = 0;
+  const GenomicRegion* current_region = nullptr;
+  genotype_detail::IteratorPtr iterator;
+  kstring_t line = {0, 0, nullptr};
 
   InputFile() = default;
   InputFile(const InputFile&) = delete;
   InputFile& operator=(const InputFile&) = delete;
   ~InputFile() {
+    iterator.reset();
+    index.reset();
+    free(line.s);
     if (header) bcf_hdr_destroy(header);
     if (handle) hts_close(handle);
   }
+
+  // The text htslib parsed last, for error messages.
+  const kstring_t& parsed_line() const { return index && index->is_tabix() ? line : handle->line; }
 };
 
 std::string record_where(const InputFile& input, std::uint64_t record_number,
@@ -212,38 +226,12 @@ std::string record_where(const InputFile& input, std::uint64_t record_number,
   return where;
 }
 
-std::optional<std::uint64_t> indexed_count_of(const std::string& path, htsFile* handle) {
-  const htsFormat* format = hts_get_format(handle);
-  hts_idx_t* index = nullptr;
-  tbx_t* tabix = nullptr;
-  if (format->format == bcf) {
-    index = bcf_index_load3(path.c_str(), nullptr, HTS_IDX_SILENT_FAIL);
-  } else if (format->format == vcf && format->compression == bgzf) {
-    tabix = tbx_index_load3(path.c_str(), nullptr, HTS_IDX_SILENT_FAIL);
-    if (tabix) index = tabix->idx;
-  }
-  if (!index) return std::nullopt;
-  std::uint64_t total = 0;
-  const int sequence_count = hts_idx_nseq(index);
-  for (int tid = 0; tid < sequence_count; ++tid) {
-    std::uint64_t mapped = 0, unmapped = 0;
-    // A contig without records has no statistics; it contributes nothing.
-    if (hts_idx_get_stat(index, tid, &mapped, &unmapped) == 0) total += mapped;
-  }
-  if (tabix) {
-    tbx_destroy(tabix);
-  } else {
-    hts_idx_destroy(index);
-  }
-  return total;
-}
-
 // A BGZF-level failure means damaged bytes; otherwise htslib read a whole
 // line of text and could not parse it.
 [[noreturn]] void throw_read_error(const InputFile& input, std::uint64_t record_number) {
   htsFile* handle = input.handle;
   const bool damaged = handle->is_bgzf && handle->fp.bgzf->errcode != 0;
-  const std::string line_place = damaged ? "" : place_of_unparsed_line(handle);
+  const std::string line_place = damaged ? "" : place_of_unparsed_line(handle, input.parsed_line());
   if (!line_place.empty()) {
     throw_input_error(record_where(input, record_number, line_place),
                       "htslib could not parse this record (its message is above)",
@@ -262,11 +250,57 @@ struct GenotypeReader::Impl {
   std::vector<std::unique_ptr<InputFile>> inputs;
   std::shared_ptr<std::vector<std::string>> sample_ids = std::make_shared<std::vector<std::string>>();
   std::size_t current_input = 0;
+  bool reads_regions = false;
+  std::vector<GenomicRegion> regions;  // merged; may be empty even when reads_regions
 
   std::unique_ptr<InputFile> open_input(const std::string& path, const GenotypeReaderOptions& options);
   void read_header(InputFile& input);
   void check_samples_match(const InputFile& input, std::vector<std::string> samples);
+  int read_next_in_regions(InputFile& input, bcf1_t* record);
 };
+
+namespace {
+
+void check_haploid_dosage(int haploid_dosage) {
+  if (haploid_dosage == 1 || haploid_dosage == 2) return;
+  throw Error(ExitCode::usage, "",
+              "the dosage of a haploid call must be 1 or 2, not " + std::to_string(haploid_dosage),
+              "use 1 to count alleles, or 2 to weigh a haploid call like a homozygous diploid one");
+}
+
+}  // namespace
+
+// Like bcf_read: 0 for a record, -1 once every region is done, below -1 for
+// an error. Only records whose POS lies in the current region count: the
+// index iterator also yields records that start earlier and reach into it.
+int GenotypeReader::Impl::read_next_in_regions(InputFile& input, bcf1_t* record) {
+  while (true) {
+    if (!input.iterator) {
+      if (input.next_region >= regions.size()) return -1;
+      input.current_region = &regions[input.next_region++];
+      const int tid = input.index->contig_id(input.current_region->contig);
+      // A contig this file lacks gives no iterator: nothing to read here.
+      input.iterator = input.index->query(tid, input.current_region->first - 1,
+                                          input.current_region->last);
+      continue;
+    }
+    int status = 0;
+    if (input.index->is_tabix()) {
+      status = tbx_itr_next(input.handle, input.index->tabix(), input.iterator.get(), &input.line);
+      if (status >= 0) status = vcf_parse(&input.line, input.header, record) == 0 ? 0 : -2;
+    } else {
+      status = bcf_itr_next(input.handle, input.iterator.get(), record);
+    }
+    if (status == -1) {
+      input.iterator.reset();
+      continue;
+    }
+    if (status < -1) return status;
+    const std::int64_t position = record->pos + 1;
+    if (position < input.current_region->first || position > input.current_region->last) continue;
+    return 0;
+  }
+}
 
 std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& path,
                                                             const GenotypeReaderOptions& options) {
@@ -305,6 +339,12 @@ std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& p
   info->field = resolve_field(path, input->header, options.field);
   info->tag_id = format_tag_id(input->header, dosage_field_name(info->field));
   check_field_type(path, input->header, info->field, info->tag_id);
+  info->gt_tag_id = format_tag_id(input->header, "GT");
+  info->haploid_dosage = options.haploid_dosage;
+  if (!options.regions.empty()) {
+    input->index = genotype_detail::FileIndex::load(path, input->handle, input->header);
+    if (!input->index) genotype_detail::throw_missing_index(path, input->handle, "reading regions");
+  }
   return input;
 }
 
@@ -338,7 +378,10 @@ void GenotypeReader::Impl::check_samples_match(const InputFile& input,
 }
 
 GenotypeReader::GenotypeReader(const GenotypeReaderOptions& options) : impl_(std::make_unique<Impl>()) {
+  check_haploid_dosage(options.haploid_dosage);
   impl_->paths = options.paths;
+  impl_->reads_regions = !options.regions.empty();
+  impl_->regions = genotype_detail::merge_regions(options.regions);
   for (const std::string& path : options.paths) {
     impl_->inputs.push_back(impl_->open_input(path, options));
   }
@@ -355,10 +398,12 @@ DosageField GenotypeReader::resolved_field(std::size_t file_index) const {
 }
 
 std::optional<std::uint64_t> GenotypeReader::indexed_record_count() const {
-  if (impl_->inputs.empty()) return std::nullopt;
+  if (impl_->inputs.empty() || impl_->reads_regions) return std::nullopt;
   std::uint64_t total = 0;
   for (const auto& input : impl_->inputs) {
-    std::optional<std::uint64_t> count = indexed_count_of(input->info->path, input->handle);
+    auto index = genotype_detail::FileIndex::load(input->info->path, input->handle, input->header);
+    if (!index) return std::nullopt;
+    std::optional<std::uint64_t> count = index->total_records();
     if (!count) return std::nullopt;
     total += *count;
   }
@@ -375,7 +420,8 @@ std::size_t GenotypeReader::read_batch(RecordBatch& batch, std::size_t max_recor
   while (records.count < max_records && impl_->current_input < impl_->inputs.size()) {
     InputFile& input = *impl_->inputs[impl_->current_input];
     bcf1_t* record = records.records[records.count];
-    const int status = bcf_read(input.handle, input.header, record);
+    const int status = impl_->reads_regions ? impl_->read_next_in_regions(input, record)
+                                            : bcf_read(input.handle, input.header, record);
     if (status == -1) {
       ++impl_->current_input;
       continue;

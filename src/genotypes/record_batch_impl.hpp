@@ -24,6 +24,8 @@ struct FileInfo {
   std::size_t file_index = 0;
   DosageField field = DosageField::gt;
   int tag_id = -1;  // the header's id of the FORMAT tag named by `field`
+  int gt_tag_id = -1;  // the header's id of FORMAT/GT, -1 when undeclared
+  int haploid_dosage = 1;  // GT dosage of one copy in a haploid call
   std::shared_ptr<const std::vector<std::string>> sample_ids;
 };
 

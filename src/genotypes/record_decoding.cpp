@@ -4,6 +4,7 @@
 #include <htslib/hts_endian.h>
 #include <htslib/vcf.h>
 
+#include <algorithm>
 #include <cassert>
 #include <cmath>
 #include <cstdio>
@@ -81,9 +82,9 @@ class RecordDecoder {
   [[noreturn]] void fail(const std::string& what, const std::string& fix) const;
   [[noreturn]] void fail_for_sample(std::size_t sample_idx, const std::string& what,
                                     const std::string& fix) const;
-  const bcf_fmt_t* find_format() const;
-  void append_sites(DosageBlock& out) const;
-  void decode_genotypes(const bcf_fmt_t& format);
+  const bcf_fmt_t* find_format(int tag_id) const;
+  void append_sites(DosageBlock& out, bool has_hard_calls) const;
+  void decode_genotypes(const bcf_fmt_t& format, bool gives_dosages);
   void decode_dosages(const bcf_fmt_t& format);
   void decode_probabilities(const bcf_fmt_t& format);
   void check_float_storage(const bcf_fmt_t& format) const;
@@ -93,6 +94,12 @@ class RecordDecoder {
 
   double& dosage_of(int allele, std::size_t sample_idx) {
     return dosages_[(allele - 1) * sample_count_ + sample_idx];
+  }
+  std::uint8_t& ploidy_of(int allele, std::size_t sample_idx) {
+    return ploidy_[(allele - 1) * sample_count_ + sample_idx];
+  }
+  std::int8_t& diploid_call_of(int allele, std::size_t sample_idx) {
+    return diploid_calls_[(allele - 1) * sample_count_ + sample_idx];
   }
   const char* field_name() const { return dosage_field_name(origin_.file->field); }
   const std::string& sample_name(std::size_t sample_idx) const {
@@ -104,6 +111,9 @@ class RecordDecoder {
   std::size_t sample_count_;
   int allele_count_ = 0;  // REF and ALT alleles
   double* dosages_ = nullptr;
+  std::uint8_t* ploidy_ = nullptr;
+  std::int8_t* diploid_calls_ = nullptr;
+  std::vector<int> call_alleles_;  // one sample's called alleles, reused
 };
 
 void RecordDecoder::fail(const std::string& what, const std::string& fix) const {
@@ -125,36 +135,48 @@ void RecordDecoder::decode_into(DosageBlock& out) {
   allele_count_ = record_->n_allele;
   if (allele_count_ < 2) return;  // no ALT allele, nothing to test
 
+  const bcf_fmt_t* genotypes = find_format(origin_.file->gt_tag_id);
   const std::size_t first_site = out.sites.size();
-  append_sites(out);
-  out.dosages.resize(out.sites.size() * sample_count_, missing_dosage);
+  append_sites(out, genotypes != nullptr);
+  const std::size_t value_count = out.sites.size() * sample_count_;
+  out.dosages.resize(value_count, missing_dosage);
+  out.ploidy.resize(value_count, 0);
+  out.diploid_calls.resize(value_count, -1);
   dosages_ = out.dosages.data() + first_site * sample_count_;
+  ploidy_ = out.ploidy.data() + first_site * sample_count_;
+  diploid_calls_ = out.diploid_calls.data() + first_site * sample_count_;
   if (sample_count_ == 0) return;
 
-  const bcf_fmt_t* format = find_format();
+  const bool dosages_from_gt = origin_.file->field == DosageField::gt;
+  const bcf_fmt_t* format = dosages_from_gt ? genotypes : find_format(origin_.file->tag_id);
   if (!format) {
     fail(std::string("the record has no FORMAT/") + field_name() +
              " although this file's dosages come from it",
          std::string("give every record a ") + field_name() +
              " value (\".\" when missing), or read the dosages from another FORMAT field");
   }
-  if (format->n == 0 || format->type == BCF_BT_NULL) return;  // every value missing
+  // An all-missing field (n == 0) leaves the defaults: NaN, ploidy 0, no call.
+  if (genotypes && genotypes->n > 0 && genotypes->type != BCF_BT_NULL) {
+    decode_genotypes(*genotypes, dosages_from_gt);
+  }
+  if (dosages_from_gt || format->n == 0 || format->type == BCF_BT_NULL) return;
   switch (origin_.file->field) {
-    case DosageField::gt: decode_genotypes(*format); break;
     case DosageField::ds: decode_dosages(*format); break;
     case DosageField::gp: decode_probabilities(*format); break;
-    case DosageField::automatic: assert(false && "the reader resolves auto per file"); break;
+    case DosageField::gt:
+    case DosageField::automatic: assert(false && "GT is decoded above; auto is resolved per file"); break;
   }
 }
 
-const bcf_fmt_t* RecordDecoder::find_format() const {
+const bcf_fmt_t* RecordDecoder::find_format(int tag_id) const {
+  if (tag_id < 0) return nullptr;
   for (int format_idx = 0; format_idx < record_->n_fmt; ++format_idx) {
-    if (record_->d.fmt[format_idx].id == origin_.file->tag_id) return &record_->d.fmt[format_idx];
+    if (record_->d.fmt[format_idx].id == tag_id) return &record_->d.fmt[format_idx];
   }
   return nullptr;
 }
 
-void RecordDecoder::append_sites(DosageBlock& out) const {
+void RecordDecoder::append_sites(DosageBlock& out, bool has_hard_calls) const {
   for (int allele = 1; allele < allele_count_; ++allele) {
     VariantSite site;
     site.chromosome = origin_.chromosome;
@@ -167,6 +189,7 @@ void RecordDecoder::append_sites(DosageBlock& out) const {
     site.file_index = origin_.file->file_index;
     site.record_number = origin_.record_number;
     site.source = origin_.file->field;
+    site.has_hard_calls = has_hard_calls;
     out.sites.push_back(std::move(site));
   }
 }
@@ -175,22 +198,24 @@ void RecordDecoder::set_sample_missing(std::size_t sample_idx) {
   for (int allele = 1; allele < allele_count_; ++allele) dosage_of(allele, sample_idx) = missing_dosage;
 }
 
-// GT: the number of copies of each ALT allele. The call's ploidy is its
-// length before htslib's end-of-vector padding, so haploid and diploid calls
-// can share a record.
-void RecordDecoder::decode_genotypes(const bcf_fmt_t& format) {
+// GT: the hard calls, and when they are the dosage source, the number of
+// copies of each ALT allele (times haploid_dosage for a haploid call). The
+// call's ploidy is its length before htslib's end-of-vector padding, so
+// haploid and diploid calls can share a record.
+void RecordDecoder::decode_genotypes(const bcf_fmt_t& format, bool gives_dosages) {
   if (format.type != BCF_BT_INT8 && format.type != BCF_BT_INT16 && format.type != BCF_BT_INT32) {
     fail("FORMAT/GT is not stored as genotype integers", "rewrite the file with `bcftools view`");
   }
+  call_alleles_.resize(static_cast<std::size_t>(format.n));
   for (std::size_t sample_idx = 0; sample_idx < sample_count_; ++sample_idx) {
-    for (int allele = 1; allele < allele_count_; ++allele) dosage_of(allele, sample_idx) = 0.0;
-    int ploidy = 0;
+    int length = 0;
+    int called = 0;
     bool any_missing = false;
     for (int value_idx = 0; value_idx < format.n; ++value_idx) {
       int32_t encoded = 0;
       Slot slot = read_int_slot(format, sample_idx, value_idx, &encoded);
       if (slot == Slot::vector_end) break;
-      ++ploidy;
+      ++length;
       if (slot == Slot::missing || bcf_gt_is_missing(encoded)) {
         any_missing = true;
         continue;
@@ -202,10 +227,24 @@ void RecordDecoder::decode_genotypes(const bcf_fmt_t& format) {
                             std::to_string(allele_count_ - 1) + " ALT allele(s)",
                         "correct the GT value or the ALT column");
       }
-      if (allele > 0) dosage_of(allele, sample_idx) += 1.0;
+      call_alleles_[called++] = allele;
     }
+    const bool full_diploid = length == 2 && !any_missing;
     // A partly missing call ("0/.") says nothing reliable about the dosage.
-    if (any_missing || ploidy == 0) set_sample_missing(sample_idx);
+    const bool dosage_known = length > 0 && !any_missing;
+    const int copy_weight = length == 1 ? origin_.file->haploid_dosage : 1;
+    for (int allele = 1; allele < allele_count_; ++allele) {
+      int copies = 0;
+      for (int called_idx = 0; called_idx < called; ++called_idx) {
+        copies += call_alleles_[called_idx] == allele;
+      }
+      ploidy_of(allele, sample_idx) = static_cast<std::uint8_t>(std::min(called, 255));
+      diploid_call_of(allele, sample_idx) = full_diploid ? static_cast<std::int8_t>(copies) : -1;
+      if (gives_dosages) {
+        dosage_of(allele, sample_idx) =
+            dosage_known ? static_cast<double>(copies * copy_weight) : missing_dosage;
+      }
+    }
   }
 }
 

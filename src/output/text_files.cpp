@@ -1,6 +1,7 @@
 // Output files written under "<final>.partial" and renamed only when complete,
 // so a failed or interrupted run never leaves a file that looks finished.
 #include <htslib/bgzf.h>
+#include <htslib/hfile.h>
 #include <htslib/hts.h>
 #include <htslib/tbx.h>
 #include <sys/stat.h>
@@ -55,6 +56,11 @@ class TemporaryName {
   TemporaryName& operator=(const TemporaryName&) = delete;
 
   const std::string& path() const { return path_; }
+  // The file stays registered for normal cleanup but no longer for signals.
+  void keep_on_signal() {
+    output_detail::unregister_temporary(slot_);
+    slot_ = -1;
+  }
   void release() {
     released_ = true;
     output_detail::unregister_temporary(slot_);
@@ -116,6 +122,42 @@ BgzfTextFile::BgzfTextFile(std::string final_path)
                                         system_reason());
   }
 }
+
+BgzfTextFile::BgzfTextFile(std::string final_path, std::uint64_t compressed_bytes, ResumeTag)
+    : final_path_(std::move(final_path)), temporary_path_(temporary_name_for(final_path_)) {
+  struct stat info;
+  if (stat(temporary_path_.c_str(), &info) != 0 || static_cast<std::uint64_t>(info.st_size) < compressed_bytes) {
+    throw Error(ExitCode::usage, temporary_path_,
+                "the interrupted run's partial results are missing or shorter than its checkpoint",
+                "run the scan again without --resume");
+  }
+  errno = 0;
+  if (truncate(temporary_path_.c_str(), static_cast<off_t>(compressed_bytes)) != 0) {
+    throw_output_error(final_path_, "could not cut the partial results back to the checkpoint" + system_reason());
+  }
+  impl_ = std::make_unique<Impl>(temporary_path_);
+  impl_->handle = bgzf_open(temporary_path_.c_str(), "a");
+  if (!impl_->handle) {
+    throw_output_error(final_path_, "could not reopen the temporary file " + temporary_path_ + system_reason());
+  }
+}
+
+std::unique_ptr<BgzfTextFile> BgzfTextFile::resume(std::string final_path, std::uint64_t compressed_bytes) {
+  return std::make_unique<BgzfTextFile>(std::move(final_path), compressed_bytes, ResumeTag{});
+}
+
+std::uint64_t BgzfTextFile::checkpoint() {
+  if (!impl_->handle) throw_output_error(final_path_, "checkpoint after the file was closed");
+  errno = 0;
+  if (bgzf_flush(impl_->handle) != 0 || hflush(impl_->handle->fp) != 0) {
+    throw_output_error(final_path_, "writing the results failed" + system_reason());
+  }
+  // After a flush the virtual offset's low 16 bits are zero and the high bits
+  // give the compressed size written so far.
+  return static_cast<std::uint64_t>(bgzf_tell(impl_->handle)) >> 16;
+}
+
+void BgzfTextFile::keep_on_interrupt() { impl_->data.keep_on_signal(); }
 
 BgzfTextFile::~BgzfTextFile() {
   if (impl_) impl_->close_quietly();

@@ -106,6 +106,23 @@ std::string log_section(const PageContent& page) {
          "samples and null models.</p>\n" + html;
 }
 
+// 5e-08 -> "5e-8", as thresholds are usually written.
+std::string format_p_threshold(double p) {
+  char text[32];
+  std::snprintf(text, sizeof text, "%g", p);
+  std::string written = text;
+  for (const char* padded : {"e-0", "e+0"}) {
+    std::size_t at = written.find(padded);
+    if (at != std::string::npos) written.erase(at + 2, 1);
+  }
+  return written;
+}
+
+std::string format_distance(std::int64_t bases) {
+  if (bases >= 1000 && bases % 1000 == 0) return std::to_string(bases / 1000) + " kb";
+  return std::to_string(bases) + " bases";
+}
+
 }  // namespace
 
 std::string encode_base64(const std::string& bytes) {
@@ -161,12 +178,10 @@ std::string compose_html_page(const PageContent& page) {
   std::string html = "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n";
   html += "<title>tamis report</title>\n<style>" + std::string(page_style) + "</style>\n</head>\n<body>\n";
   html += "<h1>tamis report</h1>\n";
-  char criteria[200];
-  std::snprintf(criteria, sizeof criteria,
-                "Lead loci: p &lt; %g, each lead taking the variants within %lld bases on its chromosome. "
-                "Lines on the Manhattan plots: p = 5e-8 (genome-wide) and 1e-5 (suggestive).",
-                page.lead_threshold, static_cast<long long>(page.clump_window));
-  html += "<p class=\"note\">" + std::string(criteria) + "</p>\n";
+  html += "<p class=\"note\">Lead loci: p &lt; " + format_p_threshold(page.lead_threshold) +
+          ", each lead taking the variants within " + format_distance(page.clump_window) +
+          " of it on its chromosome. Lines on the Manhattan plots: p = 5e-8 (genome-wide) and 1e-5 "
+          "(suggestive).</p>\n";
   html += "<h2>Summary</h2>\n" + summary_table(page);
   for (const TraitSection& section : page.sections) {
     html += "<h2>" + escape_html(section.trait) + "</h2>\n";

@@ -128,7 +128,7 @@ void draw_x_axis(cairo_t* cairo, const ManhattanLayout& layout) {
 }
 
 // A horizontal significance line with its p-value written at the right end.
-TextBox draw_threshold(cairo_t* cairo, const ManhattanLayout& layout, double neg_log_10_p, const std::string& text,
+void draw_threshold(cairo_t* cairo, const ManhattanLayout& layout, double neg_log_10_p, const std::string& text,
                        Rgb colour, bool dashed) {
   const PlotFrame& frame = layout.frame;
   const double y = layout.y_of(neg_log_10_p);
@@ -145,53 +145,130 @@ TextBox draw_threshold(cairo_t* cairo, const ManhattanLayout& layout, double neg
   cairo_restore(cairo);
   set_colour(cairo, colour);
   select_font(cairo, 12.0, true);
-  return draw_text(cairo, text, frame.right - 6, y - 5, Anchor::right);
+  draw_text(cairo, text, frame.right + 6, y + 4, Anchor::left);
 }
 
 std::string lead_name(const LeadCandidate& candidate) {
   return candidate.rsid.empty() || candidate.rsid == "#NA" ? candidate.variant_id : candidate.rsid;
 }
 
-// Tries spots above the lead, first straight up, then higher and to either
-// side; a label that finds no free spot inside the panel is left out.
-void label_leads(cairo_t* cairo, const TraitResults& results, const std::vector<LeadLocus>& leads,
-                 const ManhattanLayout& layout, std::size_t label_limit, std::vector<TextBox> taken) {
-  const PlotFrame& frame = layout.frame;
+struct LabelSpot {
+  std::string text;
+  double centre = 0, baseline = 0;
+  double point_x = 0, point_y = 0;
+  TextBox box;
+  bool leader = false;  // drawn away from its point, so a line joins them
+  double leader_end_x = 0;  // where the line meets the label's lower edge
+};
+
+struct Segment {
+  double x0, y0, x1, y1;
+};
+
+bool segment_hits_box(const Segment& segment, const TextBox& box) {
+  constexpr int samples = 24;
+  for (int sample_idx = 0; sample_idx <= samples; ++sample_idx) {
+    const double share = static_cast<double>(sample_idx) / samples;
+    const double x = segment.x0 + share * (segment.x1 - segment.x0);
+    const double y = segment.y0 + share * (segment.y1 - segment.y0);
+    if (x > box.left - 1 && x < box.right + 1 && y > box.top - 1 && y < box.bottom + 1) return true;
+  }
+  return false;
+}
+
+TextBox ring_box(double x, double y) { return TextBox{x - 6.5, y - 6.5, x + 6.5, y + 6.5}; }
+
+// What a new label must keep clear of: the panel's edges, the labels and
+// leader lines already placed, and the rings of the other leads.
+struct LabelObstacles {
+  PlotFrame frame;
+  std::vector<TextBox> rings;  // one per lead, in lead order
+  std::vector<LabelSpot> spots;
+  std::vector<Segment> leaders;
+
+  bool admits(const LabelSpot& spot, const Segment& leader, std::size_t lead_idx) const {
+    const TextBox& box = spot.box;
+    if (box.left < frame.left + 2 || box.right > frame.right - 2 || box.top < frame.top + 2) return false;
+    for (const LabelSpot& other : spots) {
+      if (box.overlaps(other.box, 1.0)) return false;
+      if (spot.leader && segment_hits_box(leader, other.box)) return false;
+    }
+    for (std::size_t ring_idx = 0; ring_idx < rings.size(); ++ring_idx) {
+      if (ring_idx != lead_idx && box.overlaps(rings[ring_idx], 1.0)) return false;
+    }
+    return std::none_of(leaders.begin(), leaders.end(),
+                        [&](const Segment& line) { return segment_hits_box(line, box); });
+  }
+};
+
+// Tries spots above the lead: straight up first, then higher or to either
+// side with a leader line. A label that finds no clear spot is left out (the
+// loci table lists every lead).
+std::vector<LabelSpot> place_lead_labels(cairo_t* cairo, const TraitResults& results,
+                                         const std::vector<LeadLocus>& leads, const ManhattanLayout& layout,
+                                         std::size_t label_limit) {
   select_font(cairo, label_font, true);
   cairo_font_extents_t font;
   cairo_font_extents(cairo, &font);
-  const double line_height = font.ascent + 3;
-  for (std::size_t lead_idx = 0; lead_idx < leads.size() && lead_idx < label_limit; ++lead_idx) {
-    const LeadCandidate& candidate = results.candidates[leads[lead_idx].candidate_idx];
-    const std::size_t variant = candidate.variant_idx;
-    const double x = layout.x_of(results.chromosome_of[variant], results.position_of[variant]);
-    const double y = layout.y_of(results.neg_log_10_p_of[variant]);
-    const std::string name = lead_name(candidate);
+  const double line_height = font.ascent + 4;
+
+  LabelObstacles obstacles;
+  obstacles.frame = layout.frame;
+  std::vector<double> xs, ys;
+  for (const LeadLocus& lead : leads) {
+    const std::size_t variant = results.candidates[lead.candidate_idx].variant_idx;
+    xs.push_back(layout.x_of(results.chromosome_of[variant], results.position_of[variant]));
+    ys.push_back(layout.y_of(results.neg_log_10_p_of[variant]));
+    obstacles.rings.push_back(ring_box(xs.back(), ys.back()));
+  }
+  for (std::size_t lead_idx = 0; lead_idx < leads.size() && obstacles.spots.size() < label_limit; ++lead_idx) {
+    const std::string name = lead_name(results.candidates[leads[lead_idx].candidate_idx]);
     const double width = text_width(cairo, name);
+    const double x = xs[lead_idx], y = ys[lead_idx];
     bool placed = false;
-    for (int level = 0; level < 8 && !placed; ++level) {
-      for (double shift : {0.0, -0.5, 0.5, -1.0, 1.0}) {
-        const double centre = x + shift * (width + 8);
-        const double baseline = y - 10 - level * line_height;
-        TextBox box{centre - width / 2, baseline - font.ascent, centre + width / 2, baseline + 2};
-        if (box.left < frame.left + 2 || box.right > frame.right - 2 || box.top < frame.top + 2) continue;
-        bool clear = std::none_of(taken.begin(), taken.end(),
-                                  [&](const TextBox& other) { return box.overlaps(other, 2.0); });
-        if (!clear) continue;
-        if (level > 0 || shift != 0.0) {
-          set_colour(cairo, colours::plum);
-          cairo_set_line_width(cairo, 0.8);
-          cairo_move_to(cairo, x, y - 5);
-          cairo_line_to(cairo, centre, baseline + 2);
-          cairo_stroke(cairo);
+    for (int level = 0; level < 6 && !placed; ++level) {
+      for (double shift : {0.0, -0.6, 0.6, -0.9, 0.9, -1.2, 1.2}) {
+        LabelSpot spot;
+        spot.text = name;
+        spot.centre = x + shift * (width + 10);
+        spot.baseline = y - 11 - level * line_height;
+        spot.point_x = x;
+        spot.point_y = y;
+        spot.box = TextBox{spot.centre - width / 2 - 2, spot.baseline - font.ascent, spot.centre + width / 2 + 2,
+                           spot.baseline + 3};
+        spot.leader = level > 0 || shift != 0.0;
+        const Segment leader{x, y - 6, std::clamp(x, spot.box.left + 3, spot.box.right - 3), spot.box.bottom};
+        if (!obstacles.admits(spot, leader, lead_idx)) continue;
+        if (spot.leader) {
+          obstacles.leaders.push_back(leader);
+          spot.leader_end_x = leader.x1;
         }
-        set_colour(cairo, colours::plum);
-        draw_text(cairo, name, centre, baseline, Anchor::centre);
-        taken.push_back(box);
+        obstacles.spots.push_back(spot);
         placed = true;
         break;
       }
     }
+  }
+  return obstacles.spots;
+}
+
+void draw_lead_labels(cairo_t* cairo, const std::vector<LabelSpot>& spots) {
+  set_colour(cairo, colours::plum);
+  cairo_set_line_width(cairo, 0.9);
+  for (const LabelSpot& spot : spots) {
+    if (!spot.leader) continue;
+    cairo_move_to(cairo, spot.point_x, spot.point_y - 6);
+    cairo_line_to(cairo, spot.leader_end_x, spot.box.bottom);
+  }
+  cairo_stroke(cairo);
+  select_font(cairo, label_font, true);
+  for (const LabelSpot& spot : spots) {
+    // A pale backing keeps the name legible over dots and grid lines.
+    cairo_set_source_rgba(cairo, colours::panel.red, colours::panel.green, colours::panel.blue, 0.85);
+    cairo_rectangle(cairo, spot.box.left, spot.box.top, spot.box.right - spot.box.left, spot.box.bottom - spot.box.top);
+    cairo_fill(cairo);
+    set_colour(cairo, colours::plum);
+    draw_text(cairo, spot.text, spot.centre, spot.baseline, Anchor::centre);
   }
 }
 
@@ -208,22 +285,14 @@ void ring_leads(cairo_t* cairo, const TraitResults& results, const std::vector<L
   cairo_stroke(cairo);
 }
 
-std::string with_thousands(std::size_t count) {
-  std::string digits = std::to_string(count);
-  for (int insert_at = static_cast<int>(digits.size()) - 3; insert_at > 0; insert_at -= 3) {
-    digits.insert(static_cast<std::size_t>(insert_at), ",");
-  }
-  return digits;
-}
-
 void draw_title(cairo_t* cairo, const TraitResults& results, std::size_t lead_count, const ManhattanFacts& facts,
                 const ManhattanLayout& layout) {
   set_colour(cairo, colours::ink);
   select_font(cairo, 22.0, true);
   draw_text(cairo, results.trait, layout.frame.left, 38, Anchor::left);
-  char facts_text[160];
-  std::snprintf(facts_text, sizeof facts_text, "%s variants   \u00b7   genomic control \u03bb = %.3f   \u00b7   %zu lead loci",
-                with_thousands(results.n_rows).c_str(), facts.lambda_gc, lead_count);
+  const std::string facts_text = format_count(results.n_rows) + " variants   \u00b7   genomic control \u03bb = " +
+                                 format_lambda(facts.lambda_gc) + "   \u00b7   " + std::to_string(lead_count) +
+                                 (lead_count == 1 ? " lead locus" : " lead loci");
   set_colour(cairo, colours::quiet_ink);
   select_font(cairo, 14.0);
   draw_text(cairo, facts_text, layout.frame.right, 38, Anchor::right);
@@ -245,7 +314,7 @@ double ManhattanLayout::y_of(double neg_log_10_p) const {
 
 ManhattanLayout lay_out_manhattan(const TraitResults& results) {
   ManhattanLayout layout;
-  layout.frame = PlotFrame{96, 64, layout.width - 28.0, layout.height - 80.0};
+  layout.frame = PlotFrame{96, 64, layout.width - 54.0, layout.height - 80.0};
   const double top = std::max(results.max_neg_log_10_p, genome_wide_neg_log_10_p + 1.0);
   layout.y_max = top * 1.03;
 
@@ -313,11 +382,10 @@ std::size_t render_manhattan(const TraitResults& results, const std::vector<Lead
     draw_dots(cairo, points, 0, colours::teal, dot_radius);
     draw_dots(cairo, points, 1, colours::copper, dot_radius);
     cairo_restore(cairo);
-    std::vector<TextBox> taken;
-    taken.push_back(draw_threshold(cairo, layout, suggestive_neg_log_10_p, "p = 1e-5", colours::slate, true));
-    taken.push_back(draw_threshold(cairo, layout, genome_wide_neg_log_10_p, "p = 5e-8", colours::crimson, false));
+    draw_threshold(cairo, layout, suggestive_neg_log_10_p, "1e-5", colours::slate, true);
+    draw_threshold(cairo, layout, genome_wide_neg_log_10_p, "5e-8", colours::crimson, false);
     ring_leads(cairo, results, leads, layout);
-    label_leads(cairo, results, leads, layout, facts.label_limit, taken);
+    draw_lead_labels(cairo, place_lead_labels(cairo, results, leads, layout, facts.label_limit));
     set_colour(cairo, colours::ink);
     cairo_set_line_width(cairo, 1.2);
     cairo_rectangle(cairo, layout.frame.left, layout.frame.top, layout.frame.width(), layout.frame.height());

@@ -113,6 +113,21 @@ std::string format_tick(double value, double step) {
   return text;
 }
 
+std::string format_count(std::size_t count) {
+  std::string digits = std::to_string(count);
+  for (int insert_at = static_cast<int>(digits.size()) - 3; insert_at > 0; insert_at -= 3) {
+    digits.insert(static_cast<std::size_t>(insert_at), ",");
+  }
+  return digits;
+}
+
+std::string format_lambda(double lambda_gc) {
+  if (std::isnan(lambda_gc)) return "not available";
+  char text[32];
+  std::snprintf(text, sizeof text, "%.3f", lambda_gc);
+  return text;
+}
+
 void draw_dots(cairo_t* cairo, const std::vector<PlotPoint>& points, unsigned char shade, Rgb colour,
                double radius) {
   cairo_save(cairo);

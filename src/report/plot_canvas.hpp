@@ -64,6 +64,8 @@ void draw_log10_p_caption(cairo_t* cairo, const std::string& before, const std::
 // Round tick values from 0 to at least `top`, about `wanted` of them.
 std::vector<double> choose_ticks(double top, int wanted);
 std::string format_tick(double value, double step);
+std::string format_count(std::size_t count);
+std::string format_lambda(double lambda_gc);  // "1.013", or "not available" for NaN  // 2000000 -> "2,000,000"
 
 // Dots as zero-length strokes with round caps: cairo draws them as discs,
 // and the SVG holds one short path command per point.

@@ -108,17 +108,14 @@ void draw_annotations(cairo_t* cairo, const QqLayout& layout, const std::string&
   select_font(cairo, 20.0, true);
   draw_text(cairo, trait, layout.frame.left, 36, Anchor::left);
 
-  char lambda_text[64];
-  std::snprintf(lambda_text, sizeof lambda_text, "\u03bb = %.3f", lambda_gc);
+  const std::string lambda_text = "\u03bb = " + format_lambda(lambda_gc);
   const double x = layout.frame.left + 16;
   select_font(cairo, 18.0, true);
   draw_text(cairo, lambda_text, x, layout.frame.top + 30, Anchor::left);
   select_font(cairo, 13.0);
   set_colour(cairo, colours::quiet_ink);
   draw_text(cairo, "genomic control, median score \u03c7\u00b2 / 0.4549", x, layout.frame.top + 50, Anchor::left);
-  char count_text[64];
-  std::snprintf(count_text, sizeof count_text, "%zu variants; band: 95%% for uniform p", n);
-  draw_text(cairo, count_text, x, layout.frame.top + 68, Anchor::left);
+  draw_text(cairo, format_count(n) + " variants; band: 95% for uniform p", x, layout.frame.top + 68, Anchor::left);
 }
 
 }  // namespace

@@ -102,8 +102,8 @@ void write_text(const std::string& path, const std::string& text, ReportSummary&
 }  // namespace
 
 double compute_lambda_gc(std::vector<float> score_chisq) {
-  score_chisq.erase(std::remove_if(score_chisq.begin(), score_chisq.end(), [](float value) { return std::isnan(value); }),
-                    score_chisq.end());
+  auto is_missing = [](float value) { return std::isnan(value); };
+  score_chisq.erase(std::remove_if(score_chisq.begin(), score_chisq.end(), is_missing), score_chisq.end());
   if (score_chisq.empty()) return std::numeric_limits<double>::quiet_NaN();
   const std::size_t middle = score_chisq.size() / 2;
   std::nth_element(score_chisq.begin(), score_chisq.begin() + middle, score_chisq.end());
@@ -119,7 +119,8 @@ ReportSummary run_report(const ReportOptions& options) {
   check_options(options);
   ReportSummary summary;
   report::PageContent page;
-  std::string summary_text = "trait\tn_variants\tlambda_gc\tn_below_5e-8\tn_lead_loci\tmax_neg_log_10_p\tn_discordant\n";
+  std::string summary_text =
+      "trait\tn_variants\tlambda_gc\tn_below_5e-8\tn_lead_loci\tmax_neg_log_10_p\tn_discordant\n";
   std::string loci_text =
       "trait\tchromosome\tlead_position\tlead_variant_id\tlead_rsid\tp_value\tneg_log_10_p_value\tbeta\tspan_start\t"
       "span_end\tn_variants\n";

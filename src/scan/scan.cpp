@@ -5,9 +5,13 @@
 #include <tbb/parallel_pipeline.h>
 
 #include <chrono>
+#include <cstdio>
+#include <optional>
 #include <cmath>
 #include <sstream>
 
+#include "scan/checkpoint.hpp"
+#include "scan/progress.hpp"
 #include "scan/trait_pass.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/results_writer.hpp"
@@ -136,18 +140,36 @@ std::vector<std::string> map_chromosomes(const DosageBlock& block, ChromosomeCod
   return mapped;
 }
 
-struct ResultSink {
+// What the serial writer keeps up to date; saved at every checkpoint.
+struct ScanProgress {
   std::vector<std::unique_ptr<BgzfTextFile>> files;
-  std::uint64_t records = 0;
-  std::uint64_t alleles = 0;
+  CheckpointState state;
 };
 
+void save_progress(const ScanOptions& options, const std::vector<TraitContext>& traits, ScanProgress& progress) {
+  for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
+    progress.state.compressed_sizes[traits[trait_idx].set.trait] = progress.files[trait_idx]->checkpoint();
+  }
+  save_checkpoint(checkpoint_path(options.out_prefix), progress.state);
+}
+
+void add_tally(const TraitTally& block, TraitTally& total) {
+  total.written += block.written;
+  total.monomorphic += block.monomorphic;
+  total.in_covariate_span += block.in_covariate_span;
+  total.confirmed += block.confirmed;
+  total.discordant += block.discordant;
+  total.confirm_not_converged += block.confirm_not_converged;
+  total.filtered += block.filtered;
+}
+
 void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
-                  const std::vector<TraitContext>& traits, ResultSink& sink, ScanSummary& summary) {
+                  const std::vector<TraitContext>& traits, ScanProgress& progress) {
   tbb::enumerable_thread_specific<std::vector<TraitScratch>> scratch_per_thread(
       [&] { return std::vector<TraitScratch>(traits.size()); });
   const std::size_t tokens = static_cast<std::size_t>(options.threads) * 3;
   const std::size_t sample_count = reader.sample_ids().size();
+  ProgressDisplay display(choose_progress_mode(options.quiet), reader.indexed_record_count());
 
   auto read_stage = [&](tbb::flow_control& control) -> std::shared_ptr<BlockWork> {
     auto work = std::make_shared<BlockWork>();
@@ -170,20 +192,18 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     return work;
   };
   auto write_stage = [&](std::shared_ptr<BlockWork> work) {
-    sink.records += work->batch.size();
-    sink.alleles += work->block.size();
+    CheckpointState& state = progress.state;
+    state.records += work->batch.size();
+    state.alleles += work->block.size();
     for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
       const TraitBlockOutput& output = work->outputs[trait_idx];
-      sink.files[trait_idx]->write(output.rows);
-      TraitTally& tally = summary.tallies[traits[trait_idx].set.trait];
-      tally.written += output.tally.written;
-      tally.monomorphic += output.tally.monomorphic;
-      tally.in_covariate_span += output.tally.in_covariate_span;
-      tally.confirmed += output.tally.confirmed;
-      tally.discordant += output.tally.discordant;
-      tally.confirm_not_converged += output.tally.confirm_not_converged;
+      progress.files[trait_idx]->write(output.rows);
+      add_tally(output.tally, state.tallies[traits[trait_idx].set.trait]);
       for (const std::string& note : output.discordant_notes) current_log().detail(note);
     }
+    ++state.blocks;
+    if (state.blocks % options.blocks_per_checkpoint == 0) save_progress(options, traits, progress);
+    display.update(state.records);
   };
 
   tbb::parallel_pipeline(
@@ -193,6 +213,66 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
               tbb::filter_mode::parallel, test_stage) &
           tbb::make_filter<std::shared_ptr<BlockWork>, void>(tbb::filter_mode::serial_in_order,
                                                               write_stage));
+  display.finish();
+}
+
+// The checkpoint of an interrupted run with the same inputs and options, or
+// nothing when there is none. Refuses one made by a different run.
+std::optional<CheckpointState> find_resume_point(const ScanOptions& options,
+                                                 const std::vector<std::string>& description) {
+  const std::string path = checkpoint_path(options.out_prefix);
+  std::optional<CheckpointState> saved = load_checkpoint(path);
+  if (!saved) {
+    current_log().line("note: --resume found no checkpoint " + path + "; starting from the beginning");
+    return std::nullopt;
+  }
+  if (saved->run_description != description) {
+    std::string differences;
+    for (const std::string& line : describe_differences(saved->run_description, description)) {
+      differences += "\n    " + line;
+    }
+    throw Error(ExitCode::usage, path,
+                "--resume refused: the interrupted run used other inputs or options:" + differences,
+                "resume with the original command, or run without --resume to start over");
+  }
+  return saved;
+}
+
+// Reads past the records that the interrupted run finished, in the same
+// batches, so that every later block holds the records it held before.
+void skip_finished_records(const ScanOptions& options, GenotypeReader& reader, const CheckpointState& saved) {
+  RecordBatch batch;
+  std::uint64_t records = 0;
+  for (std::uint64_t block_idx = 0; block_idx < saved.blocks; ++block_idx) {
+    records += reader.read_batch(batch, options.records_per_block);
+  }
+  if (records != saved.records) {
+    throw Error(ExitCode::usage, checkpoint_path(options.out_prefix),
+                "the genotype files hold fewer records than the checkpoint says were scanned",
+                "run the scan again without --resume");
+  }
+  current_log().line("resuming after record " + std::to_string(records) + " (block " +
+                     std::to_string(saved.blocks) + ")");
+}
+
+void open_result_files(const ScanOptions& options, const std::vector<TraitContext>& traits,
+                       const std::optional<CheckpointState>& saved, ScanProgress& progress) {
+  for (const TraitContext& trait : traits) {
+    const std::string path = result_path(options.out_prefix, trait.set.trait);
+    if (saved) {
+      auto size = saved->compressed_sizes.find(trait.set.trait);
+      if (size == saved->compressed_sizes.end()) {
+        throw Error(ExitCode::usage, checkpoint_path(options.out_prefix),
+                    "the checkpoint has no partial results for trait " + trait.set.trait,
+                    "run the scan again without --resume");
+      }
+      progress.files.push_back(BgzfTextFile::resume(path, size->second));
+    } else {
+      progress.files.push_back(std::make_unique<BgzfTextFile>(path));
+      progress.files.back()->write(result_header_line());
+    }
+    progress.files.back()->keep_on_interrupt();
+  }
 }
 
 std::string base_name(const std::string& path) {
@@ -251,22 +331,28 @@ ScanSummary run_scan(const ScanOptions& options) {
   log_inputs(options, reader, table);
   const std::vector<TraitContext> traits = prepare_traits(options, table, reader.sample_ids());
 
-  ScanSummary summary;
-  ResultSink sink;
-  for (const TraitContext& trait : traits) {
-    summary.tallies[trait.set.trait] = TraitTally{};
-    sink.files.push_back(std::make_unique<BgzfTextFile>(result_path(options.out_prefix, trait.set.trait)));
-    sink.files.back()->write(result_header_line());
+  ScanProgress progress;
+  progress.state.run_description = describe_run(options, true);
+  std::optional<CheckpointState> saved;
+  if (options.resume) saved = find_resume_point(options, progress.state.run_description);
+  if (saved) {
+    skip_finished_records(options, reader, *saved);
+    progress.state = *saved;
   }
-  run_pipeline(options, reader, traits, sink, summary);
-  summary.records = sink.records;
-  summary.alleles = sink.alleles;
+  for (const TraitContext& trait : traits) progress.state.tallies[trait.set.trait];
+  open_result_files(options, traits, saved, progress);
+  run_pipeline(options, reader, traits, progress);
 
+  ScanSummary summary;
+  summary.records = progress.state.records;
+  summary.alleles = progress.state.alleles;
+  summary.tallies = progress.state.tallies;
   for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
-    sink.files[trait_idx]->commit(IndexKind::tabix_results);
-    write_sidecar(options, traits[trait_idx], sink.files[trait_idx]->final_path());
-    summary.result_files.push_back(sink.files[trait_idx]->final_path());
+    progress.files[trait_idx]->commit(IndexKind::tabix_results);
+    write_sidecar(options, traits[trait_idx], progress.files[trait_idx]->final_path());
+    summary.result_files.push_back(progress.files[trait_idx]->final_path());
   }
+  std::remove(checkpoint_path(options.out_prefix).c_str());
   log_tallies(summary, traits);
   const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   current_log().line("wall time: " + format_number(std::round(seconds * 100) / 100) + " s");

@@ -36,6 +36,11 @@ std::string show_first_ids(const std::vector<std::string>& ids) {
   return shown;
 }
 
+// Model-level problems with one column still point at the table it came from.
+std::string column_place(const TraitTable& table, const std::string& column_name) {
+  return table.path() + ", column " + quote(column_name);
+}
+
 void check_request(const AnalysisRequest& request) {
   std::set<std::string> seen;
   for (const std::string& covariate : request.covariates) {
@@ -122,7 +127,8 @@ bool has_all_covariates(const std::vector<const TableColumn*>& covariates, std::
 }
 
 // Keeps the matched samples that have the trait and every covariate.
-std::vector<std::size_t> select_complete_samples(const SampleMatch& match,
+std::vector<std::size_t> select_complete_samples(const TraitTable& table,
+                                                 const SampleMatch& match,
                                                  const TableColumn& trait,
                                                  const std::vector<const TableColumn*>& covariates,
                                                  AnalysisSet* set) {
@@ -141,7 +147,7 @@ std::vector<std::size_t> select_complete_samples(const SampleMatch& match,
   set->accounting.analysed = rows.size();
   if (rows.empty()) {
     const SampleAccounting& counts = set->accounting;
-    throw Error(ExitCode::model, "",
+    throw Error(ExitCode::model, column_place(table, trait.name),
                 "no sample is left to analyse the trait " + quote(trait.name) + ": of " +
                     std::to_string(counts.matched) + " samples in both the genotype files and "
                     "the table, " + std::to_string(counts.missing_trait) +
@@ -185,7 +191,7 @@ void fill_trait(const TableColumn& trait, const std::vector<std::size_t>& rows, 
   }
 }
 
-void check_trait_varies(AnalysisSet* set) {
+void check_trait_varies(const TraitTable& table, AnalysisSet* set) {
   const std::size_t sample_count = static_cast<std::size_t>(set->y.size());
   if (set->kind == TraitKind::binary) {
     std::size_t cases = 0;
@@ -195,7 +201,7 @@ void check_trait_varies(AnalysisSet* set) {
     set->case_count = cases;
     set->control_count = sample_count - cases;
     if (cases == 0 || cases == sample_count) {
-      throw Error(ExitCode::model, "",
+      throw Error(ExitCode::model, column_place(table, set->trait),
                   "the binary trait " + quote(set->trait) + " has " + std::to_string(cases) +
                       " cases and " + std::to_string(set->control_count) +
                       " controls among the " + std::to_string(sample_count) +
@@ -206,7 +212,7 @@ void check_trait_varies(AnalysisSet* set) {
     return;
   }
   if (set->y.maxCoeff() == set->y.minCoeff()) {
-    throw Error(ExitCode::model, "",
+    throw Error(ExitCode::model, column_place(table, set->trait),
                 "the trait " + quote(set->trait) + " has the same value (" +
                     format_value(set->y(0)) + ") in all " + std::to_string(sample_count) +
                     " analysis samples",
@@ -309,10 +315,10 @@ AnalysisSet build_analysis_set(const TraitTable& table,
   AnalysisSet set;
   set.trait = request.trait;
   const SampleMatch match = match_samples(table, genotype_samples, &set.accounting);
-  const std::vector<std::size_t> rows = select_complete_samples(match, trait, covariates, &set);
+  const std::vector<std::size_t> rows = select_complete_samples(table, match, trait, covariates, &set);
   set.kind = decide_trait_kind(table, trait, rows, request.kind_override);
   fill_trait(trait, rows, &set);
-  check_trait_varies(&set);
+  check_trait_varies(table, &set);
   build_design(covariates, rows, &set);
   return set;
 }

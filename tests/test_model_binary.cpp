@@ -1,0 +1,564 @@
+// Tests of the binary-trait statistics and trait helpers of the model stage:
+// the saddlepoint approximation of the score test, Firth's penalised refit,
+// the Hardy-Weinberg exact test, the rank-based inverse normal transform and
+// the normal distribution functions they use.
+//
+// Outside references: R 4.2.2 (tests/reference/binary_reference.R prints the
+// R constants below), SciPy 1.10.1 from python3-scipy (tests/reference/
+// firth_reference.py prints the Firth constants), and exact distributions
+// computed here by full enumeration or closed-form convolution.
+#include <gtest/gtest.h>
+
+#include <algorithm>
+#include <cmath>
+#include <cstdint>
+#include <iostream>
+#include <limits>
+#include <numeric>
+#include <string>
+#include <utility>
+#include <vector>
+
+#include "tamis/confirm.hpp"
+#include "tamis/distributions.hpp"
+#include "tamis/firth.hpp"
+#include "tamis/hardy_weinberg.hpp"
+#include "tamis/null_model.hpp"
+#include "tamis/saddlepoint.hpp"
+#include "tamis/score_kernel.hpp"
+#include "tamis/trait_transform.hpp"
+
+namespace tamis {
+namespace {
+
+constexpr double kInfinity = std::numeric_limits<double>::infinity();
+
+double relative_error(double got, double want) {
+  if (want == 0.0) return std::fabs(got);
+  return std::fabs(got - want) / std::fabs(want);
+}
+
+double log_add(double a, double b) {
+  if (a == -kInfinity) return b;
+  if (b == -kInfinity) return a;
+  return std::fmax(a, b) + std::log1p(std::exp(-std::fabs(a - b)));
+}
+
+// xoshiro256** seeded through splitmix64: the simulations' fixed-seed generator.
+class Xoshiro {
+ public:
+  explicit Xoshiro(std::uint64_t seed) {
+    for (std::uint64_t& word : state_) {
+      seed += 0x9E3779B97F4A7C15ULL;
+      std::uint64_t z = seed;
+      z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
+      z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
+      word = z ^ (z >> 31);
+    }
+  }
+  std::uint64_t next() {
+    const std::uint64_t result = rotate(state_[1] * 5, 7) * 9;
+    const std::uint64_t shifted = state_[1] << 17;
+    state_[2] ^= state_[0];
+    state_[3] ^= state_[1];
+    state_[1] ^= state_[2];
+    state_[0] ^= state_[3];
+    state_[2] ^= shifted;
+    state_[3] = rotate(state_[3], 45);
+    return result;
+  }
+  double uniform() { return (static_cast<double>(next() >> 11) + 0.5) * (1.0 / 9007199254740992.0); }
+  double normal() {
+    const double radius = std::sqrt(-2.0 * std::log(uniform()));
+    return radius * std::cos(6.283185307179586 * uniform());
+  }
+
+ private:
+  static std::uint64_t rotate(std::uint64_t x, int k) { return (x << k) | (x >> (64 - k)); }
+  std::uint64_t state_[4];
+};
+
+double logistic(double eta) { return 1.0 / (1.0 + std::exp(-eta)); }
+
+// A logistic null model with the given fitted probabilities. The saddlepoint
+// approximates the law of U = sum gt_i (Y_i - mu_i), Y_i ~ Bernoulli(mu_i),
+// for any fixed mu, so the accuracy tests choose mu directly rather than
+// through a fitted trait.
+NullModel model_with_probabilities(const Eigen::MatrixXd& design, const Eigen::VectorXd& mu) {
+  NullModel model;
+  model.kind = TraitKind::binary;
+  model.design = design;
+  model.fitted = mu;
+  model.weights = mu.array() * (1.0 - mu.array());
+  model.y = Eigen::VectorXd::Zero(mu.size());
+  model.residuals = -mu;
+  const Eigen::MatrixXd weighted = model.weights.cwiseSqrt().asDiagonal() * design;
+  const Eigen::HouseholderQR<Eigen::MatrixXd> qr(weighted);
+  model.basis = qr.householderQ() * Eigen::MatrixXd::Identity(design.rows(), design.cols());
+  model.coefficients = Eigen::VectorXd::Zero(design.cols());
+  return model;
+}
+
+// gt = g - X (X'WX)^-1 X'W g from the normal equations: an independent route
+// to the adjusted genotype (the library goes through the basis Q).
+Eigen::VectorXd adjust_by_normal_equations(const Eigen::MatrixXd& design, const Eigen::VectorXd& w,
+                                           const Eigen::VectorXd& g) {
+  const Eigen::MatrixXd xtwx = design.transpose() * w.asDiagonal() * design;
+  const Eigen::VectorXd coefficients = xtwx.ldlt().solve(design.transpose() * (w.array() * g.array()).matrix());
+  return g - design * coefficients;
+}
+
+// The exact law of U over all 2^n outcomes, sorted by value, with running
+// sums for its tails.
+class EnumeratedLaw {
+ public:
+  EnumeratedLaw(const Eigen::VectorXd& adjusted, const Eigen::VectorXd& mu) {
+    const int n = static_cast<int>(adjusted.size());
+    std::vector<std::pair<double, double>> outcomes;
+    outcomes.reserve(std::size_t{1} << n);
+    for (std::uint32_t pattern = 0; pattern < (1u << n); ++pattern) {
+      double value = 0.0;
+      double probability = 1.0;
+      for (int sample_idx = 0; sample_idx < n; ++sample_idx) {
+        const bool is_case = (pattern >> sample_idx) & 1u;
+        value += adjusted[sample_idx] * ((is_case ? 1.0 : 0.0) - mu[sample_idx]);
+        probability *= is_case ? mu[sample_idx] : 1.0 - mu[sample_idx];
+      }
+      outcomes.emplace_back(value, probability);
+    }
+    std::sort(outcomes.begin(), outcomes.end());
+    values_.reserve(outcomes.size());
+    at_or_below_.reserve(outcomes.size());
+    double running = 0.0;
+    for (const auto& [value, probability] : outcomes) {
+      running += probability;
+      values_.push_back(value);
+      at_or_below_.push_back(running);
+    }
+    at_or_above_.assign(outcomes.size(), 0.0);
+    running = 0.0;
+    for (std::size_t idx = outcomes.size(); idx-- > 0;) {
+      running += outcomes[idx].second;
+      at_or_above_[idx] = running;
+    }
+  }
+
+  const std::vector<double>& values() const { return values_; }
+
+  // P(U >= x) and P(U <= x), with a relative slack so that an atom computed
+  // with rounding is still counted at its own value.
+  double upper_tail(double x) const {
+    const auto it = std::lower_bound(values_.begin(), values_.end(), x - 1e-9 * std::fabs(x));
+    return it == values_.end() ? 0.0 : at_or_above_[static_cast<std::size_t>(it - values_.begin())];
+  }
+  double lower_tail(double x) const {
+    const auto it = std::upper_bound(values_.begin(), values_.end(), x + 1e-9 * std::fabs(x));
+    return it == values_.begin() ? 0.0 : at_or_below_[static_cast<std::size_t>(it - values_.begin()) - 1];
+  }
+
+ private:
+  std::vector<double> values_;
+  std::vector<double> at_or_below_;
+  std::vector<double> at_or_above_;
+};
+
+// ---------------------------------------------------------------------------
+// Normal distribution helpers
+// ---------------------------------------------------------------------------
+
+TEST(NormalDistribution, QuantileMatchesR) {
+  // R 4.2.2 stats::qnorm(p)
+  const double p[] = {1e-300, 9.9999999999999995e-21, 1.0000000000000001e-05, 0.01, 0.024250000000000001,
+                      0.29999999999999999, 0.5, 0.69999999999999996, 0.97499999999999998, 0.99999990000000005};
+  const double want[] = {-37.047096299361201, -9.2623400897984052, -4.2648907939228256, -2.3263478740408408,
+                         -1.9729610513118845, -0.52440051270804067, 0, 0.52440051270804067,
+                         1.9599639845400536, 5.1993375822906618};
+  for (int k = 0; k < 10; ++k) {
+    if (want[k] == 0.0) {
+      EXPECT_EQ(normal_quantile(p[k]), 0.0);
+    } else {
+      EXPECT_LE(relative_error(normal_quantile(p[k]), want[k]), 1e-14) << p[k];
+    }
+  }
+  EXPECT_EQ(normal_quantile(0.0), -kInfinity);
+  EXPECT_EQ(normal_quantile(1.0), kInfinity);
+  EXPECT_THROW(normal_quantile(1.5), std::domain_error);
+}
+
+TEST(NormalDistribution, LogUpperTailMatchesR) {
+  // R 4.2.2 stats::pnorm(z, lower.tail = FALSE, log.p = TRUE)
+  const double z[] = {-3, -0.5, 0, 0.5, 3, 10, 40, 300};
+  const double want[] = {-0.0013508099647481938, -0.36894641528865652, -0.69314718055994529,
+                         -1.1759117615936185,    -6.6077262215103492,  -53.23128515051247,
+                         -804.6084420137538,     -45006.62273211866};
+  for (int k = 0; k < 8; ++k) {
+    EXPECT_LE(relative_error(log_normal_upper_tail(z[k]), want[k]), 1e-12) << z[k];
+  }
+  EXPECT_LE(std::fabs(log_normal_upper_tail(-40.0)), 1e-300);  // R: -0
+  // Round trip through the quantile (formula: P(Z > Phi^-1(1 - p)) = p).
+  for (double log_p : {-1.0, -10.0, -100.0, -600.0}) {
+    const double z_value = -normal_quantile(std::exp(log_p));
+    EXPECT_LE(relative_error(log_normal_upper_tail(z_value), log_p), 1e-12) << log_p;
+  }
+}
+
+// ---------------------------------------------------------------------------
+// Saddlepoint approximation
+// ---------------------------------------------------------------------------
+
+struct SmallCohort {
+  Eigen::MatrixXd design;
+  Eigen::VectorXd mu;
+  Eigen::VectorXd genotype;
+};
+
+// n = 20, an intercept and one covariate, mu from 0.012 to 0.11, and three
+// carriers, so that U's exact upper tail passes through 1e-4 with a lattice
+// of carrier outcomes smeared by the non-carriers.
+SmallCohort make_small_cohort() {
+  const int n = 20;
+  SmallCohort cohort;
+  cohort.design.resize(n, 2);
+  cohort.mu.resize(n);
+  cohort.genotype = Eigen::VectorXd::Zero(n);
+  for (int sample_idx = 0; sample_idx < n; ++sample_idx) {
+    const double covariate = (sample_idx - 9.5) / 5.77;
+    cohort.design(sample_idx, 0) = 1.0;
+    cohort.design(sample_idx, 1) = covariate;
+    cohort.mu[sample_idx] = logistic(-3.2 + 0.75 * covariate);
+  }
+  cohort.genotype[2] = 1.0;
+  cohort.genotype[9] = 1.0;
+  cohort.genotype[15] = 1.0;
+  cohort.genotype[17] = 2.0;
+  return cohort;
+}
+
+TEST(Saddlepoint, AdjustedGenotypeMatchesNormalEquations) {
+  const SmallCohort cohort = make_small_cohort();
+  const NullModel model = model_with_probabilities(cohort.design, cohort.mu);
+  const SaddlepointContext context(model);
+  Eigen::VectorXd adjusted;
+  context.adjust_genotype(cohort.genotype, adjusted);
+  const Eigen::VectorXd want = adjust_by_normal_equations(cohort.design, model.weights, cohort.genotype);
+  // Formula: gt = g - X (X'WX)^-1 X'W g, so X'W gt = 0.
+  EXPECT_LE((adjusted - want).cwiseAbs().maxCoeff(), 1e-13);
+  EXPECT_LE((cohort.design.transpose() * (model.weights.array() * adjusted.array()).matrix()).norm(), 1e-13);
+}
+
+TEST(Saddlepoint, TailsMatchFullEnumeration) {
+  const SmallCohort cohort = make_small_cohort();
+  const NullModel model = model_with_probabilities(cohort.design, cohort.mu);
+  const SaddlepointContext context(model);
+  Eigen::VectorXd adjusted;
+  context.adjust_genotype(cohort.genotype, adjusted);
+  const double variance = (model.weights.array() * adjusted.array().square()).sum();
+  // Exact reference: the law of U by enumeration of all 2^20 outcomes.
+  const EnumeratedLaw law(adjusted, cohort.mu);
+
+  // Every attainable u whose exact two-sided p lies in [2e-5, 5e-4].
+  int compared = 0;
+  double worst = 0.0;
+  double previous_value = -kInfinity;
+  for (const double value : law.values()) {
+    if (value <= 0.0 || value - previous_value < 1e-9) continue;
+    previous_value = value;
+    const double exact = law.upper_tail(value) + law.lower_tail(-value);
+    if (exact < 2e-5 || exact > 5e-4) continue;
+    const SaddlepointResult result = saddlepoint_score_log_p(context, cohort.genotype, value, variance);
+    ASSERT_TRUE(result.used_saddlepoint);
+    ASSERT_FALSE(result.fell_back);
+    const double error = relative_error(std::exp(result.log_p), exact);
+    worst = std::max(worst, error);
+    EXPECT_LE(error, 0.10) << "u = " << value << ": saddlepoint " << std::exp(result.log_p)
+                           << ", exact " << exact << " strict " << law.upper_tail(std::nextafter(value + 1e-9 * value, 10.0)) + law.lower_tail(-value);
+    ++compared;
+  }
+  std::cout << "[ accuracy ] saddlepoint vs enumeration (n = 20), " << compared
+            << " values of u with exact p in [2e-5, 5e-4]: max relative error " << worst << "\n";
+  EXPECT_GE(compared, 5);
+}
+
+TEST(Saddlepoint, KernelScoreEqualsAdjustedGenotypeScore) {
+  // At the logistic MLE X'r = 0, so G'r = gt'r and V = sum w gt^2 (formula).
+  Xoshiro random(11);
+  const int n = 400;
+  Eigen::MatrixXd design(n, 3);
+  Eigen::VectorXd y(n), g(n);
+  for (int sample_idx = 0; sample_idx < n; ++sample_idx) {
+    design(sample_idx, 0) = 1.0;
+    design(sample_idx, 1) = random.normal();
+    design(sample_idx, 2) = random.uniform() < 0.5 ? 1.0 : 0.0;
+    y[sample_idx] = random.uniform() < logistic(-2.0 + 0.5 * design(sample_idx, 1)) ? 1.0 : 0.0;
+    g[sample_idx] = random.uniform() < 0.05 ? 1.0 : 0.0;
+  }
+  const NullModel model = fit_null_model("trait", TraitKind::binary, y, design, {"intercept", "x", "z"});
+  ScoreKernel kernel(model);
+  ScoreScratch scratch;
+  ScoreResult score;
+  kernel.compute(g.data(), 1, scratch, &score);
+  const SaddlepointContext context(model);
+  Eigen::VectorXd adjusted;
+  context.adjust_genotype(g, adjusted);
+  EXPECT_LE(relative_error(adjusted.dot(model.residuals), score.u), 1e-9);
+  EXPECT_LE(relative_error((model.weights.array() * adjusted.array().square()).sum(), score.v), 1e-12);
+}
+
+// The closed-form law of U when every sample has the same mu (intercept-only
+// model) and the carriers all carry one copy: gt = g - m/n, so
+//   U = (1 - m/n)(Kc - m mu) - (m/n)(Kn - (n - m) mu),
+// Kc ~ Bin(m, mu) and Kn ~ Bin(n - m, mu) independent. ln P(U >= x) is summed
+// in log space over Kc, each term with the binomial CDF of Kn.
+double log_binomial_pmf(int k, int size, double prob) {
+  return std::lgamma(size + 1.0) - std::lgamma(k + 1.0) - std::lgamma(size - k + 1.0) +
+         k * std::log(prob) + (size - k) * std::log1p(-prob);
+}
+double log_binomial_cdf(int k, int size, double prob) {
+  if (k < 0) return -kInfinity;
+  double sum = -kInfinity;
+  for (int count = 0; count <= std::min(k, size); ++count) sum = log_add(sum, log_binomial_pmf(count, size, prob));
+  return std::min(sum, 0.0);
+}
+double exact_log_upper_tail_equal_mu(int n, int m, double mu, double x) {
+  const double share = static_cast<double>(m) / n;
+  double log_tail = -kInfinity;
+  for (int carrier_cases = 0; carrier_cases <= m; ++carrier_cases) {
+    // U >= x  <=>  Kn <= [(1 - share)(kc - m mu) + share (n - m) mu - x] / share
+    const double bound = ((1.0 - share) * (carrier_cases - m * mu) + share * (n - m) * mu - x) / share;
+    const int largest = static_cast<int>(std::floor(bound + 1e-9));
+    if (largest < 0) continue;
+    log_tail = log_add(log_tail, log_binomial_pmf(carrier_cases, m, mu) + log_binomial_cdf(largest, n - m, mu));
+  }
+  return log_tail;
+}
+
+TEST(Saddlepoint, FarTailsInLogSpaceMatchClosedFormLaw) {
+  const int n = 5000, m = 200;
+  const double mu = 0.01;
+  const NullModel model = model_with_probabilities(Eigen::MatrixXd::Ones(n, 1), Eigen::VectorXd::Constant(n, mu));
+  const SaddlepointContext context(model);
+  Eigen::VectorXd g = Eigen::VectorXd::Zero(n);
+  for (int carrier_idx = 0; carrier_idx < m; ++carrier_idx) g[carrier_idx * (n / m)] = 1.0;
+  const double share = static_cast<double>(m) / n;
+  const double variance = mu * (1.0 - mu) * (m * (1.0 - share) * (1.0 - share) + (n - m) * share * share);
+  double previous = 0.0;
+  for (int carrier_cases : {12, 30, 60, 120, 190}) {
+    // u as observed with `carrier_cases` carrier cases and the expected number of other cases.
+    const double u = (1.0 - share) * (carrier_cases - m * mu);
+    const SaddlepointResult result = saddlepoint_score_log_p(context, g, u, variance);
+    // The lower tail cannot reach -u here (U >= -(1 - share) m mu - ...), so the
+    // two-sided p is the upper tail.
+    const double exact = exact_log_upper_tail_equal_mu(n, m, mu, u);
+    ASSERT_TRUE(std::isfinite(result.log_p));
+    EXPECT_TRUE(result.used_saddlepoint);
+    EXPECT_LT(result.log_p, previous);
+    previous = result.log_p;
+    std::cout << "[ accuracy ] closed-form law, " << carrier_cases << " carrier cases: ln p exact " << exact
+              << ", saddlepoint " << result.log_p << " (p ratio " << std::exp(result.log_p - exact) << ")\n";
+    EXPECT_LE(relative_error(result.log_p, exact), 0.01) << carrier_cases;
+  }
+  EXPECT_LT(previous, std::log(1e-300));  // far below the smallest double, still exact in log space
+}
+
+TEST(Saddlepoint, BelowCutoffIsTheNormalApproximation) {
+  const SmallCohort cohort = make_small_cohort();
+  const NullModel model = model_with_probabilities(cohort.design, cohort.mu);
+  const SaddlepointContext context(model);
+  const double variance = 0.4;
+  const double u = 1.9 * std::sqrt(variance);
+  const SaddlepointResult result = saddlepoint_score_log_p(context, cohort.genotype, u, variance);
+  EXPECT_FALSE(result.used_saddlepoint);
+  EXPECT_FALSE(result.fell_back);
+  EXPECT_EQ(result.log_p, log_chisq1_upper_tail(u * u / variance));
+}
+
+TEST(Saddlepoint, DegenerateInputsNeverGiveNaN) {
+  const SmallCohort cohort = make_small_cohort();
+  const NullModel model = model_with_probabilities(cohort.design, cohort.mu);
+  const SaddlepointContext context(model);
+  const Eigen::VectorXd zeros = Eigen::VectorXd::Zero(20);
+  // All-zero genotype: nothing to test.
+  SaddlepointResult result = saddlepoint_score_log_p(context, zeros, 0.0, 0.0);
+  EXPECT_EQ(result.log_p, 0.0);
+  EXPECT_FALSE(result.used_saddlepoint);
+  // A genotype in the covariate span (gt = 0) with a rounding-sized V and u.
+  const Eigen::VectorXd in_span = 2.0 * cohort.design.col(0) - 0.5 * cohort.design.col(1);
+  result = saddlepoint_score_log_p(context, in_span, 1e-14, 1e-30);
+  EXPECT_TRUE(std::isfinite(result.log_p));
+  EXPECT_LE(result.log_p, 0.0);
+  // u beyond anything U can take: the saddlepoint does not exist; the result falls back.
+  Eigen::VectorXd adjusted;
+  context.adjust_genotype(cohort.genotype, adjusted);
+  const double variance = (model.weights.array() * adjusted.array().square()).sum();
+  result = saddlepoint_score_log_p(context, cohort.genotype, 1e3, variance);
+  EXPECT_TRUE(std::isfinite(result.log_p));
+  EXPECT_TRUE(result.fell_back);
+  EXPECT_FALSE(result.used_saddlepoint);
+  // Non-finite input.
+  result = saddlepoint_score_log_p(context, cohort.genotype, std::nan(""), variance);
+  EXPECT_EQ(result.log_p, 0.0);
+}
+
+TEST(Saddlepoint, ExtremeProbabilitiesMatchEnumeration) {
+  // mu from 1e-9 to 1 - 1e-9: the tilted terms must neither overflow nor cancel.
+  const int n = 16;
+  Eigen::MatrixXd design(n, 2);
+  Eigen::VectorXd mu(n), g = Eigen::VectorXd::Zero(n);
+  for (int sample_idx = 0; sample_idx < n; ++sample_idx) {
+    const double covariate = (sample_idx - 7.5) / 4.6;
+    design(sample_idx, 0) = 1.0;
+    design(sample_idx, 1) = covariate;
+    mu[sample_idx] = logistic(-4.0 + 11.0 * covariate);  // 1e-9 ... 1 - 1e-5
+  }
+  mu[0] = 1e-9;
+  mu[n - 1] = 1.0 - 1e-9;
+  for (int sample_idx : {1, 4, 6, 8, 13}) g[sample_idx] = 1.0;
+  const NullModel model = model_with_probabilities(design, mu);
+  const SaddlepointContext context(model);
+  Eigen::VectorXd adjusted;
+  context.adjust_genotype(g, adjusted);
+  const double variance = (model.weights.array() * adjusted.array().square()).sum();
+  const EnumeratedLaw law(adjusted, mu);  // exact reference: all 2^16 outcomes
+  double worst = 0.0;
+  int compared = 0;
+  for (double z_score = 2.0; z_score < 12.0; z_score += 0.25) {
+    const double u = z_score * std::sqrt(variance);
+    const double exact = law.upper_tail(u) + law.lower_tail(-u);
+    const SaddlepointResult result = saddlepoint_score_log_p(context, g, u, variance);
+    ASSERT_TRUE(std::isfinite(result.log_p)) << z_score;
+    ASSERT_LE(result.log_p, 0.0);
+    if (exact < 1e-6 || !result.used_saddlepoint) continue;
+    worst = std::max(worst, std::fabs(result.log_p - std::log(exact)));
+    ++compared;
+  }
+  std::cout << "[ accuracy ] extreme mu vs enumeration (n = 16): " << compared
+            << " values, max |ln p - ln p_exact| " << worst << "\n";
+  EXPECT_GE(compared, 5);
+  EXPECT_LE(worst, std::log(2.0));  // within a factor of 2 even on a coarse lattice
+}
+
+// ---------------------------------------------------------------------------
+// Calibration of the score test for rare variants and a rare binary trait
+// ---------------------------------------------------------------------------
+
+// The central 99.9% acceptance region of Bin(size, prob): the smallest k with
+// P(X <= k) >= 0.0005 and the smallest with P(X <= k) >= 0.9995 (qbinom's definition).
+std::pair<int, int> binomial_bounds(int size, double prob) {
+  int lower = -1, upper = -1;
+  double log_cdf = -kInfinity;
+  for (int k = 0; k <= size && upper < 0; ++k) {
+    log_cdf = log_add(log_cdf, log_binomial_pmf(k, size, prob));
+    if (lower < 0 && log_cdf >= std::log(0.0005)) lower = k;
+    if (log_cdf >= std::log(0.9995)) upper = k;
+  }
+  return {lower, upper};
+}
+
+TEST(Calibration, BinomialBoundsMatchR) {
+  // R 4.2.2: qbinom(c(0.0005, 0.9995), size, prob)
+  struct Row { int size; double prob; int lower, upper; };
+  const Row rows[] = {{4000, 0.01, 21, 62},    {4000, 0.001, 0, 12},   {10000, 0.01, 69, 134},
+                      {10000, 0.001, 2, 22},   {20000, 0.01, 155, 248}, {20000, 0.001, 7, 36}};
+  for (const Row& row : rows) {
+    const auto [lower, upper] = binomial_bounds(row.size, row.prob);
+    EXPECT_EQ(lower, row.lower) << row.size << " " << row.prob;
+    EXPECT_EQ(upper, row.upper) << row.size << " " << row.prob;
+  }
+}
+
+struct TypeOneCounts {
+  int variants = 0;  // MAC 1..59
+  int saddlepoint_below[2] = {0, 0};  // p < 0.01, p < 0.001
+  int normal_below[2] = {0, 0};
+  int saddlepoint_calls = 0;
+  int fell_back = 0;
+};
+
+// One simulated null cohort: n samples, three covariates, prevalence ~3%,
+// `variant_count` variants with MAF uniform on [0.001, 0.01] drawn
+// independently of the trait. Counts p-values below 0.01 and 0.001.
+void scan_null_cohort(std::uint64_t seed, int n, int variant_count, TypeOneCounts& counts) {
+  Xoshiro random(seed);
+  Eigen::MatrixXd design(n, 4);
+  Eigen::VectorXd y(n);
+  for (int sample_idx = 0; sample_idx < n; ++sample_idx) {
+    design(sample_idx, 0) = 1.0;
+    design(sample_idx, 1) = random.normal();
+    design(sample_idx, 2) = random.uniform() < 0.4 ? 1.0 : 0.0;
+    design(sample_idx, 3) = random.normal();
+    const double eta = -3.9 + 0.5 * design(sample_idx, 1) + 0.5 * design(sample_idx, 2) -
+                       0.4 * design(sample_idx, 3);
+    y[sample_idx] = random.uniform() < logistic(eta) ? 1.0 : 0.0;
+  }
+  const NullModel model =
+      fit_null_model("simulated", TraitKind::binary, y, design, {"intercept", "x1", "x2", "x3"});
+  const ScoreKernel kernel(model);
+  const SaddlepointContext context(model);
+  ScoreScratch scratch;
+  const int width = 64;
+  std::vector<double> block(static_cast<std::size_t>(n) * width);
+  std::vector<ScoreResult> scores(width);
+  std::vector<int> minor_allele_counts(width);
+  Eigen::VectorXd genotype(n);
+  const double thresholds[2] = {std::log(0.01), std::log(0.001)};
+  for (int block_start = 0; block_start < variant_count; block_start += width) {
+    for (int variant_idx = 0; variant_idx < width; ++variant_idx) {
+      const double freq = 0.001 + 0.009 * random.uniform();
+      const double hom = freq * freq;
+      const double het_or_hom = hom + 2.0 * freq * (1.0 - freq);
+      int count = 0;
+      for (int sample_idx = 0; sample_idx < n; ++sample_idx) {
+        const double draw = random.uniform();
+        const int dosage = draw < hom ? 2 : (draw < het_or_hom ? 1 : 0);
+        block[static_cast<std::size_t>(sample_idx) * width + variant_idx] = dosage;
+        count += dosage;
+      }
+      minor_allele_counts[variant_idx] = count;
+    }
+    kernel.compute(block.data(), width, scratch, scores.data());
+    for (int variant_idx = 0; variant_idx < width; ++variant_idx) {
+      const int mac = minor_allele_counts[variant_idx];
+      if (mac < 1 || mac >= 60 || !scores[variant_idx].testable) continue;
+      for (int sample_idx = 0; sample_idx < n; ++sample_idx) {
+        genotype[sample_idx] = block[static_cast<std::size_t>(sample_idx) * width + variant_idx];
+      }
+      const ScoreResult& score = scores[variant_idx];
+      const SaddlepointResult spa = saddlepoint_score_log_p(context, genotype, score.u, score.v);
+      ++counts.variants;
+      counts.saddlepoint_calls += spa.used_saddlepoint;
+      counts.fell_back += spa.fell_back;
+      for (int level = 0; level < 2; ++level) {
+        counts.saddlepoint_below[level] += spa.log_p < thresholds[level];
+        counts.normal_below[level] += score.log_p < thresholds[level];
+      }
+    }
+  }
+}
+
+TEST(Calibration, SaddlepointKeepsTypeOneErrorForRareVariantsAndRareTrait) {
+  // Method: Dey et al. 2017 (AJHG 101:37-49) show the saddlepoint score test
+  // calibrated, and the normal approximation anti-conservative, for rare
+  // variants and unbalanced case-control ratios. Check: under the null, the
+  // number of p < alpha among N variants is Bin(N, alpha); the counts must lie
+  // in its central 99.9% region (binomial_bounds, checked against R's qbinom).
+  TypeOneCounts counts;
+  for (std::uint64_t cohort_idx = 0; cohort_idx < 3; ++cohort_idx) {
+    scan_null_cohort(20240601 + cohort_idx, 3000, 6000, counts);
+  }
+  const double levels[2] = {0.01, 0.001};
+  std::cout << "[ calibration ] " << counts.variants << " null variants with MAC < 60, n = 3000, "
+            << "prevalence ~3%; saddlepoint used for " << counts.saddlepoint_calls << ", fell back "
+            << counts.fell_back << "\n";
+  for (int level = 0; level < 2; ++level) {
+    const auto [lower, upper] = binomial_bounds(counts.variants, levels[level]);
+    std::cout << "[ calibration ] alpha " << levels[level] << ": expected "
+              << counts.variants * levels[level] << ", 99.9% bounds [" << lower << ", " << upper
+              << "], saddlepoint " << counts.saddlepoint_below[level] << ", normal "
+              << counts.normal_below[level] << "\n";
+    EXPECT_GE(counts.saddlepoint_below[level], lower) << levels[level];
+    EXPECT_LE(counts.saddlepoint_below[level], upper) << levels[level];
+  }
+  EXPECT_EQ(counts.fell_back, 0);
+}
+}  // namespace
+}  // namespace tamis
