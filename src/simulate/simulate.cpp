@@ -1,6 +1,7 @@
 #include "tamis/simulate.hpp"
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <string>
 #include <vector>
@@ -66,6 +67,11 @@ struct Village {
   double fev1_shift;
 };
 constexpr Village kVillages[] = {{"hollin_bay", 0.2, 0.0}, {"gull_point", 0.5, 0.1}, {"reedmouth", 0.8, -0.15}};
+
+// Within a run of linked common variants each allele is the neighbour's with
+// this probability; a run ends at a variant with the break probability.
+constexpr double kHaplotypeCopy = 0.9;
+constexpr double kHaplotypeBreak = 0.15;
 
 struct Person {
   std::string id;
@@ -192,7 +198,7 @@ void write_genotypes(const SimulationOptions& options, const std::vector<Person>
   for (int variant_idx = 0; variant_idx < options.variants; ++variant_idx) {
     const std::size_t contig = std::min<std::size_t>(variant_idx / per_chromosome, contig_lengths.size() - 1);
     std::int64_t& last = contig_lengths[contig];
-    last = (last == 0 ? 10000 : last) + 50 + static_cast<std::int64_t>(random.index(3000));
+    last = (last == 0 ? 10000 : last) + 200 + static_cast<std::int64_t>(random.index(20000));
     positions[contig].push_back(last);
   }
   for (auto& length : contig_lengths) length += 10000;
@@ -202,6 +208,8 @@ void write_genotypes(const SimulationOptions& options, const std::vector<Person>
   std::string line;
   std::size_t variant_idx = 0;
   for (std::size_t contig = 0; contig < positions.size(); ++contig) {
+    bool previous_common = false;
+    std::vector<std::array<int, 2>> haplotypes(people.size(), std::array<int, 2>{0, 0});
     for (std::int64_t position : positions[contig]) {
       CausalVariant* planted = find_causal(causal, variant_idx);
       VariantDesign design = design_variant(options, random);
@@ -214,6 +222,10 @@ void write_genotypes(const SimulationOptions& options, const std::vector<Person>
         planted->chromosome = std::to_string(contig + 1);
         planted->position = position;
       }
+      // Neighbouring common variants share haplotypes, so that associations
+      // show as peaks of several variants in linkage disequilibrium.
+      const bool common = !design.triallelic && design.frequency_a > 0.05 && design.frequency_b > 0.05;
+      const bool linked = common && previous_common && !random.bernoulli(kHaplotypeBreak);
       const char* ref = random_base(random);
       const char* alt = random_base(random);
       while (alt == ref) alt = random_base(random);
@@ -224,11 +236,14 @@ void write_genotypes(const SimulationOptions& options, const std::vector<Person>
       line += random.bernoulli(0.7) ? "rs" + std::to_string(1000000 + variant_idx) : std::string(".");
       line += std::string("\t") + ref + "\t" + alt + (design.triallelic ? std::string(",") + alt2 : "");
       line += "\t.\tPASS\t.\tGT:DS";
-      for (const Person& person : people) {
+      for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
+        const Person& person = people[person_idx];
         const double frequency =
             person.ancestry * design.frequency_a + (1.0 - person.ancestry) * design.frequency_b;
-        int alleles[2];
-        for (int& allele : alleles) {
+        int* alleles = haplotypes[person_idx].data();
+        for (int copy_idx = 0; copy_idx < 2; ++copy_idx) {
+          int& allele = alleles[copy_idx];
+          if (linked && random.bernoulli(kHaplotypeCopy)) continue;  // keeps the neighbour's allele
           allele = random.bernoulli(frequency) ? 1 : 0;
           if (allele == 0 && design.triallelic && random.bernoulli(design.second_alt_frequency)) allele = 2;
         }
@@ -253,6 +268,7 @@ void write_genotypes(const SimulationOptions& options, const std::vector<Person>
       }
       line += '\n';
       vcf.write(line);
+      previous_common = common;
       ++variant_idx;
     }
   }

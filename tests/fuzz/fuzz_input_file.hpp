@@ -1,0 +1,54 @@
+// The fuzz input as a file, for entry points that take a path. One file per
+// process, rewritten for every input; kept in memory-backed /dev/shm when it
+// exists so that the disk does not slow the fuzzer down.
+#pragma once
+
+#include <unistd.h>
+
+#include <cstddef>
+#include <cstdint>
+#include <cstdio>
+#include <cstdlib>
+#include <string>
+
+namespace tamis::fuzzing {
+
+class FuzzInputFile {
+ public:
+  explicit FuzzInputFile(const std::string& suffix) {
+    const char* folder = access("/dev/shm", W_OK) == 0 ? "/dev/shm" : "/tmp";
+    path_ = std::string(folder) + "/tamis-fuzz-XXXXXX" + suffix;
+    const int descriptor = mkstemps(path_.data(), static_cast<int>(suffix.size()));
+    if (descriptor < 0) {
+      std::perror("tamis fuzz: cannot create the input file");
+      std::abort();
+    }
+    close(descriptor);
+  }
+  ~FuzzInputFile() { unlink(path_.c_str()); }
+  FuzzInputFile(const FuzzInputFile&) = delete;
+  FuzzInputFile& operator=(const FuzzInputFile&) = delete;
+
+  const std::string& path() const { return path_; }
+
+  void write(const void* data, std::size_t size) const {
+    std::FILE* file = std::fopen(path_.c_str(), "wb");
+    const bool written = file && std::fwrite(data, 1, size, file) == size;
+    if (!file || std::fclose(file) != 0 || !written) {
+      std::perror("tamis fuzz: cannot write the input file");
+      std::abort();
+    }
+  }
+  void write(const std::string& text) const { write(text.data(), text.size()); }
+
+ private:
+  std::string path_;
+};
+
+// A broken promise of the code under test: stop so that libFuzzer keeps the input.
+[[noreturn]] inline void report_broken_invariant(const char* what) {
+  std::fprintf(stderr, "tamis fuzz: broken invariant: %s\n", what);
+  std::abort();
+}
+
+}  // namespace tamis::fuzzing
