@@ -34,6 +34,8 @@ class ResultsReader {
   // was not among the required ones, since asking for it is a coding mistake.
   std::size_t column_index(std::string_view name) const;
 
+  // The current data line without its line end (valid until next_row()).
+  std::string_view line() const;
   // The raw text of a field in the current line (valid until next_row()).
   std::string_view field(std::size_t column) const;
   bool is_missing(std::size_t column) const;  // "#NA"

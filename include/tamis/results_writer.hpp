@@ -138,4 +138,10 @@ struct SidecarFields {
 // data_file_md5sum from the committed data file.
 void write_metadata_sidecar(const std::string& data_path, const SidecarFields& fields);
 
+// Reads a sidecar that write_metadata_sidecar wrote: the known keys go to
+// their fields, every other top-level key to `extra`; data_md5 receives
+// data_file_md5sum. Throws tamis::Error (results_input) naming the line of
+// anything it cannot read.
+SidecarFields read_metadata_sidecar(const std::string& sidecar_path, std::string* data_md5 = nullptr);
+
 }  // namespace tamis

@@ -10,6 +10,7 @@
 #include <thread>
 
 #include "tamis/errors.hpp"
+#include "tamis/merge.hpp"
 #include "tamis/report.hpp"
 #include "tamis/results_writer.hpp"
 #include "tamis/run_log.hpp"
@@ -251,6 +252,21 @@ int execute_report(ReportArguments arguments) {
   return 0;
 }
 
+void add_merge_command(CLI::App& app, MergeOptions& options) {
+  CLI::App* merge = app.add_subcommand("merge", "Join the parts of a sharded scan");
+  merge->add_option("--out", options.out_prefix, "Output prefix of the merged results")->required();
+  merge->add_option("parts", options.part_prefixes, "The --out prefix of every shard")->required();
+}
+
+int execute_merge(const MergeOptions& options) {
+  check_output_prefix_writable(options.out_prefix);
+  RunLog& log = current_log();
+  log.open(options.out_prefix + ".log");
+  const MergeSummary summary = merge_shards(options);
+  for (const std::string& path : summary.result_files) log.line("results: " + path);
+  return 0;
+}
+
 int execute_scan(const ScanArguments& arguments, const std::string& command_line) {
   const ScanOptions options = check_scan_options(arguments, command_line);
   RunLog& log = current_log();
@@ -304,6 +320,8 @@ int run_command_line(int argc, char** argv) {
   add_simulate_command(app, simulation_options);
   ReportArguments report_arguments;
   add_report_command(app, report_arguments);
+  MergeOptions merge_options;
+  add_merge_command(app, merge_options);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& error) {
@@ -313,6 +331,7 @@ int run_command_line(int argc, char** argv) {
   try {
     if (app.got_subcommand("scan")) return execute_scan(scan_arguments, join_command_line(argc, argv));
     if (app.got_subcommand("report")) return execute_report(report_arguments);
+    if (app.got_subcommand("merge")) return execute_merge(merge_options);
     return execute_simulate(simulation_options);
   } catch (const Error& error) {
     std::fprintf(stderr, "tamis: error: %s\n", error.what());

@@ -15,6 +15,8 @@
 #include <cmath>
 #include <limits>
 #include <vector>
+#include <cstdio>
+#include <cstdlib>
 
 #include "tamis/distributions.hpp"
 
@@ -179,6 +181,7 @@ bool log_tail_of_terms(const AdjustedTerms& terms, double x, double* log_tail) {
   const double ratio = v / w;
   if (!(ratio > 0.0) || !std::isfinite(ratio)) return false;
   const double adjusted_w = w + std::log(ratio) / w;
+  if (getenv("SPA_DEBUG")) fprintf(stderr, "x %g zeta %g w %g v %g chernoff %g\n", x, zeta, w, v, -exponent);
   *log_tail = log_normal_upper_tail(upper ? adjusted_w : -adjusted_w);
   return std::isfinite(*log_tail) && *log_tail <= 0.0;
 }

@@ -1,8 +1,11 @@
 // The GWAS-SSF metadata file that travels beside a results file.
 #include <cassert>
 #include <cstdio>
+#include <cstdlib>
+#include <fstream>
 #include <string>
 
+#include "tamis/errors.hpp"
 #include "tamis/results_writer.hpp"
 
 namespace tamis {
@@ -112,7 +115,105 @@ std::string sidecar_text(const std::string& data_path, const SidecarFields& fiel
   return text;
 }
 
+std::string unquote_yaml(const std::string& text) {
+  if (text.size() < 2 || text.front() != '"' || text.back() != '"') return text;
+  std::string plain;
+  for (std::size_t char_idx = 1; char_idx + 1 < text.size(); ++char_idx) {
+    char letter = text[char_idx];
+    if (letter != '\\' || char_idx + 2 >= text.size()) {
+      plain += letter;
+      continue;
+    }
+    const char escaped = text[++char_idx];
+    switch (escaped) {
+      case 'n': plain += '\n'; break;
+      case 't': plain += '\t'; break;
+      case 'r': plain += '\r'; break;
+      case 'x':
+        if (char_idx + 2 < text.size()) {
+          plain += static_cast<char>(std::stoi(text.substr(char_idx + 1, 2), nullptr, 16));
+          char_idx += 2;
+        }
+        break;
+      default: plain += escaped;
+    }
+  }
+  return plain;
+}
+
+// Splits "key: value" (value may be empty); false for lines of another shape.
+bool split_key_value(const std::string& line, std::string& key, std::string& value) {
+  const std::size_t colon = line.find(':');
+  if (colon == std::string::npos) return false;
+  key = line.substr(0, colon);
+  const std::size_t start = line.find_first_not_of(' ', colon + 1);
+  value = start == std::string::npos ? std::string() : line.substr(start);
+  return true;
+}
+
+std::size_t parse_count(const std::string& text, const std::string& where) {
+  char* end = nullptr;
+  const unsigned long long value = std::strtoull(text.c_str(), &end, 10);
+  if (text.empty() || *end != '\0') {
+    throw Error(ExitCode::results_input, where, "expected a count, found '" + text + "'",
+                "the metadata file was edited or damaged; rerun the scan that wrote it");
+  }
+  return static_cast<std::size_t>(value);
+}
+
 }  // namespace
+
+SidecarFields read_metadata_sidecar(const std::string& sidecar_path, std::string* data_md5) {
+  std::ifstream input(sidecar_path);
+  if (!input) {
+    throw Error(ExitCode::results_input, sidecar_path, "cannot read the metadata file",
+                "each results file needs its FILE-meta.yaml beside it");
+  }
+  SidecarFields fields;
+  std::string line, list_key, key, value;
+  std::size_t line_number = 0;
+  while (std::getline(input, line)) {
+    ++line_number;
+    const std::string where = sidecar_path + ", line " + std::to_string(line_number);
+    if (line.empty() || line[0] == '#') continue;
+    if (line.rfind("  - ", 0) == 0 && list_key != "samples") {
+      const std::string item = unquote_yaml(line.substr(4));
+      if (list_key == "adjusted_covariates") fields.adjusted_covariates.push_back(item);
+      if (list_key == "trait_description") fields.trait_description = item;
+      continue;
+    }
+    if (line[0] == ' ') {
+      std::string trimmed = line.substr(line.find_first_not_of(" -"));
+      if (!split_key_value(trimmed, key, value)) continue;
+      if (key == "sample_size") fields.sample_size = parse_count(value, where);
+      if (key == "case_count") fields.case_count = parse_count(value, where);
+      if (key == "control_count") fields.control_count = parse_count(value, where);
+      continue;
+    }
+    if (!split_key_value(line, key, value)) {
+      throw Error(ExitCode::results_input, where, "expected 'key: value'",
+                  "the metadata file was edited or damaged; rerun the scan that wrote it");
+    }
+    list_key = value.empty() ? key : std::string();
+    value = unquote_yaml(value);
+    if (key == "data_file_name") {
+      fields.data_file_name = value;
+    } else if (key == "genome_assembly") {
+      fields.genome_assembly = value;
+    } else if (key == "data_file_md5sum") {
+      if (data_md5) *data_md5 = value;
+    } else if (key == "analysis_software") {
+      fields.software_version = value.rfind("tamis ", 0) == 0 ? value.substr(6) : value;
+    } else if (key == "file_type" || key == "coordinate_system" || key == "is_harmonised" ||
+               key == "is_sorted" || key == "adjusted_covariates" || key == "trait_description" ||
+               key == "samples") {
+      continue;
+    } else {
+      fields.extra.emplace_back(key, value);
+    }
+  }
+  return fields;
+}
 
 void write_metadata_sidecar(const std::string& data_path, const SidecarFields& fields) {
   PlainTextFile sidecar(data_path + "-meta.yaml");

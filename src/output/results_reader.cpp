@@ -157,6 +157,8 @@ std::size_t ResultsReader::column_index(std::string_view name) const {
   return static_cast<std::size_t>(found - header_.begin());
 }
 
+std::string_view ResultsReader::line() const { return impl_->line; }
+
 std::string_view ResultsReader::field(std::size_t column) const {
   std::string_view line(impl_->line);
   return line.substr(field_starts_[column], field_ends_[column] - field_starts_[column]);

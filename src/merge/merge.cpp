@@ -1,0 +1,235 @@
+#include "tamis/merge.hpp"
+
+#include <glob.h>
+
+#include <algorithm>
+#include <fstream>
+#include <map>
+#include <set>
+#include <sstream>
+
+#include "tamis/errors.hpp"
+#include "tamis/results_reader.hpp"
+#include "tamis/results_writer.hpp"
+#include "tamis/run_log.hpp"
+
+namespace tamis {
+namespace {
+
+struct Range {
+  std::string contig;
+  long long first = 0;
+  long long last = 0;
+};
+
+struct Part {
+  std::string prefix;
+  int shard = 0;
+  int shard_count = 0;
+  std::string fingerprint;
+  std::vector<Range> ranges;
+  std::map<std::string, std::string> result_paths;  // trait -> file
+  SidecarFields sidecar;                             // of the first trait's file
+};
+
+[[noreturn]] void refuse(const std::string& where, const std::string& what, const std::string& fix) {
+  throw Error(ExitCode::usage, where, what, fix);
+}
+
+// Every PREFIX.TRAIT.tsv.gz beside the prefix, by trait.
+std::map<std::string, std::string> find_result_files(const std::string& prefix) {
+  std::map<std::string, std::string> files;
+  glob_t matches{};
+  const std::string pattern = prefix + ".*.tsv.gz";
+  if (glob(pattern.c_str(), 0, nullptr, &matches) == 0) {
+    for (std::size_t match_idx = 0; match_idx < matches.gl_pathc; ++match_idx) {
+      const std::string path = matches.gl_pathv[match_idx];
+      const std::string trait = path.substr(prefix.size() + 1, path.size() - prefix.size() - 1 - 7);
+      files[trait] = path;
+    }
+  }
+  globfree(&matches);
+  if (files.empty()) {
+    refuse(prefix, "no results files PREFIX.TRAIT.tsv.gz were found for this part",
+           "give the --out prefix of each finished `tamis scan --shard K/N`");
+  }
+  return files;
+}
+
+std::string extra_value(const SidecarFields& fields, const std::string& key) {
+  for (const auto& [name, value] : fields.extra) {
+    if (name == key) return value;
+  }
+  return "";
+}
+
+std::vector<Range> parse_ranges(const std::string& text, const std::string& where) {
+  std::vector<Range> ranges;
+  std::istringstream items(text);
+  std::string item;
+  while (std::getline(items, item, ';')) {
+    const std::size_t colon = item.rfind(':');
+    const std::size_t dash = item.rfind('-');
+    if (colon == std::string::npos || dash == std::string::npos || dash < colon) {
+      throw Error(ExitCode::results_input, where, "cannot read the shard range '" + item + "'",
+                  "the metadata file was edited or damaged; rerun that shard");
+    }
+    ranges.push_back({item.substr(0, colon), std::stoll(item.substr(colon + 1, dash - colon - 1)),
+                      std::stoll(item.substr(dash + 1))});
+  }
+  return ranges;
+}
+
+Part read_part(const std::string& prefix) {
+  Part part;
+  part.prefix = prefix;
+  part.result_paths = find_result_files(prefix);
+  const std::string sidecar_path = part.result_paths.begin()->second + "-meta.yaml";
+  part.sidecar = read_metadata_sidecar(sidecar_path);
+  const std::string shard = extra_value(part.sidecar, kShardKey);
+  if (shard.empty() || std::sscanf(shard.c_str(), "%d/%d", &part.shard, &part.shard_count) != 2) {
+    refuse(sidecar_path, "this part was not scanned as a shard (no " + std::string(kShardKey) + " entry)",
+           "merge only the outputs of `tamis scan --shard K/N`");
+  }
+  part.fingerprint = extra_value(part.sidecar, kFingerprintKey);
+  part.ranges = parse_ranges(extra_value(part.sidecar, kShardRangesKey), sidecar_path);
+  return part;
+}
+
+void check_same_run(const std::vector<Part>& parts) {
+  const Part& first = parts.front();
+  for (const Part& part : parts) {
+    if (part.fingerprint != first.fingerprint || part.shard_count != first.shard_count) {
+      refuse(part.prefix,
+             "this part comes from a different run than " + first.prefix + " (fingerprint " + part.fingerprint +
+                 " of " + std::to_string(part.shard_count) + " shards, against " + first.fingerprint + " of " +
+                 std::to_string(first.shard_count) + ")",
+             "merge parts scanned with the same inputs, options and shard count; rerun the odd ones out");
+    }
+    std::set<std::string> traits, first_traits;
+    for (const auto& entry : part.result_paths) traits.insert(entry.first);
+    for (const auto& entry : first.result_paths) first_traits.insert(entry.first);
+    if (traits != first_traits) {
+      refuse(part.prefix, "this part has results for other traits than " + first.prefix,
+             "check that every part finished and that no files were removed");
+    }
+  }
+}
+
+void check_complete(const std::vector<Part>& parts) {
+  const int shard_count = parts.front().shard_count;
+  std::map<int, std::string> seen;
+  for (const Part& part : parts) {
+    auto [existing, inserted] = seen.emplace(part.shard, part.prefix);
+    if (!inserted) {
+      refuse(part.prefix, "shard " + std::to_string(part.shard) + "/" + std::to_string(shard_count) +
+                              " is given twice (also as " + existing->second + ")",
+             "give each shard once");
+    }
+  }
+  std::string missing;
+  for (int shard = 1; shard <= shard_count; ++shard) {
+    if (!seen.count(shard)) missing += (missing.empty() ? "" : ", ") + std::to_string(shard);
+  }
+  if (!missing.empty()) {
+    refuse("tamis merge", "shards " + missing + " of " + std::to_string(shard_count) + " are missing",
+           "run the missing shards (tamis scan ... --shard K/" + std::to_string(shard_count) + ") and merge again");
+  }
+}
+
+bool ranges_overlap(const Range& left, const Range& right) {
+  return left.contig == right.contig && left.first <= right.last && right.first <= left.last;
+}
+
+void check_disjoint(const std::vector<Part>& parts) {
+  for (std::size_t left_idx = 0; left_idx < parts.size(); ++left_idx) {
+    for (std::size_t right_idx = left_idx + 1; right_idx < parts.size(); ++right_idx) {
+      for (const Range& left : parts[left_idx].ranges) {
+        for (const Range& right : parts[right_idx].ranges) {
+          if (ranges_overlap(left, right)) {
+            refuse(parts[right_idx].prefix,
+                   "this part overlaps " + parts[left_idx].prefix + " on " + left.contig + ":" +
+                       std::to_string(std::max(left.first, right.first)) + "-" +
+                       std::to_string(std::min(left.last, right.last)),
+                   "merge the parts of one sharded run only");
+          }
+        }
+      }
+    }
+  }
+}
+
+void copy_rows(const std::string& path, bool with_header, BgzfTextFile& out) {
+  ResultsReader reader(path);
+  std::string text;
+  if (with_header) text = result_header_line();
+  while (reader.next_row()) {
+    text.append(reader.line());
+    text += '\n';
+    if (text.size() > (1u << 20)) {
+      out.write(text);
+      text.clear();
+    }
+  }
+  out.write(text);
+}
+
+// The merged file describes the whole run: shard entries go, the run's
+// fingerprint stays.
+void drop_shard_entries(SidecarFields& fields) {
+  std::vector<std::pair<std::string, std::string>> kept;
+  for (const auto& entry : fields.extra) {
+    if (entry.first != kShardKey && entry.first != kShardRangesKey) kept.push_back(entry);
+  }
+  fields.extra = kept;
+}
+
+std::string merge_trait(const MergeOptions& options, const std::vector<Part>& parts, const std::string& trait) {
+  const std::string path = options.out_prefix + "." + trait + ".tsv.gz";
+  BgzfTextFile out(path);
+  for (std::size_t part_idx = 0; part_idx < parts.size(); ++part_idx) {
+    copy_rows(parts[part_idx].result_paths.at(trait), part_idx == 0, out);
+  }
+  out.commit(IndexKind::tabix_results);
+  SidecarFields fields = read_metadata_sidecar(parts.front().result_paths.at(trait) + "-meta.yaml");
+  drop_shard_entries(fields);
+  fields.data_file_name.clear();
+  write_metadata_sidecar(path, fields);
+  return path;
+}
+
+void write_combined_log(const std::vector<Part>& parts) {
+  std::string text;
+  for (const Part& part : parts) {
+    text += "== shard " + std::to_string(part.shard) + "/" + std::to_string(part.shard_count) + ": " + part.prefix +
+            ".log ==\n";
+    std::ifstream input(part.prefix + ".log");
+    std::stringstream content;
+    content << input.rdbuf();
+    text += input ? content.str() : std::string("(no log found)\n");
+  }
+  current_log().detail(text);
+}
+
+}  // namespace
+
+MergeSummary merge_shards(const MergeOptions& options) {
+  if (options.part_prefixes.empty()) refuse("tamis merge", "no parts given", "list the --out prefix of every shard");
+  std::vector<Part> parts;
+  for (const std::string& prefix : options.part_prefixes) parts.push_back(read_part(prefix));
+  check_same_run(parts);
+  check_complete(parts);
+  check_disjoint(parts);
+  std::sort(parts.begin(), parts.end(), [](const Part& a, const Part& b) { return a.shard < b.shard; });
+
+  MergeSummary summary;
+  summary.shard_count = parts.front().shard_count;
+  current_log().line("merging " + std::to_string(parts.size()) + " shards of run " + parts.front().fingerprint);
+  for (const auto& entry : parts.front().result_paths) {
+    summary.result_files.push_back(merge_trait(options, parts, entry.first));
+  }
+  write_combined_log(parts);
+  return summary;
+}
+
+}  // namespace tamis
