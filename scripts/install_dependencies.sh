@@ -1,13 +1,15 @@
 #!/usr/bin/env bash
-# Installs the Debian packages tamis needs to build, test and run its demo.
+# Installs the Debian packages tamis needs to build, test and run its demo
+# (clang 14 and its runtime libraries build the libFuzzer targets).
 # Packages already present are left alone; installing needs root.
 set -euo pipefail
 packages=(
   build-essential cmake pkg-config
   libhts-dev libeigen3-dev libtbb-dev libcli11-dev zlib1g-dev
   libgtest-dev libbenchmark-dev
-  r-base-core bcftools tabix
+  r-base-core bcftools tabix snakemake
   libcairo2-dev python3-pandas python3-matplotlib
+  clang-14 libclang-rt-14-dev
 )
 missing=()
 for package in "${packages[@]}"; do

@@ -1,11 +1,36 @@
 #!/usr/bin/env bash
-# Installs what is missing, builds tamis, and runs the whole test suite with ctest.
+# Installs what is missing, builds tamis and runs the whole test suite with
+# ctest; then runs the suite again under AddressSanitizer and
+# UndefinedBehaviorSanitizer, and, where clang is installed, each libFuzzer
+# target of the input parsers for a bounded time (TAMIS_FUZZ_SECONDS, default 45).
 set -euo pipefail
 root=$(cd "$(dirname "$0")/.." && pwd)
 cd "$root"
 ./scripts/install_dependencies.sh
 build=${TAMIS_BUILD_DIR:-build}
+asan_build=${TAMIS_ASAN_BUILD_DIR:-build-asan}
+fuzz_build=${TAMIS_FUZZ_BUILD_DIR:-build-fuzz}
 jobs=$(nproc)
+
 cmake -S . -B "$build" -DCMAKE_BUILD_TYPE=Release
 cmake --build "$build" -j "$jobs"
 ctest --test-dir "$build" --output-on-failure -j "$jobs"
+
+# The sanitized suite leaves out the R reference check, which is slow and
+# checks numbers that the plain build has already checked.
+cmake -S . -B "$asan_build" -DTAMIS_SANITIZE=ON -DCMAKE_BUILD_TYPE=RelWithDebInfo
+cmake --build "$asan_build" -j "$jobs"
+ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
+  ctest --test-dir "$asan_build" --output-on-failure -j "$jobs" -E '^reference_r_stats$'
+
+clang_cxx=$(command -v clang++-14 || command -v clang++ || true)
+clang_c=$(command -v clang-14 || command -v clang || true)
+if [ -n "$clang_cxx" ] && [ -n "$clang_c" ]; then
+  cmake -S . -B "$fuzz_build" -DCMAKE_C_COMPILER="$clang_c" -DCMAKE_CXX_COMPILER="$clang_cxx" \
+    -DCMAKE_BUILD_TYPE=RelWithDebInfo -DTAMIS_FUZZ=ON -DTAMIS_BUILD_TESTS=OFF \
+    -DTAMIS_FUZZ_SECONDS="${TAMIS_FUZZ_SECONDS:-45}"
+  cmake --build "$fuzz_build" -j "$jobs" --target fuzz_targets
+  ctest --test-dir "$fuzz_build" --output-on-failure -j "$jobs" -L fuzz
+else
+  echo "test.sh: clang not found, so the fuzz runs are skipped (scripts/install_dependencies.sh installs it)"
+fi

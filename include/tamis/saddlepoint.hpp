@@ -19,6 +19,10 @@
 
 namespace tamis {
 
+namespace detail {
+struct AdjustedTerms;
+}
+
 struct SaddlepointResult {
   double log_p = 0.0;             // ln of the two-sided p: P(U >= |u|) + P(U <= -|u|)
   bool used_saddlepoint = false;  // true when log_p comes from the saddlepoint tails
@@ -31,7 +35,7 @@ struct SaddlepointResult {
 // shared (read-only, so by any number of threads) by every variant.
 class SaddlepointContext {
  public:
-  // `model` must be a binary-trait null model; it must outlive the context.
+  // `model` must be a binary-trait null model (the context keeps its own copies).
   explicit SaddlepointContext(const NullModel& model);
 
   // gt = g - X (X'WX)^-1 X'W g for one variant's dosages (n values, the
@@ -43,6 +47,12 @@ class SaddlepointContext {
   int sample_count() const { return static_cast<int>(mu_.size()); }
 
  private:
+  friend SaddlepointResult saddlepoint_score_log_p(const SaddlepointContext&, const Eigen::VectorXd&,
+                                                   double, double, double);
+  // The terms of U's CGF for one variant: exact for the carriers (g != 0),
+  // and one normal part for the non-carriers. O(carriers x p).
+  detail::AdjustedTerms collect_carrier_terms(const Eigen::VectorXd& genotype, double variance_v) const;
+
   Eigen::VectorXd mu_;
   Eigen::VectorXd one_minus_mu_;  // from the weights, w / mu, so it keeps precision near mu = 1
   Eigen::MatrixXd weighted_basis_;  // W^1/2 Q
@@ -50,7 +60,13 @@ class SaddlepointContext {
 };
 
 // Two-sided p-value of the observed score `score_u` with null variance
-// `variance_v` (both as the score kernel computes them). Below the cut-off
+// `variance_v` (both as the score kernel computes them). The carriers
+// (samples with a non-zero dosage) enter the CGF exactly. With at least 500
+// non-carriers, whose adjusted genotypes are small, those enter through the
+// normal approximation of their joint CGF, with the variance V leaves after
+// the carriers (the fast form of Dey et al. 2017), so one call costs
+// O(carriers x p) plus Newton iterations over the carriers; with fewer, every
+// sample enters exactly (O(n p)). Below the cut-off
 // |u| / sqrt(V) < normal_cutoff the normal approximation is exact enough and is
 // returned (used_saddlepoint = false); beyond it the saddlepoint tails are
 // summed. V <= 0 (nothing to test, e.g. an all-zero genotype) gives ln p = 0.
@@ -65,11 +81,14 @@ SaddlepointResult saddlepoint_score_log_p(const NullModel& model, const Eigen::V
                                           double score_u, double variance_v,
                                           double normal_cutoff = 2.0);
 
-// ln P(U >= x) by the saddlepoint for the adjusted genotype `adjusted` (x may
-// have either sign; for x <= 0 this is the lower tail P(U <= x) instead).
-// Returns false when no usable saddlepoint tail exists; -infinity when x lies
-// beyond the values U can take. Exposed for testing the tails one at a time.
+// ln P(U >= x) by the saddlepoint for U = sum adjusted_i (Y_i - mu_i) + N,
+// N ~ normal(0, gaussian_variance) independent (x may have either sign; for
+// x <= 0 this is the lower tail P(U <= x) instead), every non-zero adjusted
+// value entering the CGF exactly. Returns false when no usable saddlepoint
+// tail exists; -infinity when x lies beyond the values U can take. Exposed
+// for testing the tails one at a time.
 bool saddlepoint_log_tail(const Eigen::VectorXd& adjusted, const Eigen::VectorXd& mu,
-                          const Eigen::VectorXd& one_minus_mu, double x, double* log_tail);
+                          const Eigen::VectorXd& one_minus_mu, double x, double* log_tail,
+                          double gaussian_variance = 0.0);
 
 }  // namespace tamis

@@ -35,6 +35,7 @@ struct ScanOptions {
   bool resume = false;       // continue an interrupted run from its checkpoint
   int shard = 0;             // --shard K/N: K (1-based) and N; 0 when not sharded
   int shard_count = 0;
+  std::vector<GenomicRegion> regions;  // --region: read only these, through the index
   std::size_t records_per_block = 128;
   // Outputs are flushed to a block boundary and the checkpoint is saved every
   // this many blocks, in every run, so a resumed file is byte-identical.

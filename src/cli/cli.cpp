@@ -81,6 +81,8 @@ struct ScanArguments {
   bool quiet = false;
   bool resume = false;
   int checkpoint_blocks = 64;
+  std::string shard;
+  std::vector<std::string> regions;
 };
 
 void check_trait_names(const std::vector<std::string>& traits) {
@@ -121,6 +123,17 @@ DosageField parse_dosage_field(const std::string& text) {
   if (text == "GP") return DosageField::gp;
   if (text == "GT") return DosageField::gt;
   refuse_option("--dosage-from", "'" + text + "' is not auto, DS, GP or GT", "pick one of auto, DS, GP, GT");
+}
+
+void parse_shard(const std::string& text, ScanOptions& options) {
+  if (text.empty()) return;
+  int shard = 0, count = 0;
+  char tail = 0;
+  if (std::sscanf(text.c_str(), "%d/%d%c", &shard, &count, &tail) != 2 || count < 1 || shard < 1 || shard > count) {
+    refuse_option("--shard", "'" + text + "' is not K/N with 1 <= K <= N", "write for example --shard 3/20");
+  }
+  options.shard = shard;
+  options.shard_count = count;
 }
 
 ScanOptions check_scan_options(const ScanArguments& arguments, const std::string& command_line) {
@@ -168,6 +181,11 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
     refuse_option("--checkpoint-blocks", "must be at least 1", "the default is 64");
   }
   options.blocks_per_checkpoint = static_cast<std::size_t>(arguments.checkpoint_blocks);
+  parse_shard(arguments.shard, options);
+  for (const std::string& text : arguments.regions) options.regions.push_back(parse_region(text));
+  if (options.shard_count > 0 && !options.regions.empty()) {
+    refuse_option("--shard", "--shard and --region cannot be combined", "shard the whole genome, or list regions");
+  }
   return options;
 }
 
@@ -196,6 +214,9 @@ void add_scan_command(CLI::App& app, ScanArguments& arguments) {
   scan->add_flag("--quiet", arguments.quiet, "Print nothing but errors (no progress display)");
   scan->add_flag("--resume", arguments.resume,
                  "Continue an interrupted run of the same command from its last checkpoint");
+  scan->add_option("--shard", arguments.shard,
+                   "K/N: scan the K-th of N contiguous parts of the genome, sized from the index");
+  scan->add_option("--region", arguments.regions, "CHR[:FROM-TO]: scan only records there (repeatable)");
   scan->add_option("--checkpoint-blocks", arguments.checkpoint_blocks,
                    "Blocks of 128 records between checkpoints that --resume can continue from")
       ->capture_default_str();

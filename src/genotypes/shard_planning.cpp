@@ -8,12 +8,13 @@
 // every record lands in exactly one shard whatever the estimates are.
 //
 // The estimates: the index's statistics give each contig's record count. To
-// place a cut inside a contig, the contig is profiled in windows that follow
-// the index's own bins (16 kb up, split eight ways while a window holds more
-// than 1/256 of the contig): the compressed bytes an index query for the
-// window would read stand in for its records, scaled so that the windows of
-// a contig add up to its count. Inside a window records are taken as evenly
-// spread.
+// place a cut inside a contig, the contig is swept in fixed windows (16 to
+// 256 kb, about 4096 per contig). An index query for a window returns chunks
+// of virtual offsets; the furthest chunk end seen so far marks how much of
+// the contig's data lies at or before the window, so the growth of that mark
+// from one window to the next stands in for the window's records, scaled so
+// that the windows of a contig add up to its count. Inside a window records
+// are taken as evenly spread.
 #include <htslib/bgzf.h>
 
 #include <algorithm>
@@ -42,8 +43,8 @@ using genotype_detail::IteratorPtr;
 constexpr std::int64_t smallest_window = std::int64_t(1) << 14;
 // A bin-aligned span larger than any indexable contig: 16 kb times 8^11.
 constexpr std::int64_t whole_contig_span = smallest_window << 33;
-constexpr int children_per_window = 8;
-constexpr double split_fraction = 1.0 / 256;  // windows above this share of a contig are split
+constexpr std::int64_t largest_window = std::int64_t(1) << 18;
+constexpr std::int64_t target_windows = 4096;
 constexpr std::size_t ratio_sample_bytes = 1 << 20;
 
 struct Window {
@@ -79,27 +80,35 @@ double estimate_compression_ratio(htsFile* handle) {
 
 class ContigProfiler {
  public:
-  ContigProfiler(const FileIndex& index, double ratio) : index_(index), ratio_(ratio) {}
-
-  // The byte extent an index query over [begin, end) would read.
-  double weigh(int tid, std::int64_t begin, std::int64_t end) const {
-    IteratorPtr iterator = index_.query(tid, begin, end);
-    if (!iterator) return 0.0;
-    double weight = 0.0;
-    for (int chunk_idx = 0; chunk_idx < iterator->n_off; ++chunk_idx) {
-      weight += linear_offset(iterator->off[chunk_idx].v) - linear_offset(iterator->off[chunk_idx].u);
-    }
-    return weight;
-  }
+  ContigProfiler(const FileIndex& index, const bcf_hdr_t* header, double ratio)
+      : index_(index), header_(header), ratio_(ratio) {}
 
   // Windows of the contig holding records, each with its share of `records`.
-  std::vector<Window> profile(int tid, double records) const {
+  std::vector<Window> profile(const genotype_detail::IndexedContig& contig) const {
     std::vector<Window> windows;
-    const double total = weigh(tid, 0, whole_contig_span);
-    if (total <= 0.0) return windows;
-    collect(tid, 0, whole_contig_span, total * split_fraction, windows);
+    IteratorPtr whole = index_.query(contig.tid, 0, whole_contig_span);
+    if (!whole || whole->n_off == 0) return windows;
+    const double start = linear_offset(whole->off[0].u);
+    const double finish = linear_offset(furthest_end(*whole));
+    const std::int64_t window_size = choose_window_size(contig);
+    double reached = start;
+    std::int64_t windows_without_progress = 0;
+    for (std::int64_t begin = 0; reached < finish && begin < whole_contig_span; begin += window_size) {
+      IteratorPtr iterator = index_.query(contig.tid, begin, begin + window_size);
+      const double here = iterator && iterator->n_off > 0
+                              ? std::min(finish, linear_offset(furthest_end(*iterator)))
+                              : reached;
+      if (here > reached) {
+        windows.push_back(Window{begin, begin + window_size, here - reached});
+        reached = here;
+        windows_without_progress = 0;
+      } else if (++windows_without_progress % 4096 == 0 && !holds_records_from(contig.tid, begin)) {
+        break;  // a long empty stretch with nothing after it
+      }
+    }
     double weight_sum = 0.0;
     for (const Window& window : windows) weight_sum += window.records;
+    const double records = static_cast<double>(contig.record_count);
     for (Window& window : windows) window.records = records * window.records / weight_sum;
     return windows;
   }
@@ -118,23 +127,44 @@ class ContigProfiler {
            ratio_ * static_cast<double>(virtual_offset & 0xffff);
   }
 
-  // Windows are weighed before they are kept; `records` holds the weight
-  // until profile() scales it.
-  void collect(int tid, std::int64_t begin, std::int64_t size, double split_above,
-               std::vector<Window>& windows) const {
-    const double weight = weigh(tid, begin, begin + size);
-    if (weight <= 0.0) return;
-    if (size <= smallest_window || weight <= split_above) {
-      windows.push_back(Window{begin, begin + size, weight});
-      return;
+  static std::uint64_t furthest_end(const hts_itr_t& iterator) {
+    std::uint64_t furthest = 0;
+    for (int chunk_idx = 0; chunk_idx < iterator.n_off; ++chunk_idx) {
+      furthest = std::max<std::uint64_t>(furthest, iterator.off[chunk_idx].v);
     }
-    const std::int64_t child_size = size / children_per_window;
-    for (int child_idx = 0; child_idx < children_per_window; ++child_idx) {
-      collect(tid, begin + child_idx * child_size, child_size, split_above, windows);
+    return furthest;
+  }
+
+  bool holds_records_from(int tid, std::int64_t begin) const {
+    IteratorPtr rest = index_.query(tid, begin, whole_contig_span);
+    return rest && rest->n_off > 0;
+  }
+
+  // About `target_windows` windows over the contig's extent: its declared
+  // length, or else the end of the last power-of-two stretch holding records.
+  std::int64_t choose_window_size(const genotype_detail::IndexedContig& contig) const {
+    std::int64_t extent = declared_length(contig.name);
+    if (extent <= 0) {
+      extent = smallest_window;
+      for (std::int64_t stretch = smallest_window; stretch < whole_contig_span; stretch *= 2) {
+        IteratorPtr probe = index_.query(contig.tid, stretch, stretch * 2);
+        if (probe && probe->n_off > 0) extent = stretch * 2;
+      }
     }
+    std::int64_t window_size = smallest_window;
+    while (window_size < largest_window && window_size * target_windows < extent) window_size *= 2;
+    return window_size;
+  }
+
+  std::int64_t declared_length(const std::string& contig) const {
+    if (!header_) return 0;
+    const int header_id = bcf_hdr_name2id(header_, contig.c_str());
+    if (header_id < 0) return 0;
+    return static_cast<std::int64_t>(header_->id[BCF_DT_CTG][header_id].val->info[0]);
   }
 
   const FileIndex& index_;
+  const bcf_hdr_t* header_;
   double ratio_;
 };
 
@@ -145,7 +175,7 @@ std::vector<ContigPlan> profile_genome(const std::vector<std::string>& paths) {
   for (const std::string& path : paths) {
     IndexedFile file(path, "planning shards");
     const FileIndex& index = *file.index;
-    const ContigProfiler profiler(index, estimate_compression_ratio(file.handle));
+    const ContigProfiler profiler(index, file.header, estimate_compression_ratio(file.handle));
     // Contigs in the order their data lies in the file, not in id order.
     std::vector<std::pair<std::uint64_t, const genotype_detail::IndexedContig*>> present;
     for (const genotype_detail::IndexedContig& contig : index.contigs()) {
@@ -158,9 +188,8 @@ std::vector<ContigPlan> profile_genome(const std::vector<std::string>& paths) {
       auto [found, inserted] = rank_of.emplace(contig->name, contigs.size());
       if (inserted) contigs.push_back(ContigPlan{contig->name, 0.0, {}});
       ContigPlan& plan = contigs[found->second];
-      const double records = static_cast<double>(contig->record_count);
-      plan.records += records;
-      std::vector<Window> windows = profiler.profile(contig->tid, records);
+      plan.records += static_cast<double>(contig->record_count);
+      std::vector<Window> windows = profiler.profile(*contig);
       plan.windows.insert(plan.windows.end(), windows.begin(), windows.end());
     }
   }

@@ -60,7 +60,8 @@ PenalizedPoint evaluate_point(const Eigen::MatrixXd& design, const Eigen::Vector
   const Eigen::MatrixXd weighted = root_w.asDiagonal() * design;
   const Eigen::HouseholderQR<Eigen::MatrixXd> qr(weighted);
   point.q = qr.householderQ() * Eigen::MatrixXd::Identity(n, k);
-  point.r = qr.matrixQR().topRows(k).triangularView<Eigen::Upper>();
+  point.r = qr.matrixQR().topRows(k);
+  for (Eigen::Index col = 0; col < k; ++col) point.r.col(col).tail(k - col - 1).setZero();
   double log_det = 0.0;
   for (Eigen::Index col = 0; col < k; ++col) log_det += 2.0 * std::log(std::fabs(point.r(col, col)));
   const double log_likelihood = -0.5 * detail::logistic_deviance(y, eta);
@@ -85,16 +86,24 @@ Eigen::VectorXd modified_score(const Eigen::MatrixXd& design, const Eigen::Vecto
 }
 
 // The Newton step I_FF^-1 U*_F over the first `free_count` coefficients
-// (the rest held fixed), zero-padded to the full length.
+// (the rest held fixed), zero-padded to the full length. I = R'R, and its
+// leading block is R_FF' R_FF because R is upper triangular, so the step is
+// one forward and one back substitution.
 Eigen::VectorXd newton_step(const PenalizedPoint& point, const Eigen::VectorXd& score,
                             Eigen::Index free_count) {
-  const Eigen::Index k = point.r.cols();
-  Eigen::VectorXd step = Eigen::VectorXd::Zero(k);
-  // I = R'R; its leading block is R_FF' R_FF since R is upper triangular.
-  const Eigen::MatrixXd r_free = point.r.topLeftCorner(free_count, free_count);
-  Eigen::VectorXd solved = r_free.transpose().triangularView<Eigen::Lower>().solve(score.head(free_count));
-  solved = r_free.triangularView<Eigen::Upper>().solve(solved);
-  step.head(free_count) = solved;
+  const Eigen::MatrixXd& r = point.r;
+  Eigen::VectorXd step = Eigen::VectorXd::Zero(r.cols());
+  Eigen::VectorXd forward(free_count);
+  for (Eigen::Index row = 0; row < free_count; ++row) {  // R_FF' z = U*_F
+    double sum = score[row];
+    for (Eigen::Index col = 0; col < row; ++col) sum -= r(col, row) * forward[col];
+    forward[row] = sum / r(row, row);
+  }
+  for (Eigen::Index row = free_count; row-- > 0;) {  // R_FF step = z
+    double sum = forward[row];
+    for (Eigen::Index col = row + 1; col < free_count; ++col) sum -= r(row, col) * step[col];
+    step[row] = sum / r(row, row);
+  }
   return step;
 }
 

@@ -15,17 +15,14 @@
 #include <cmath>
 #include <limits>
 #include <vector>
-#include <cstdio>
-#include <cstdlib>
 
 #include "tamis/distributions.hpp"
 
 namespace tamis {
-namespace {
+namespace detail {
 
-constexpr double kInfinity = std::numeric_limits<double>::infinity();
-
-// The samples whose adjusted genotype is non-zero (the others do not move U).
+// The terms of U's CGF: the samples whose adjusted genotype is non-zero (the
+// others do not move U), each exactly, and at most one normal part.
 struct AdjustedTerms {
   std::vector<double> genotype;
   std::vector<double> mu;
@@ -33,28 +30,53 @@ struct AdjustedTerms {
   double largest_value = 0.0;   // the largest value U can take
   double smallest_value = 0.0;  // the smallest
   double variance = 0.0;        // K''(0)
+  // Variance of the part of U left to the normal approximation (its CGF is
+  // gaussian_variance t^2 / 2); with one, U is unbounded.
+  double gaussian_variance = 0.0;
 };
+
+}  // namespace detail
+
+namespace {
+
+using detail::AdjustedTerms;
+
+constexpr double kInfinity = std::numeric_limits<double>::infinity();
+
+// The non-carriers are left to the normal approximation only when there are
+// this many: their adjusted genotypes are then small and numerous, and their
+// sum close to normal. Fewer are summed exactly (cheap at that size).
+constexpr std::size_t kMinimumNormalPart = 500;
+
+void add_term(AdjustedTerms& terms, double g, double m, double m_bar) {
+  terms.genotype.push_back(g);
+  terms.mu.push_back(m);
+  terms.one_minus_mu.push_back(m_bar);
+  // U is largest when every Y_i with gt_i > 0 is 1 and every other is 0.
+  if (g > 0.0) {
+    terms.largest_value += g * m_bar;
+    terms.smallest_value -= g * m;
+  } else {
+    terms.largest_value -= g * m;
+    terms.smallest_value += g * m_bar;
+  }
+  terms.variance += g * g * m * m_bar;
+}
+
+void add_gaussian_part(AdjustedTerms& terms, double variance) {
+  if (!(variance > 0.0)) return;
+  terms.gaussian_variance = variance;
+  terms.variance += variance;
+  terms.largest_value = kInfinity;
+  terms.smallest_value = -kInfinity;
+}
 
 AdjustedTerms collect_terms(const Eigen::VectorXd& adjusted, const Eigen::VectorXd& mu,
                             const Eigen::VectorXd& one_minus_mu) {
   AdjustedTerms terms;
   for (Eigen::Index sample_idx = 0; sample_idx < adjusted.size(); ++sample_idx) {
     const double g = adjusted[sample_idx];
-    if (g == 0.0) continue;
-    const double m = mu[sample_idx];
-    const double m_bar = one_minus_mu[sample_idx];
-    terms.genotype.push_back(g);
-    terms.mu.push_back(m);
-    terms.one_minus_mu.push_back(m_bar);
-    // U is largest when every Y_i with gt_i > 0 is 1 and every other is 0.
-    if (g > 0.0) {
-      terms.largest_value += g * m_bar;
-      terms.smallest_value -= g * m;
-    } else {
-      terms.largest_value -= g * m;
-      terms.smallest_value += g * m_bar;
-    }
-    terms.variance += g * g * m * m_bar;
+    if (g != 0.0) add_term(terms, g, mu[sample_idx], one_minus_mu[sample_idx]);
   }
   return terms;
 }
@@ -67,6 +89,9 @@ struct Cumulants {
 
 Cumulants evaluate_cumulants(const AdjustedTerms& terms, double t) {
   Cumulants out;
+  out.k = 0.5 * terms.gaussian_variance * t * t;
+  out.k1 = terms.gaussian_variance * t;
+  out.k2 = terms.gaussian_variance;
   const std::size_t count = terms.genotype.size();
   for (std::size_t term_idx = 0; term_idx < count; ++term_idx) {
     const double g = terms.genotype[term_idx];
@@ -101,13 +126,13 @@ bool find_saddlepoint(const AdjustedTerms& terms, double x, double* zeta) {
   // K'(0) = 0, so the root lies on the side of x's sign.
   double lo = x > 0.0 ? 0.0 : -kInfinity;
   double hi = x > 0.0 ? kInfinity : 0.0;
-  const double range = terms.largest_value - terms.smallest_value;
+  const double scale = std::sqrt(terms.variance);
   double t = 0.0;
   for (int iteration = 0; iteration < 500; ++iteration) {
     const Cumulants c = evaluate_cumulants(terms, t);
     const double f = c.k1 - x;
     if (!std::isfinite(f)) return false;
-    if (std::fabs(f) <= 1e-15 * range) {
+    if (std::fabs(f) <= 1e-15 * (scale + std::fabs(x))) {
       *zeta = t;
       return true;
     }
@@ -152,18 +177,19 @@ double log_add(double a, double b) {
 
 bool log_tail_of_terms(const AdjustedTerms& terms, double x, double* log_tail) {
   const bool upper = x > 0.0;
-  const double range = terms.largest_value - terms.smallest_value;
-  if (!(terms.variance > 0.0) || !(range > 0.0)) return false;
-  const double edge = upper ? terms.largest_value : terms.smallest_value;
-  const double beyond = upper ? x - edge : edge - x;  // > 0: x cannot be reached
-  const double tolerance = 1e-12 * range;
-  if (beyond > tolerance) {
-    *log_tail = -kInfinity;
-    return true;
-  }
-  if (beyond >= -tolerance) {
-    *log_tail = log_extreme_point_mass(terms, upper);
-    return std::isfinite(*log_tail);
+  if (!(terms.variance > 0.0)) return false;
+  if (terms.gaussian_variance == 0.0) {  // U is bounded: x may lie at or beyond its edge
+    const double edge = upper ? terms.largest_value : terms.smallest_value;
+    const double beyond = upper ? x - edge : edge - x;  // > 0: x cannot be reached
+    const double tolerance = 1e-12 * (terms.largest_value - terms.smallest_value);
+    if (beyond > tolerance) {
+      *log_tail = -kInfinity;
+      return true;
+    }
+    if (beyond >= -tolerance) {
+      *log_tail = log_extreme_point_mass(terms, upper);
+      return std::isfinite(*log_tail);
+    }
   }
   const double sd = std::sqrt(terms.variance);
   if (std::fabs(x) <= 1e-6 * sd) {
@@ -181,7 +207,6 @@ bool log_tail_of_terms(const AdjustedTerms& terms, double x, double* log_tail) {
   const double ratio = v / w;
   if (!(ratio > 0.0) || !std::isfinite(ratio)) return false;
   const double adjusted_w = w + std::log(ratio) / w;
-  if (getenv("SPA_DEBUG")) fprintf(stderr, "x %g zeta %g w %g v %g chernoff %g\n", x, zeta, w, v, -exponent);
   *log_tail = log_normal_upper_tail(upper ? adjusted_w : -adjusted_w);
   return std::isfinite(*log_tail) && *log_tail <= 0.0;
 }
@@ -219,9 +244,46 @@ void SaddlepointContext::adjust_genotype(const Eigen::VectorXd& genotype,
   adjusted = genotype - unweighted_basis_ * coordinates;
 }
 
+// The carriers' exact terms plus the normal part of the non-carriers: the
+// adjusted genotype is needed only where g != 0 (coordinates Q'W^1/2 g from
+// the carriers alone), and the non-carriers' variance is what is left of V.
+detail::AdjustedTerms SaddlepointContext::collect_carrier_terms(const Eigen::VectorXd& genotype,
+                                                        double variance_v) const {
+  const Eigen::Index n = genotype.size();
+  const Eigen::Index p = weighted_basis_.cols();
+  std::vector<Eigen::Index> carriers;
+  Eigen::VectorXd coordinates = Eigen::VectorXd::Zero(p);
+  for (Eigen::Index sample_idx = 0; sample_idx < n; ++sample_idx) {
+    if (genotype[sample_idx] == 0.0) continue;
+    carriers.push_back(sample_idx);
+    coordinates += genotype[sample_idx] * weighted_basis_.row(sample_idx).transpose();
+  }
+  if (static_cast<std::size_t>(n) - carriers.size() < kMinimumNormalPart) {
+    const Eigen::VectorXd adjusted = genotype - unweighted_basis_ * coordinates;
+    return collect_terms(adjusted, mu_, one_minus_mu_);
+  }
+  AdjustedTerms terms;
+  double carrier_variance = 0.0;
+  for (const Eigen::Index sample_idx : carriers) {
+    const double adjusted = genotype[sample_idx] - unweighted_basis_.row(sample_idx).dot(coordinates);
+    if (adjusted == 0.0) continue;
+    add_term(terms, adjusted, mu_[sample_idx], one_minus_mu_[sample_idx]);
+    carrier_variance += adjusted * adjusted * mu_[sample_idx] * one_minus_mu_[sample_idx];
+  }
+  // What the carriers leave of V belongs to the non-carriers; a remainder at
+  // rounding level is no part at all.
+  const double rest = variance_v - carrier_variance;
+  if (rest > 1e-12 * variance_v) {
+    add_gaussian_part(terms, rest);
+  }
+  return terms;
+}
+
 bool saddlepoint_log_tail(const Eigen::VectorXd& adjusted, const Eigen::VectorXd& mu,
-                          const Eigen::VectorXd& one_minus_mu, double x, double* log_tail) {
-  const AdjustedTerms terms = collect_terms(adjusted, mu, one_minus_mu);
+                          const Eigen::VectorXd& one_minus_mu, double x, double* log_tail,
+                          double gaussian_variance) {
+  AdjustedTerms terms = collect_terms(adjusted, mu, one_minus_mu);
+  add_gaussian_part(terms, gaussian_variance);
   return log_tail_of_terms(terms, x, log_tail);
 }
 
@@ -235,9 +297,7 @@ SaddlepointResult saddlepoint_score_log_p(const SaddlepointContext& context,
   if (abs_u / std::sqrt(variance_v) < normal_cutoff) {
     return normal_result(score_u, variance_v, false);
   }
-  Eigen::VectorXd adjusted;
-  context.adjust_genotype(genotype, adjusted);
-  const AdjustedTerms terms = collect_terms(adjusted, context.mu(), context.one_minus_mu());
+  const AdjustedTerms terms = context.collect_carrier_terms(genotype, variance_v);
   double log_upper = 0.0, log_lower = 0.0;
   if (!log_tail_of_terms(terms, abs_u, &log_upper) || !log_tail_of_terms(terms, -abs_u, &log_lower)) {
     return normal_result(score_u, variance_v, true);

@@ -54,6 +54,9 @@ std::vector<std::string> describe_run(const ScanOptions& options, bool with_shar
   lines.push_back("genome_assembly=" + options.genome_assembly);
   lines.push_back("records_per_block=" + std::to_string(options.records_per_block));
   lines.push_back("blocks_per_checkpoint=" + std::to_string(options.blocks_per_checkpoint));
+  for (const GenomicRegion& region : options.regions) {
+    lines.push_back("region=" + region.contig + ":" + std::to_string(region.first) + "-" + std::to_string(region.last));
+  }
   if (options.shard_count > 0) {
     lines.push_back("shard_count=" + std::to_string(options.shard_count));
     if (with_shard_index) lines.push_back("shard=" + std::to_string(options.shard));

@@ -14,6 +14,7 @@
 #include "scan/progress.hpp"
 #include "scan/trait_pass.hpp"
 #include "tamis/errors.hpp"
+#include "tamis/merge.hpp"
 #include "tamis/results_writer.hpp"
 #include "tamis/run_log.hpp"
 
@@ -280,7 +281,30 @@ std::string base_name(const std::string& path) {
   return slash == std::string::npos ? path : path.substr(slash + 1);
 }
 
-void write_sidecar(const ScanOptions& options, const TraitContext& trait, const std::string& path) {
+std::string describe_regions(const std::vector<GenomicRegion>& regions) {
+  std::string text;
+  for (const GenomicRegion& region : regions) {
+    text += (text.empty() ? "" : ";") + region.contig + ":" + std::to_string(region.first) + "-" +
+            std::to_string(region.last);
+  }
+  return text;
+}
+
+// What the sidecar records beyond the standard keys: the run's fingerprint
+// always, and for a shard its place and ranges, which merge checks.
+std::vector<std::pair<std::string, std::string>> provenance_entries(const ScanOptions& options,
+                                                                    const std::vector<GenomicRegion>& regions) {
+  std::vector<std::pair<std::string, std::string>> entries;
+  entries.emplace_back(kFingerprintKey, fingerprint_of(describe_run(options, false)));
+  if (options.shard_count > 0) {
+    entries.emplace_back(kShardKey, std::to_string(options.shard) + "/" + std::to_string(options.shard_count));
+    entries.emplace_back(kShardRangesKey, describe_regions(regions));
+  }
+  return entries;
+}
+
+void write_sidecar(const ScanOptions& options, const TraitContext& trait, const std::string& path,
+                   const std::vector<std::pair<std::string, std::string>>& provenance) {
   SidecarFields fields;
   fields.data_file_name = base_name(path);
   fields.genome_assembly = options.genome_assembly;
@@ -292,6 +316,7 @@ void write_sidecar(const ScanOptions& options, const TraitContext& trait, const 
   }
   fields.software_version = TAMIS_VERSION;
   fields.adjusted_covariates = options.covariates;
+  fields.extra = provenance;
   write_metadata_sidecar(path, fields);
 }
 
@@ -326,7 +351,16 @@ ScanSummary run_scan(const ScanOptions& options) {
   reader_options.paths = options.genotype_paths;
   reader_options.field = options.dosage_field;
   reader_options.io_threads = options.threads > 1 ? 1 : 0;
+  reader_options.regions = options.regions;
+  if (options.shard_count > 0) {
+    reader_options.regions = plan_shard(options.genotype_paths, options.shard, options.shard_count);
+    current_log().line("shard " + std::to_string(options.shard) + "/" + std::to_string(options.shard_count) +
+                       ": " + (reader_options.regions.empty() ? std::string("(no records)")
+                                                              : describe_regions(reader_options.regions)));
+  }
   GenotypeReader reader(reader_options);
+  const auto provenance = provenance_entries(options, reader_options.regions);
+  current_log().detail("run fingerprint: " + provenance.front().second);
   const TraitTable table = TraitTable::load(options.traits_path, options.table);
   log_inputs(options, reader, table);
   const std::vector<TraitContext> traits = prepare_traits(options, table, reader.sample_ids());
@@ -349,7 +383,7 @@ ScanSummary run_scan(const ScanOptions& options) {
   summary.tallies = progress.state.tallies;
   for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
     progress.files[trait_idx]->commit(IndexKind::tabix_results);
-    write_sidecar(options, traits[trait_idx], progress.files[trait_idx]->final_path());
+    write_sidecar(options, traits[trait_idx], progress.files[trait_idx]->final_path(), provenance);
     summary.result_files.push_back(progress.files[trait_idx]->final_path());
   }
   std::remove(checkpoint_path(options.out_prefix).c_str());
