@@ -15,6 +15,12 @@
 namespace tamis {
 
 enum class ChromosomeCodes { ssf, as_is };
+enum class BinaryScore { plain, saddlepoint };
+// When a binary trait's confirmation uses Firth's penalised likelihood:
+// automatic = when the standard fit fails or separates, or the minor allele
+// count is below kFirthBelowMinorAlleleCount.
+enum class PenalizedRefit { automatic, always, never };
+inline constexpr double kFirthBelowMinorAlleleCount = 40.0;
 
 struct ScanOptions {
   std::vector<std::string> genotype_paths;
@@ -26,6 +32,8 @@ struct ScanOptions {
   DosageField dosage_field = DosageField::automatic;
   double confirm_below = 1e-4;  // 0: no confirmation; >= 1: confirm every variant
   double spread_flag = 1.0;     // log10 units of disagreement that flag a confirmed hit
+  BinaryScore binary_score = BinaryScore::saddlepoint;
+  PenalizedRefit penalized_refit = PenalizedRefit::automatic;
   std::string out_prefix;
   int threads = 1;
   ChromosomeCodes chromosome_codes = ChromosomeCodes::ssf;
@@ -50,6 +58,7 @@ struct TraitTally {
   std::uint64_t confirmed = 0;
   std::uint64_t discordant = 0;  // confirmed with log10p_spread above the flag
   std::uint64_t confirm_not_converged = 0;
+  std::uint64_t firth = 0;     // confirmed by Firth's penalised likelihood
   std::uint64_t filtered = 0;  // below a variant QC floor
 };
 

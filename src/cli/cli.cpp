@@ -83,6 +83,8 @@ struct ScanArguments {
   int checkpoint_blocks = 64;
   std::string shard;
   std::vector<std::string> regions;
+  std::string binary_score = "spa";
+  std::string penalized_refit = "auto";
 };
 
 void check_trait_names(const std::vector<std::string>& traits) {
@@ -182,6 +184,16 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
   }
   options.blocks_per_checkpoint = static_cast<std::size_t>(arguments.checkpoint_blocks);
   parse_shard(arguments.shard, options);
+  if (arguments.binary_score != "spa" && arguments.binary_score != "plain") {
+    refuse_option("--binary-score", "'" + arguments.binary_score + "' is not spa or plain", "");
+  }
+  options.binary_score = arguments.binary_score == "spa" ? BinaryScore::saddlepoint : BinaryScore::plain;
+  const std::map<std::string, PenalizedRefit> refits = {
+      {"auto", PenalizedRefit::automatic}, {"always", PenalizedRefit::always}, {"never", PenalizedRefit::never}};
+  if (!refits.count(arguments.penalized_refit)) {
+    refuse_option("--penalized-refit", "'" + arguments.penalized_refit + "' is not auto, always or never", "");
+  }
+  options.penalized_refit = refits.at(arguments.penalized_refit);
   for (const std::string& text : arguments.regions) options.regions.push_back(parse_region(text));
   if (options.shard_count > 0 && !options.regions.empty()) {
     refuse_option("--shard", "--shard and --region cannot be combined", "shard the whole genome, or list regions");
@@ -214,6 +226,13 @@ void add_scan_command(CLI::App& app, ScanArguments& arguments) {
   scan->add_flag("--quiet", arguments.quiet, "Print nothing but errors (no progress display)");
   scan->add_flag("--resume", arguments.resume,
                  "Continue an interrupted run of the same command from its last checkpoint");
+  scan->add_option("--binary-score", arguments.binary_score,
+                   "p-value of the binary score test: spa (saddlepoint approximation) or plain (normal)")
+      ->capture_default_str();
+  scan->add_option("--penalized-refit", arguments.penalized_refit,
+                   "Firth refits of binary hits: auto (separation, no convergence or minor allele count < 40), "
+                   "always or never")
+      ->capture_default_str();
   scan->add_option("--shard", arguments.shard,
                    "K/N: scan the K-th of N contiguous parts of the genome, sized from the index");
   scan->add_option("--region", arguments.regions, "CHR[:FROM-TO]: scan only records there (repeatable)");

@@ -248,7 +248,7 @@ void SaddlepointContext::adjust_genotype(const Eigen::VectorXd& genotype,
 // adjusted genotype is needed only where g != 0 (coordinates Q'W^1/2 g from
 // the carriers alone), and the non-carriers' variance is what is left of V.
 detail::AdjustedTerms SaddlepointContext::collect_carrier_terms(const Eigen::VectorXd& genotype,
-                                                        double variance_v) const {
+                                                                double variance_v) const {
   const Eigen::Index n = genotype.size();
   const Eigen::Index p = weighted_basis_.cols();
   std::vector<Eigen::Index> carriers;

@@ -49,6 +49,8 @@ std::vector<std::string> describe_run(const ScanOptions& options, bool with_shar
   lines.push_back(std::string("dosage_from=") + dosage_field_name(options.dosage_field));
   lines.push_back("confirm_below=" + number_text(options.confirm_below));
   lines.push_back("disagreement_flag=" + number_text(options.spread_flag));
+  lines.push_back(std::string("binary_score=") + (options.binary_score == BinaryScore::plain ? "plain" : "spa"));
+  lines.push_back("penalized_refit=" + std::to_string(static_cast<int>(options.penalized_refit)));
   lines.push_back(std::string("chromosome_codes=") +
                   (options.chromosome_codes == ChromosomeCodes::ssf ? "ssf" : "as-is"));
   lines.push_back("genome_assembly=" + options.genome_assembly);
@@ -89,7 +91,7 @@ void save_checkpoint(const std::string& path, const CheckpointState& state) {
   for (const auto& [trait, tally] : state.tallies) {
     text << "tally " << trait << " " << tally.written << " " << tally.monomorphic << " "
          << tally.in_covariate_span << " " << tally.confirmed << " " << tally.discordant << " "
-         << tally.confirm_not_converged << " " << tally.filtered << "\n";
+         << tally.confirm_not_converged << " " << tally.firth << " " << tally.filtered << "\n";
   }
   PlainTextFile file(path);
   file.write(text.str());
@@ -126,7 +128,8 @@ std::optional<CheckpointState> load_checkpoint(const std::string& path) {
       std::string trait;
       TraitTally tally;
       ok = static_cast<bool>(fields >> trait >> tally.written >> tally.monomorphic >> tally.in_covariate_span >>
-                             tally.confirmed >> tally.discordant >> tally.confirm_not_converged >> tally.filtered);
+                             tally.confirmed >> tally.discordant >> tally.confirm_not_converged >> tally.firth >>
+                             tally.filtered);
       state.tallies[trait] = tally;
     } else {
       ok = false;

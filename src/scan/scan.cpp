@@ -105,9 +105,15 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
     log_null_model(request.trait, trait.model);
     trait.confirm_below = options.confirm_below;
     trait.spread_flag = options.spread_flag;
+    trait.penalized_refit = options.penalized_refit;
   }
   // The kernels hold references to the models, so they are made once the vector is final.
-  for (TraitContext& trait : traits) trait.kernel = std::make_unique<ScoreKernel>(trait.model);
+  for (TraitContext& trait : traits) {
+    trait.kernel = std::make_unique<ScoreKernel>(trait.model);
+    if (trait.set.kind == TraitKind::binary && options.binary_score == BinaryScore::saddlepoint) {
+      trait.saddlepoint = std::make_unique<SaddlepointContext>(trait.model);
+    }
+  }
   return traits;
 }
 
@@ -161,6 +167,7 @@ void add_tally(const TraitTally& block, TraitTally& total) {
   total.confirmed += block.confirmed;
   total.discordant += block.discordant;
   total.confirm_not_converged += block.confirm_not_converged;
+  total.firth += block.firth;
   total.filtered += block.filtered;
 }
 
@@ -332,7 +339,9 @@ void log_tallies(const ScanSummary& summary, const std::vector<TraitContext>& tr
          << " monomorphic in the analysis samples, " << tally.in_covariate_span
          << " explained by the covariates, " << tally.confirmed << " confirmed, " << tally.discordant
          << " flagged for disagreeing tests";
+    if (tally.firth) text << " (" << tally.firth << " by Firth's penalised likelihood)";
     if (tally.confirm_not_converged) text << ", " << tally.confirm_not_converged << " refits not converged";
+    if (tally.filtered) text << ", " << tally.filtered << " below a QC floor";
     log.line(text.str());
   }
 }

@@ -4,6 +4,7 @@
 #include <cmath>
 
 #include "tamis/distributions.hpp"
+#include "tamis/firth.hpp"
 #include "tamis/results_writer.hpp"
 
 namespace tamis {
@@ -91,8 +92,8 @@ double spread_of(double score_log_p, double wald_log_p, double lrt_log_p) {
   return *high - *low;
 }
 
-void fill_score_columns(const ScoreResult& score, ResultRow& row) {
-  row.test = "score";
+void fill_score_columns(const TraitContext& trait, const ScoreResult& score, ResultRow& row) {
+  row.test = trait.saddlepoint ? "score_spa" : "score";
   row.beta = score.beta;
   row.standard_error = score.se;
   row.log_p = score.log_p;
@@ -105,8 +106,8 @@ void fill_score_columns(const ScoreResult& score, ResultRow& row) {
   row.log10p_spread.reset();
 }
 
-void fill_confirmed_columns(const ConfirmResult& confirmed, ResultRow& row) {
-  row.test = "lrt";
+void fill_confirmed_columns(const ConfirmResult& confirmed, const char* test, ResultRow& row) {
+  row.test = test;
   row.beta = confirmed.beta;
   row.standard_error = confirmed.se;
   row.log_p = confirmed.lrt_log_p;
@@ -115,6 +116,58 @@ void fill_confirmed_columns(const ConfirmResult& confirmed, ResultRow& row) {
   row.lrt_chisq = confirmed.lrt_chisq;
   row.lrt_log_p = confirmed.lrt_log_p;
   row.log10p_spread = spread_of(row.score_log_p, confirmed.wald_log_p, confirmed.lrt_log_p);
+}
+
+ConfirmResult from_firth(const FirthResult& firth) {
+  ConfirmResult result;
+  result.beta = firth.beta;
+  result.se = firth.se;
+  result.wald_chisq = firth.wald_chisq;
+  result.wald_log_p = firth.wald_log_p;
+  result.lrt_chisq = firth.lrt_chisq;
+  result.lrt_log_p = firth.lrt_log_p;
+  result.iterations = firth.iterations;
+  result.converged = firth.converged;
+  return result;
+}
+
+bool wants_firth(const TraitContext& trait, const ConfirmResult& standard, double minor_allele_count) {
+  if (trait.set.kind != TraitKind::binary) return false;
+  switch (trait.penalized_refit) {
+    case PenalizedRefit::always: return true;
+    case PenalizedRefit::never: return false;
+    case PenalizedRefit::automatic: break;
+  }
+  return !standard.converged || minor_allele_count < kFirthBelowMinorAlleleCount;
+}
+
+// The standard refit, replaced by Firth's where the standard one cannot be
+// trusted: separation, no convergence, or too few copies of the minor allele.
+void confirm_row(const TraitContext& trait, const Eigen::VectorXd& column, ResultRow& row, TraitTally& tally) {
+  const bool firth_first = trait.set.kind == TraitKind::binary && trait.penalized_refit == PenalizedRefit::always;
+  ConfirmResult confirmed;
+  bool by_firth = firth_first;
+  if (!firth_first) {
+    confirmed = confirm_variant(trait.model, column);
+    by_firth = wants_firth(trait, confirmed, row.mac);
+  }
+  if (by_firth) {
+    confirmed = from_firth(firth_refit(trait.model, column));
+    ++tally.firth;
+  }
+  if (!confirmed.converged) ++tally.confirm_not_converged;
+  fill_confirmed_columns(confirmed, by_firth ? "firth_lrt" : "lrt", row);
+  ++tally.confirmed;
+}
+
+// The saddlepoint tail replaces the normal one beyond its cut-off; below it
+// the two agree, so the plain p-value stands and null variants stay cheap.
+void calibrate_score(const TraitContext& trait, TraitScratch& scratch, std::size_t width, std::size_t site_idx,
+                     ScoreResult& score) {
+  constexpr double kNormalCutoff = 2.0;
+  if (!trait.saddlepoint || score.chisq < kNormalCutoff * kNormalCutoff) return;
+  copy_column(scratch, width, site_idx, scratch.column);
+  score.log_p = saddlepoint_score_log_p(*trait.saddlepoint, scratch.column, score.u, score.v, kNormalCutoff).log_p;
 }
 
 std::string describe_discordance(const TraitContext& trait, const ResultRow& row) {
@@ -157,19 +210,17 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block,
       ++output.tally.monomorphic;
       continue;
     }
-    const ScoreResult& score = scratch.scores[site_idx];
+    ScoreResult& score = scratch.scores[site_idx];
     if (!score.testable) {
       ++output.tally.in_covariate_span;
       continue;
     }
+    calibrate_score(trait, scratch, width, site_idx, score);
     fill_site_columns(trait, block.sites[site_idx], chromosomes[site_idx], summary, row);
-    fill_score_columns(score, row);
+    fill_score_columns(trait, score, row);
     if (should_confirm(trait, score.log_p)) {
       copy_column(scratch, width, site_idx, scratch.column);
-      const ConfirmResult confirmed = confirm_variant(trait.model, scratch.column);
-      fill_confirmed_columns(confirmed, row);
-      ++output.tally.confirmed;
-      if (!confirmed.converged) ++output.tally.confirm_not_converged;
+      confirm_row(trait, scratch.column, row, output.tally);
       if (*row.log10p_spread > trait.spread_flag) {
         ++output.tally.discordant;
         output.discordant_notes.push_back(describe_discordance(trait, row));

@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "tamis/confirm.hpp"
+#include "tamis/saddlepoint.hpp"
 #include "tamis/genotype_reader.hpp"
 #include "tamis/null_model.hpp"
 #include "tamis/scan.hpp"
@@ -20,8 +21,10 @@ struct TraitContext {
   AnalysisSet set;
   NullModel model;
   std::unique_ptr<ScoreKernel> kernel;
+  std::unique_ptr<SaddlepointContext> saddlepoint;  // binary traits with --binary-score spa
   double confirm_below = 1e-4;
   double spread_flag = 1.0;
+  PenalizedRefit penalized_refit = PenalizedRefit::automatic;
 };
 
 // Dosage summary of one site over a trait's analysis samples.
