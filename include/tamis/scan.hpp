@@ -5,6 +5,7 @@
 #include <cstddef>
 #include <cstdint>
 #include <map>
+#include <set>
 #include <string>
 #include <vector>
 
@@ -21,6 +22,29 @@ enum class BinaryScore { plain, saddlepoint };
 // count is below kFirthBelowMinorAlleleCount.
 enum class PenalizedRefit { automatic, always, never };
 inline constexpr double kFirthBelowMinorAlleleCount = 40.0;
+
+// Variants chosen by list (--variants, or the rows of earlier results that
+// `tamis confirm` takes up). Empty means every variant.
+struct VariantSelection {
+  std::set<std::string> variant_ids;  // chromosome_position_ref_alt, chromosome as it is written out
+  std::set<std::string> record_ids;   // values of the VCF ID column
+  std::map<std::string, std::set<std::string>> trait_variant_ids;  // for one trait only
+  bool active() const { return !variant_ids.empty() || !record_ids.empty() || !trait_variant_ids.empty(); }
+  std::size_t size() const;
+};
+
+// Adds, for the results file's trait, its rows whose p-value is below
+// `below`, and the index regions that hold them. The trait is the one the
+// file's metadata sidecar names (else the file name's). Throws tamis::Error
+// (results_input).
+void select_from_results(const std::string& results_path, double below, VariantSelection& selection,
+                         std::vector<GenomicRegion>& regions);
+
+// Adds the variants of a list file, one per line: an ID, or chr:pos:ref:alt.
+// Positional entries add index regions; returns false when an ID entry
+// means the files must be read whole. Throws tamis::Error (usage).
+bool select_from_list(const std::string& list_path, ChromosomeCodes codes, VariantSelection& selection,
+                      std::vector<GenomicRegion>& regions);
 
 struct ScanOptions {
   std::vector<std::string> genotype_paths;
@@ -44,6 +68,7 @@ struct ScanOptions {
   int shard = 0;             // --shard K/N: K (1-based) and N; 0 when not sharded
   int shard_count = 0;
   std::vector<GenomicRegion> regions;  // --region: read only these, through the index
+  VariantSelection selection;
   std::size_t records_per_block = 128;
   // Outputs are flushed to a block boundary and the checkpoint is saved every
   // this many blocks, in every run, so a resumed file is byte-identical.

@@ -85,6 +85,9 @@ struct ScanArguments {
   std::vector<std::string> regions;
   std::string binary_score = "spa";
   std::string penalized_refit = "auto";
+  std::string variant_list;
+  std::vector<std::string> from_results;
+  double below = 1e-4;
 };
 
 void check_trait_names(const std::vector<std::string>& traits) {
@@ -194,6 +197,12 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
     refuse_option("--penalized-refit", "'" + arguments.penalized_refit + "' is not auto, always or never", "");
   }
   options.penalized_refit = refits.at(arguments.penalized_refit);
+  if (!arguments.variant_list.empty()) {
+    check_readable("--variants", arguments.variant_list);
+    std::vector<GenomicRegion> positions;
+    const bool indexed = select_from_list(arguments.variant_list, options.chromosome_codes, options.selection, positions);
+    if (indexed && options.regions.empty() && options.shard_count == 0) options.regions = positions;
+  }
   for (const std::string& text : arguments.regions) options.regions.push_back(parse_region(text));
   if (options.shard_count > 0 && !options.regions.empty()) {
     refuse_option("--shard", "--shard and --region cannot be combined", "shard the whole genome, or list regions");
@@ -201,43 +210,62 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
   return options;
 }
 
+// The options scan and confirm share: inputs, traits, models and output.
+void add_analysis_options(CLI::App* command, ScanArguments& arguments) {
+  command->add_option("--genotypes", arguments.genotypes, "VCF, VCF.gz or BCF files, scanned in the order given")
+      ->required();
+  command->add_option("--traits", arguments.traits, "Trait and covariate table (tab- or comma-separated)")
+      ->required();
+  command->add_option("--sample-column", arguments.sample_column, "Sample ID column (default: the first)");
+  command->add_option("--trait", arguments.trait_names, "Trait column to test (repeatable)")->required();
+  command->add_option("--covariates", arguments.covariates, "Covariate columns, comma-separated");
+  command->add_option("--trait-kind", arguments.trait_kinds, "NAME=binary|quantitative (repeatable)");
+  command->add_option("--dosage-from", arguments.dosage_from, "auto, DS, GP or GT")->capture_default_str();
+  command->add_option("--disagreement-flag", arguments.disagreement_flag,
+                      "Flag confirmed hits whose tests differ by more than this many log10 units")
+      ->capture_default_str();
+  command->add_option("--out", arguments.out, "Output prefix")->required();
+  command->add_option("--threads", arguments.threads, "Worker threads (default: every core)");
+  command->add_option("--chromosome-codes", arguments.chromosome_codes, "ssf or as-is")->capture_default_str();
+  command->add_option("--genome-assembly", arguments.genome_assembly,
+                      "Assembly recorded in the metadata, e.g. GRCh38");
+  command->add_option("--missing-tokens", arguments.missing_tokens,
+                      "Comma-separated tokens read as missing (default: NA,na,NaN,.)");
+  command->add_flag("--quiet", arguments.quiet, "Print nothing but errors (no progress display)");
+  command->add_option("--binary-score", arguments.binary_score,
+                      "p-value of the binary score test: spa (saddlepoint approximation) or plain (normal)")
+      ->capture_default_str();
+  command->add_option("--penalized-refit", arguments.penalized_refit,
+                      "Firth refits of binary hits: auto (separation, no convergence or minor allele count < 40), "
+                      "always or never")
+      ->capture_default_str();
+  command->add_option("--variants", arguments.variant_list,
+                      "File of variants to take, one per line: an ID or chr:pos:ref:alt");
+}
+
 void add_scan_command(CLI::App& app, ScanArguments& arguments) {
   CLI::App* scan = app.add_subcommand("scan", "Test every variant against one or more traits");
-  scan->add_option("--genotypes", arguments.genotypes, "VCF, VCF.gz or BCF files, scanned in the order given")
-      ->required();
-  scan->add_option("--traits", arguments.traits, "Trait and covariate table (tab- or comma-separated)")->required();
-  scan->add_option("--sample-column", arguments.sample_column, "Sample ID column (default: the first)");
-  scan->add_option("--trait", arguments.trait_names, "Trait column to test (repeatable)")->required();
-  scan->add_option("--covariates", arguments.covariates, "Covariate columns, comma-separated");
-  scan->add_option("--trait-kind", arguments.trait_kinds, "NAME=binary|quantitative (repeatable)");
-  scan->add_option("--dosage-from", arguments.dosage_from, "auto, DS, GP or GT")->capture_default_str();
+  add_analysis_options(scan, arguments);
   scan->add_option("--confirm-below", arguments.confirm_below,
                    "Refit variants whose score p-value is below this (0: none, 1: all)")
       ->capture_default_str();
-  scan->add_option("--disagreement-flag", arguments.disagreement_flag,
-                   "Flag confirmed hits whose tests differ by more than this many log10 units")
-      ->capture_default_str();
-  scan->add_option("--out", arguments.out, "Output prefix")->required();
-  scan->add_option("--threads", arguments.threads, "Worker threads (default: every core)");
-  scan->add_option("--chromosome-codes", arguments.chromosome_codes, "ssf or as-is")->capture_default_str();
-  scan->add_option("--genome-assembly", arguments.genome_assembly, "Assembly recorded in the metadata, e.g. GRCh38");
-  scan->add_option("--missing-tokens", arguments.missing_tokens,
-                   "Comma-separated tokens read as missing (default: NA,na,NaN,.)");
-  scan->add_flag("--quiet", arguments.quiet, "Print nothing but errors (no progress display)");
   scan->add_flag("--resume", arguments.resume,
                  "Continue an interrupted run of the same command from its last checkpoint");
-  scan->add_option("--binary-score", arguments.binary_score,
-                   "p-value of the binary score test: spa (saddlepoint approximation) or plain (normal)")
-      ->capture_default_str();
-  scan->add_option("--penalized-refit", arguments.penalized_refit,
-                   "Firth refits of binary hits: auto (separation, no convergence or minor allele count < 40), "
-                   "always or never")
-      ->capture_default_str();
   scan->add_option("--shard", arguments.shard,
                    "K/N: scan the K-th of N contiguous parts of the genome, sized from the index");
   scan->add_option("--region", arguments.regions, "CHR[:FROM-TO]: scan only records there (repeatable)");
   scan->add_option("--checkpoint-blocks", arguments.checkpoint_blocks,
                    "Blocks of 128 records between checkpoints that --resume can continue from")
+      ->capture_default_str();
+}
+
+void add_confirm_command(CLI::App& app, ScanArguments& arguments) {
+  CLI::App* confirm = app.add_subcommand(
+      "confirm", "Refit chosen variants with the full Wald, likelihood-ratio and Firth machinery");
+  add_analysis_options(confirm, arguments);
+  confirm->add_option("--from-results", arguments.from_results,
+                      "Results files of an earlier scan whose rows below --below are refitted");
+  confirm->add_option("--below", arguments.below, "Take rows of --from-results with p below this")
       ->capture_default_str();
 }
 
@@ -307,8 +335,32 @@ int execute_merge(const MergeOptions& options) {
   return 0;
 }
 
-int execute_scan(const ScanArguments& arguments, const std::string& command_line) {
-  const ScanOptions options = check_scan_options(arguments, command_line);
+// confirm is a scan of the chosen variants only, each one refitted.
+ScanOptions check_confirm_options(const ScanArguments& arguments, const std::string& command_line) {
+  ScanOptions options = check_scan_options(arguments, command_line);
+  if (arguments.from_results.empty() && arguments.variant_list.empty()) {
+    refuse_option("tamis confirm", "nothing to confirm", "give --from-results FILE (with --below P) or --variants FILE");
+  }
+  if (!(arguments.below > 0.0 && arguments.below <= 1.0)) {
+    refuse_option("--below", "must be a p-value in (0, 1]", "for example --below 1e-5");
+  }
+  std::vector<GenomicRegion> positions = options.regions;
+  const bool indexed = arguments.variant_list.empty() || !options.regions.empty();
+  for (const std::string& path : arguments.from_results) {
+    check_readable("--from-results", path);
+    select_from_results(path, arguments.below, options.selection, positions);
+  }
+  options.regions = indexed ? positions : std::vector<GenomicRegion>{};
+  if (!options.selection.active()) {
+    refuse_option("--from-results", "no row has p below " + std::to_string(arguments.below), "raise --below");
+  }
+  options.confirm_below = 1.0;
+  return options;
+}
+
+int execute_scan(const ScanArguments& arguments, const std::string& command_line, bool confirm) {
+  const ScanOptions options = confirm ? check_confirm_options(arguments, command_line)
+                                      : check_scan_options(arguments, command_line);
   RunLog& log = current_log();
   log.set_echo(!arguments.quiet);
   log.open(options.out_prefix + ".log");
@@ -355,8 +407,10 @@ int run_command_line(int argc, char** argv) {
   app.set_version_flag("--version", std::string("tamis ") + TAMIS_VERSION);
   app.require_subcommand(1);
   ScanArguments scan_arguments;
+  ScanArguments confirm_arguments;
   SimulationOptions simulation_options;
   add_scan_command(app, scan_arguments);
+  add_confirm_command(app, confirm_arguments);
   add_simulate_command(app, simulation_options);
   ReportArguments report_arguments;
   add_report_command(app, report_arguments);
@@ -369,7 +423,8 @@ int run_command_line(int argc, char** argv) {
     return code == 0 ? 0 : static_cast<int>(ExitCode::usage);
   }
   try {
-    if (app.got_subcommand("scan")) return execute_scan(scan_arguments, join_command_line(argc, argv));
+    if (app.got_subcommand("scan")) return execute_scan(scan_arguments, join_command_line(argc, argv), false);
+    if (app.got_subcommand("confirm")) return execute_scan(confirm_arguments, join_command_line(argc, argv), true);
     if (app.got_subcommand("report")) return execute_report(report_arguments);
     if (app.got_subcommand("merge")) return execute_merge(merge_options);
     return execute_simulate(simulation_options);

@@ -74,7 +74,7 @@ std::optional<std::uint64_t> FileIndex::total_records() const {
     // its count is unknown, so the total is too. Contigs that a BCF header
     // declares but that hold no record have empty statistics, not none.
     if (!has_statistics_[contig_idx]) {
-      IteratorPtr probe = query(contigs_[contig_idx].tid, 0, HTS_POS_MAX);
+      IteratorPtr probe = query(contigs_[contig_idx].tid, 0, largest_query_end);
       if (probe && probe->n_off > 0) return std::nullopt;
       continue;
     }
@@ -84,7 +84,9 @@ std::optional<std::uint64_t> FileIndex::total_records() const {
 }
 
 IteratorPtr FileIndex::query(int tid, std::int64_t begin, std::int64_t end) const {
-  const std::int64_t capped_end = std::min<std::int64_t>(end, HTS_POS_MAX);
+  // htslib 1.16 turns the end into a bin number in an int; ends much past
+  // 2^44 overflow it and send hts_itr_query on a walk of billions of bins.
+  const std::int64_t capped_end = std::min<std::int64_t>(end, largest_query_end);
   if (tid < 0 || begin >= capped_end) return nullptr;
   if (tabix_) return IteratorPtr(tbx_itr_queryi(tabix_, tid, begin, capped_end));
   return IteratorPtr(bcf_itr_queryi(index_, tid, begin, capped_end));

@@ -29,6 +29,10 @@ struct IteratorDeleter {
 };
 using IteratorPtr = std::unique_ptr<hts_itr_t, IteratorDeleter>;
 
+// Queries end here at the latest: far beyond any contig (17 Tb), and safe
+// for htslib's bin arithmetic.
+constexpr std::int64_t largest_query_end = std::int64_t(1) << 44;
+
 class FileIndex {
  public:
   // Loads the index of an open VCF.gz or BCF file; nothing when the file has
@@ -49,7 +53,8 @@ class FileIndex {
   // Total records by the index's statistics; nothing when a contig lacks them.
   std::optional<std::uint64_t> total_records() const;
   // An iterator over the records overlapping [begin, end) (0-based, half
-  // open); null when the contig has no records in the index.
+  // open, the end capped at largest_query_end); null when the contig has no
+  // records in the index.
   IteratorPtr query(int tid, std::int64_t begin, std::int64_t end) const;
 
  private:

@@ -41,8 +41,7 @@ using genotype_detail::IteratorPtr;
 // The finest bin of .tbi and of default .csi indexes (min_shift 14); the
 // profile never looks finer than the index can tell.
 constexpr std::int64_t smallest_window = std::int64_t(1) << 14;
-// A bin-aligned span larger than any indexable contig: 16 kb times 8^11.
-constexpr std::int64_t whole_contig_span = smallest_window << 33;
+constexpr std::int64_t whole_contig_span = genotype_detail::largest_query_end;
 constexpr std::int64_t largest_window = std::int64_t(1) << 18;
 constexpr std::int64_t target_windows = 4096;
 constexpr std::size_t ratio_sample_bytes = 1 << 20;

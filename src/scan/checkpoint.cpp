@@ -59,6 +59,14 @@ std::vector<std::string> describe_run(const ScanOptions& options, bool with_shar
   for (const GenomicRegion& region : options.regions) {
     lines.push_back("region=" + region.contig + ":" + std::to_string(region.first) + "-" + std::to_string(region.last));
   }
+  if (options.selection.active()) {
+    std::vector<std::string> chosen(options.selection.variant_ids.begin(), options.selection.variant_ids.end());
+    chosen.insert(chosen.end(), options.selection.record_ids.begin(), options.selection.record_ids.end());
+    for (const auto& [trait, ids] : options.selection.trait_variant_ids) {
+      for (const std::string& id : ids) chosen.push_back(trait + ":" + id);
+    }
+    lines.push_back("selection=" + std::to_string(chosen.size()) + " variants " + fingerprint_of(chosen));
+  }
   if (options.shard_count > 0) {
     lines.push_back("shard_count=" + std::to_string(options.shard_count));
     if (with_shard_index) lines.push_back("shard=" + std::to_string(options.shard));

@@ -106,6 +106,7 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
     trait.confirm_below = options.confirm_below;
     trait.spread_flag = options.spread_flag;
     trait.penalized_refit = options.penalized_refit;
+    if (options.selection.active()) trait.selection = &options.selection;
   }
   // The kernels hold references to the models, so they are made once the vector is final.
   for (TraitContext& trait : traits) {
@@ -366,6 +367,9 @@ ScanSummary run_scan(const ScanOptions& options) {
     current_log().line("shard " + std::to_string(options.shard) + "/" + std::to_string(options.shard_count) +
                        ": " + (reader_options.regions.empty() ? std::string("(no records)")
                                                               : describe_regions(reader_options.regions)));
+  }
+  if (options.selection.active()) {
+    current_log().line("selected " + std::to_string(options.selection.size()) + " variants" + (options.regions.empty() ? " (reading the files whole)" : " (through the index)"));
   }
   GenotypeReader reader(reader_options);
   const auto provenance = provenance_entries(options, reader_options.regions);

@@ -25,6 +25,7 @@ struct TraitContext {
   double confirm_below = 1e-4;
   double spread_flag = 1.0;
   PenalizedRefit penalized_refit = PenalizedRefit::automatic;
+  const VariantSelection* selection = nullptr;  // null: every variant
 };
 
 // Dosage summary of one site over a trait's analysis samples.

@@ -1,0 +1,123 @@
+// Variant lists: which variants a scan or a confirmation takes, and the index
+// regions that hold them, so that only those records are read.
+#include <cmath>
+#include <fstream>
+#include <set>
+
+#include "tamis/errors.hpp"
+#include "tamis/results_reader.hpp"
+#include "tamis/results_writer.hpp"
+#include "tamis/scan.hpp"
+
+namespace tamis {
+namespace {
+
+// The contig names a written chromosome code can stand for in a VCF.
+std::vector<std::string> contig_candidates(const std::string& code) {
+  if (code == "23") return {"X", "chrX", "23", "chr23"};
+  if (code == "24") return {"Y", "chrY", "24", "chr24"};
+  if (code == "25") return {"MT", "chrM", "M", "chrMT", "25"};
+  return {code, "chr" + code};
+}
+
+void add_position(const std::string& code, std::int64_t position, std::vector<GenomicRegion>& regions) {
+  for (const std::string& contig : contig_candidates(code)) regions.push_back({contig, position, position});
+}
+
+std::string trim(const std::string& text) {
+  const std::size_t first = text.find_first_not_of(" \t\r");
+  if (first == std::string::npos) return "";
+  return text.substr(first, text.find_last_not_of(" \t\r") - first + 1);
+}
+
+bool file_exists(const std::string& path) { return std::ifstream(path).good(); }
+
+// The trait a results file holds: its sidecar's trait_description, else the
+// TRAIT of PREFIX.TRAIT.tsv.gz.
+std::string trait_of_results(const std::string& results_path) {
+  const std::string sidecar = results_path + "-meta.yaml";
+  if (file_exists(sidecar)) {
+    const SidecarFields fields = read_metadata_sidecar(sidecar);
+    if (!fields.trait_description.empty()) return fields.trait_description;
+  }
+  std::string name = results_path.substr(results_path.find_last_of('/') + 1);
+  const std::string suffix = ".tsv.gz";
+  if (name.size() > suffix.size() && name.compare(name.size() - suffix.size(), suffix.size(), suffix) == 0) {
+    name.resize(name.size() - suffix.size());
+  }
+  return name.substr(name.find_last_of('.') + 1);
+}
+
+}  // namespace
+
+std::size_t VariantSelection::size() const {
+  std::size_t count = variant_ids.size() + record_ids.size();
+  for (const auto& entry : trait_variant_ids) count += entry.second.size();
+  return count;
+}
+
+void select_from_results(const std::string& results_path, double below, VariantSelection& selection,
+                         std::vector<GenomicRegion>& regions) {
+  ResultsReader reader(results_path, {"chromosome", "base_pair_location", "variant_id", "neg_log_10_p_value"});
+  const std::size_t chromosome = reader.column_index("chromosome");
+  const std::size_t position = reader.column_index("base_pair_location");
+  const std::size_t variant_id = reader.column_index("variant_id");
+  const std::size_t neg_log_10_p = reader.column_index("neg_log_10_p_value");
+  // Compared on the -log10 scale, which stays exact where p itself underflows.
+  const double threshold = -std::log10(below);
+  std::set<std::string>& chosen = selection.trait_variant_ids[trait_of_results(results_path)];
+  while (reader.next_row()) {
+    if (!(reader.number(neg_log_10_p) > threshold)) continue;
+    chosen.insert(std::string(reader.field(variant_id)));
+    add_position(std::string(reader.field(chromosome)), reader.integer(position), regions);
+  }
+}
+
+bool select_from_list(const std::string& list_path, ChromosomeCodes codes, VariantSelection& selection,
+                      std::vector<GenomicRegion>& regions) {
+  std::ifstream input(list_path);
+  if (!input) {
+    throw Error(ExitCode::usage, list_path, "cannot read the variant list", "check the path given to --variants");
+  }
+  bool indexed = true;
+  std::string line;
+  std::size_t line_number = 0;
+  while (std::getline(input, line)) {
+    ++line_number;
+    const std::string entry = trim(line);
+    if (entry.empty() || entry[0] == '#') continue;
+    std::vector<std::string> parts;
+    std::size_t start = 0, colon;
+    while ((colon = entry.find(':', start)) != std::string::npos) {
+      parts.push_back(entry.substr(start, colon - start));
+      start = colon + 1;
+    }
+    parts.push_back(entry.substr(start));
+    if (parts.size() == 1) {
+      selection.record_ids.insert(entry);
+      indexed = false;
+      continue;
+    }
+    char* end = nullptr;
+    const long long position = parts.size() == 4 ? std::strtoll(parts[1].c_str(), &end, 10) : 0;
+    if (parts.size() != 4 || position < 1 || *end != '\0' || parts[2].empty() || parts[3].empty()) {
+      throw Error(ExitCode::usage, list_path + ", line " + std::to_string(line_number),
+                  "expected an ID or chr:pos:ref:alt, found '" + entry + "'",
+                  "write one variant per line, for example rs12345 or 2:1234567:A:G");
+    }
+    std::string code = parts[0];
+    if (codes == ChromosomeCodes::ssf) {
+      auto mapped = map_chromosome_ssf(parts[0]);
+      if (mapped) code = *mapped;
+    }
+    selection.variant_ids.insert(code + "_" + parts[1] + "_" + parts[2] + "_" + parts[3]);
+    if (codes == ChromosomeCodes::ssf) {
+      add_position(code, position, regions);
+    } else {
+      regions.push_back({parts[0], position, position});
+    }
+  }
+  return indexed;
+}
+
+}  // namespace tamis
