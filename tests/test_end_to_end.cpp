@@ -160,7 +160,7 @@ TEST_F(EndToEnd, EveryVariantConfirmedWhenThresholdIsOne) {
     EXPECT_EQ(fields[13], "lrt");
     EXPECT_NE(fields[17], "#NA");
     EXPECT_NE(fields[19], "#NA");
-    EXPECT_NE(fields[24], "#NA") << "n_cases is filled for a binary trait";
+    EXPECT_NE(fields[25], "#NA") << "n_cases is filled for a binary trait";
   }
 }
 

@@ -62,8 +62,8 @@ TEST(ResultRows, HeaderLineListsTheColumnsInOrder) {
             "chromosome\tbase_pair_location\teffect_allele\tother_allele\tbeta\t"
             "standard_error\teffect_allele_frequency\tp_value\tvariant_id\trsid\tn\tinfo\t"
             "ref_allele\ttest\tneg_log_10_p_value\tscore_chisq\tscore_p\twald_chisq\twald_p\t"
-            "lrt_chisq\tlrt_p\tlog10p_spread\tmac\tcall_rate\tn_cases\n");
-  EXPECT_EQ(result_columns().size(), 25u);
+            "lrt_chisq\tlrt_p\tlog10p_spread\tmac\tcall_rate\thwe_p\tn_cases\n");
+  EXPECT_EQ(result_columns().size(), 26u);
 }
 
 TEST(ResultRows, EmptyOptionalsAreWrittenAsNA) {
@@ -88,10 +88,11 @@ TEST(ResultRows, FilledOptionalsAreWritten) {
   row.log_p = std::log(2.5e-8);
   row.log10p_spread = 0.39794;
   row.n_cases = 120;
+  row.hwe_log_p = std::log(0.25);
   std::string line;
   append_result_row(row, line);
   std::vector<std::string> fields = split_tabs(line.substr(0, line.size() - 1));
-  ASSERT_EQ(fields.size(), 25u);
+  ASSERT_EQ(fields.size(), 26u);
   EXPECT_EQ(fields[7], "2.5e-08");
   EXPECT_EQ(fields[9], "rs123");
   EXPECT_EQ(fields[11], "0.875");
@@ -103,7 +104,8 @@ TEST(ResultRows, FilledOptionalsAreWritten) {
   EXPECT_EQ(fields[19], "31.5");
   EXPECT_EQ(fields[20], "2.5e-08");
   EXPECT_EQ(fields[21], "0.39794");
-  EXPECT_EQ(fields[24], "120");
+  EXPECT_EQ(fields[24], "0.25");
+  EXPECT_EQ(fields[25], "120");
 }
 
 TEST(PValues, RepresentableValuesUseNineSignificantDigits) {

@@ -34,6 +34,7 @@ struct ResultRow {
   std::optional<double> wald_chisq, wald_log_p, lrt_chisq, lrt_log_p, log10p_spread;
   double mac = 0.0;
   double call_rate = 0.0;
+  std::optional<double> hwe_log_p;  // ln p of the Hardy-Weinberg exact test on the hard calls
   std::optional<std::size_t> n_cases;
 };
 

@@ -46,6 +46,18 @@ void select_from_results(const std::string& results_path, double below, VariantS
 bool select_from_list(const std::string& list_path, ChromosomeCodes codes, VariantSelection& selection,
                       std::vector<GenomicRegion>& regions);
 
+// Variant QC floors, applied per trait on its analysis samples; 0 turns one off.
+struct QcFloors {
+  double minor_allele_frequency = 0.0;
+  double minor_allele_count = 0.0;
+  double info = 0.0;
+  double call_rate = 0.0;
+  double hwe_p = 0.0;
+};
+enum QcReason { qc_maf, qc_mac, qc_info, qc_call_rate, qc_hwe, qc_reason_count };
+inline constexpr const char* kQcReasonNames[qc_reason_count] = {"minor allele frequency", "minor allele count",
+                                                               "info", "call rate", "Hardy-Weinberg p"};
+
 struct ScanOptions {
   std::vector<std::string> genotype_paths;
   std::string traits_path;
@@ -69,6 +81,11 @@ struct ScanOptions {
   int shard_count = 0;
   std::vector<GenomicRegion> regions;  // --region: read only these, through the index
   VariantSelection selection;
+  QcFloors floors;
+  std::string keep_samples_path;  // one sample ID per line
+  std::string drop_samples_path;
+  std::vector<std::string> rank_normalize;  // quantitative traits given the rank-based inverse normal transform
+  int haploid_dosage = 1;                   // dosage of a haploid ALT call from GT: 1 or 2
   std::size_t records_per_block = 128;
   // Outputs are flushed to a block boundary and the checkpoint is saved every
   // this many blocks, in every run, so a resumed file is byte-identical.
@@ -84,7 +101,7 @@ struct TraitTally {
   std::uint64_t discordant = 0;  // confirmed with log10p_spread above the flag
   std::uint64_t confirm_not_converged = 0;
   std::uint64_t firth = 0;     // confirmed by Firth's penalised likelihood
-  std::uint64_t filtered = 0;  // below a variant QC floor
+  std::uint64_t filtered[qc_reason_count] = {0, 0, 0, 0, 0};  // below a variant QC floor, by reason
 };
 
 struct ScanSummary {

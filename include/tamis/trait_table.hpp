@@ -62,6 +62,9 @@ struct AnalysisRequest {
   std::string trait;
   std::optional<TraitKind> kind_override;
   std::vector<std::string> covariates;
+  // Genotype samples left out by --keep-samples / --drop-samples (empty: none),
+  // indexed like the genotype files' samples.
+  std::vector<bool> excluded_samples;
 };
 
 // Who was used and who was dropped, and why.
@@ -69,6 +72,7 @@ struct SampleAccounting {
   std::size_t genotype_samples = 0;    // samples in the genotype files
   std::size_t table_rows = 0;          // data rows in the table
   std::size_t matched = 0;             // in both
+  std::size_t excluded_by_list = 0;    // matched, left out by --keep-samples / --drop-samples
   std::size_t genotype_only = 0;       // in the genotype files but not the table
   std::size_t table_only = 0;          // in the table but not the genotype files
   std::size_t missing_trait = 0;       // matched, trait missing

@@ -86,6 +86,11 @@ struct ScanArguments {
   std::string binary_score = "spa";
   std::string penalized_refit = "auto";
   std::string variant_list;
+  QcFloors floors;
+  std::string keep_samples;
+  std::string drop_samples;
+  std::vector<std::string> rank_normalize;
+  int haploid_dosage = 1;
   std::vector<std::string> from_results;
   double below = 1e-4;
 };
@@ -128,6 +133,17 @@ DosageField parse_dosage_field(const std::string& text) {
   if (text == "GP") return DosageField::gp;
   if (text == "GT") return DosageField::gt;
   refuse_option("--dosage-from", "'" + text + "' is not auto, DS, GP or GT", "pick one of auto, DS, GP, GT");
+}
+
+void check_floors(const QcFloors& floors) {
+  auto check_share = [](const char* option, double value) {
+    if (!(value >= 0.0 && value <= 1.0)) refuse_option(option, "must lie between 0 and 1", "");
+  };
+  check_share("--maf-floor", floors.minor_allele_frequency);
+  check_share("--info-floor", floors.info);
+  check_share("--call-rate-floor", floors.call_rate);
+  check_share("--hwe-floor", floors.hwe_p);
+  if (!(floors.minor_allele_count >= 0.0)) refuse_option("--mac-floor", "must be zero or more", "");
 }
 
 void parse_shard(const std::string& text, ScanOptions& options) {
@@ -187,6 +203,22 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
   }
   options.blocks_per_checkpoint = static_cast<std::size_t>(arguments.checkpoint_blocks);
   parse_shard(arguments.shard, options);
+  check_floors(arguments.floors);
+  options.floors = arguments.floors;
+  if (!arguments.keep_samples.empty()) check_readable("--keep-samples", arguments.keep_samples);
+  if (!arguments.drop_samples.empty()) check_readable("--drop-samples", arguments.drop_samples);
+  options.keep_samples_path = arguments.keep_samples;
+  options.drop_samples_path = arguments.drop_samples;
+  for (const std::string& trait : arguments.rank_normalize) {
+    if (std::find(arguments.trait_names.begin(), arguments.trait_names.end(), trait) == arguments.trait_names.end()) {
+      refuse_option("--rank-normalize", "'" + trait + "' is not one of the traits given with --trait", "");
+    }
+  }
+  options.rank_normalize = arguments.rank_normalize;
+  if (arguments.haploid_dosage != 1 && arguments.haploid_dosage != 2) {
+    refuse_option("--haploid-dosage", "must be 1 or 2", "1 counts a haploid ALT call as one copy, 2 as two");
+  }
+  options.haploid_dosage = arguments.haploid_dosage;
   if (arguments.binary_score != "spa" && arguments.binary_score != "plain") {
     refuse_option("--binary-score", "'" + arguments.binary_score + "' is not spa or plain", "");
   }
@@ -241,6 +273,22 @@ void add_analysis_options(CLI::App* command, ScanArguments& arguments) {
       ->capture_default_str();
   command->add_option("--variants", arguments.variant_list,
                       "File of variants to take, one per line: an ID or chr:pos:ref:alt");
+  command->add_option("--maf-floor", arguments.floors.minor_allele_frequency,
+                      "Keep variants whose minor allele frequency is at least this");
+  command->add_option("--mac-floor", arguments.floors.minor_allele_count,
+                      "Keep variants whose minor allele count is at least this");
+  command->add_option("--info-floor", arguments.floors.info, "Keep variants whose dosage r^2 (info) is at least this");
+  command->add_option("--call-rate-floor", arguments.floors.call_rate,
+                      "Keep variants whose call rate is at least this");
+  command->add_option("--hwe-floor", arguments.floors.hwe_p,
+                      "Keep variants whose Hardy-Weinberg exact-test p is at least this");
+  command->add_option("--keep-samples", arguments.keep_samples, "Analyse only the sample IDs in this file");
+  command->add_option("--drop-samples", arguments.drop_samples, "Leave out the sample IDs in this file");
+  command->add_option("--rank-normalize", arguments.rank_normalize,
+                      "Quantitative trait to give a rank-based inverse normal transform (repeatable)");
+  command->add_option("--haploid-dosage", arguments.haploid_dosage,
+                      "Dosage of a haploid ALT call from GT: 1 (default) or 2")
+      ->capture_default_str();
 }
 
 void add_scan_command(CLI::App& app, ScanArguments& arguments) {

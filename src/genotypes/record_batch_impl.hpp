@@ -2,10 +2,12 @@
 // by the reader (which fills batches) and the decoder (which empties them).
 #pragma once
 
+#include <htslib/kstring.h>
 #include <htslib/vcf.h>
 
 #include <cstdint>
 #include <memory>
+#include <new>
 #include <string>
 #include <vector>
 
@@ -14,6 +16,8 @@
 namespace tamis {
 
 namespace genotype_detail {
+
+class VcfTextDecoder;
 
 // Everything decoding needs to know about a file. Decoding never touches the
 // htslib header, which the reading thread may still extend (htslib adds
@@ -27,6 +31,8 @@ struct FileInfo {
   int gt_tag_id = -1;  // the header's id of FORMAT/GT, -1 when undeclared
   int haploid_dosage = 1;  // GT dosage of one copy in a haploid call
   std::shared_ptr<const std::vector<std::string>> sample_ids;
+  // VCF text only: decodes the raw lines the reader stores (null for BCF).
+  std::shared_ptr<const VcfTextDecoder> text_decoder;
 };
 
 struct RecordOrigin {
@@ -38,9 +44,11 @@ struct RecordOrigin {
 }  // namespace genotype_detail
 
 struct RecordBatch::Impl {
-  // A pool that only grows: records are reused from one batch to the next so
-  // that htslib keeps its buffers.
+  // Pools that only grow: records and lines are reused from one batch to
+  // the next so that their buffers are kept. A record of a BCF file is an
+  // htslib record; one of a VCF file is its line of text, parsed later.
   std::vector<bcf1_t*> records;
+  std::vector<kstring_t> lines;
   std::vector<genotype_detail::RecordOrigin> origins;
   std::size_t count = 0;
   std::size_t sample_count = 0;
@@ -49,16 +57,23 @@ struct RecordBatch::Impl {
   Impl(const Impl&) = delete;
   Impl& operator=(const Impl&) = delete;
   ~Impl() {
-    for (bcf1_t* record : records) bcf_destroy(record);
+    for (bcf1_t* record : records) {
+      if (record) bcf_destroy(record);
+    }
+    for (kstring_t& line : lines) free(line.s);
   }
 
   void reserve(std::size_t record_count) {
-    while (records.size() < record_count) {
-      bcf1_t* record = bcf_init();
-      if (!record) throw std::bad_alloc();
-      records.push_back(record);
-    }
+    if (records.size() < record_count) records.resize(record_count, nullptr);
+    if (lines.size() < record_count) lines.resize(record_count, kstring_t{0, 0, nullptr});
     if (origins.size() < record_count) origins.resize(record_count);
+  }
+  bcf1_t* record_at(std::size_t record_idx) {
+    if (!records[record_idx]) {
+      records[record_idx] = bcf_init();
+      if (!records[record_idx]) throw std::bad_alloc();
+    }
+    return records[record_idx];
   }
 };
 

@@ -1,28 +1,26 @@
-// Turning htslib records into one dosage vector per ALT allele. Runs on
-// worker threads: it reads only the batch's own records and the immutable
-// FileInfo, never an htslib header.
+// Turning records into one dosage vector per ALT allele. Runs on worker
+// threads: it reads only the batch's own records and immutable file state,
+// never the reading thread's htslib header. BCF records arrive as htslib
+// records; VCF text arrives as lines, decoded in fast_vcf.cpp.
 #include <htslib/hts_endian.h>
 #include <htslib/vcf.h>
 
-#include <algorithm>
 #include <cassert>
 #include <cmath>
 #include <cstdio>
-#include <limits>
+#include <string_view>
+#include <vector>
 
-#include "genotypes/record_batch_impl.hpp"
+#include "genotypes/dosage_rules.hpp"
+#include "genotypes/fast_vcf.hpp"
+#include "genotypes/record_decoder.hpp"
 #include "tamis/errors.hpp"
 
 namespace tamis {
 
+namespace genotype_detail {
+
 namespace {
-
-using genotype_detail::RecordOrigin;
-
-constexpr double missing_dosage = std::numeric_limits<double>::quiet_NaN();
-// Room for the rounding of values written with few decimals.
-constexpr double dosage_tolerance = 1e-4;
-constexpr double diploid_dosage_limit = 2.0 + dosage_tolerance;
 
 enum class Slot { value, missing, vector_end };
 
@@ -73,8 +71,9 @@ std::string format_value(double value) {
 
 class RecordDecoder {
  public:
-  RecordDecoder(const RecordOrigin& origin, bcf1_t* record, std::size_t sample_count)
-      : origin_(origin), record_(record), sample_count_(sample_count) {}
+  RecordDecoder(const RecordOrigin& origin, bcf1_t* record, std::size_t sample_count,
+                const FormatTagIds& tags)
+      : origin_(origin), record_(record), sample_count_(sample_count), tags_(tags) {}
 
   void decode_into(DosageBlock& out);
 
@@ -85,22 +84,11 @@ class RecordDecoder {
   const bcf_fmt_t* find_format(int tag_id) const;
   void append_sites(DosageBlock& out, bool has_hard_calls) const;
   void decode_genotypes(const bcf_fmt_t& format, bool gives_dosages);
-  void decode_dosages(const bcf_fmt_t& format);
-  void decode_probabilities(const bcf_fmt_t& format);
+  void decode_values(const bcf_fmt_t& format);
   void check_float_storage(const bcf_fmt_t& format) const;
-  int count_given_values(const bcf_fmt_t& format, std::size_t sample_idx) const;
-  void set_sample_missing(std::size_t sample_idx);
-  void check_dosage(std::size_t sample_idx, int allele, double dosage, double limit) const;
+  int gather_values(const bcf_fmt_t& format, std::size_t sample_idx);
+  void report_rejected(std::size_t sample_idx, const SampleOutcome& outcome, int given) const;
 
-  double& dosage_of(int allele, std::size_t sample_idx) {
-    return dosages_[(allele - 1) * sample_count_ + sample_idx];
-  }
-  std::uint8_t& ploidy_of(int allele, std::size_t sample_idx) {
-    return ploidy_[(allele - 1) * sample_count_ + sample_idx];
-  }
-  std::int8_t& diploid_call_of(int allele, std::size_t sample_idx) {
-    return diploid_calls_[(allele - 1) * sample_count_ + sample_idx];
-  }
   const char* field_name() const { return dosage_field_name(origin_.file->field); }
   const std::string& sample_name(std::size_t sample_idx) const {
     return (*origin_.file->sample_ids)[sample_idx];
@@ -109,11 +97,11 @@ class RecordDecoder {
   const RecordOrigin& origin_;
   bcf1_t* record_;
   std::size_t sample_count_;
+  FormatTagIds tags_;
   int allele_count_ = 0;  // REF and ALT alleles
-  double* dosages_ = nullptr;
-  std::uint8_t* ploidy_ = nullptr;
-  std::int8_t* diploid_calls_ = nullptr;
+  SiteColumns columns_;
   std::vector<int> call_alleles_;  // one sample's called alleles, reused
+  std::vector<double> values_;     // one sample's DS or GP values, NaN when missing
 };
 
 void RecordDecoder::fail(const std::string& what, const std::string& fix) const {
@@ -135,20 +123,14 @@ void RecordDecoder::decode_into(DosageBlock& out) {
   allele_count_ = record_->n_allele;
   if (allele_count_ < 2) return;  // no ALT allele, nothing to test
 
-  const bcf_fmt_t* genotypes = find_format(origin_.file->gt_tag_id);
+  const bcf_fmt_t* genotypes = find_format(tags_.genotype);
   const std::size_t first_site = out.sites.size();
   append_sites(out, genotypes != nullptr);
-  const std::size_t value_count = out.sites.size() * sample_count_;
-  out.dosages.resize(value_count, missing_dosage);
-  out.ploidy.resize(value_count, 0);
-  out.diploid_calls.resize(value_count, -1);
-  dosages_ = out.dosages.data() + first_site * sample_count_;
-  ploidy_ = out.ploidy.data() + first_site * sample_count_;
-  diploid_calls_ = out.diploid_calls.data() + first_site * sample_count_;
+  columns_ = reserve_site_columns(out, first_site);
   if (sample_count_ == 0) return;
 
   const bool dosages_from_gt = origin_.file->field == DosageField::gt;
-  const bcf_fmt_t* format = dosages_from_gt ? genotypes : find_format(origin_.file->tag_id);
+  const bcf_fmt_t* format = dosages_from_gt ? genotypes : find_format(tags_.dosage);
   if (!format) {
     fail(std::string("the record has no FORMAT/") + field_name() +
              " although this file's dosages come from it",
@@ -160,12 +142,7 @@ void RecordDecoder::decode_into(DosageBlock& out) {
     decode_genotypes(*genotypes, dosages_from_gt);
   }
   if (dosages_from_gt || format->n == 0 || format->type == BCF_BT_NULL) return;
-  switch (origin_.file->field) {
-    case DosageField::ds: decode_dosages(*format); break;
-    case DosageField::gp: decode_probabilities(*format); break;
-    case DosageField::gt:
-    case DosageField::automatic: assert(false && "GT is decoded above; auto is resolved per file"); break;
-  }
+  decode_values(*format);
 }
 
 const bcf_fmt_t* RecordDecoder::find_format(int tag_id) const {
@@ -194,12 +171,7 @@ void RecordDecoder::append_sites(DosageBlock& out, bool has_hard_calls) const {
   }
 }
 
-void RecordDecoder::set_sample_missing(std::size_t sample_idx) {
-  for (int allele = 1; allele < allele_count_; ++allele) dosage_of(allele, sample_idx) = missing_dosage;
-}
-
-// GT: the hard calls, and when they are the dosage source, the number of
-// copies of each ALT allele (times haploid_dosage for a haploid call). The
+// GT: the hard calls, and when they are the dosage source, the dosages. The
 // call's ploidy is its length before htslib's end-of-vector padding, so
 // haploid and diploid calls can share a record.
 void RecordDecoder::decode_genotypes(const bcf_fmt_t& format, bool gives_dosages) {
@@ -229,22 +201,8 @@ void RecordDecoder::decode_genotypes(const bcf_fmt_t& format, bool gives_dosages
       }
       call_alleles_[called++] = allele;
     }
-    const bool full_diploid = length == 2 && !any_missing;
-    // A partly missing call ("0/.") says nothing reliable about the dosage.
-    const bool dosage_known = length > 0 && !any_missing;
-    const int copy_weight = length == 1 ? origin_.file->haploid_dosage : 1;
-    for (int allele = 1; allele < allele_count_; ++allele) {
-      int copies = 0;
-      for (int called_idx = 0; called_idx < called; ++called_idx) {
-        copies += call_alleles_[called_idx] == allele;
-      }
-      ploidy_of(allele, sample_idx) = static_cast<std::uint8_t>(std::min(called, 255));
-      diploid_call_of(allele, sample_idx) = full_diploid ? static_cast<std::int8_t>(copies) : -1;
-      if (gives_dosages) {
-        dosage_of(allele, sample_idx) =
-            dosage_known ? static_cast<double>(copies * copy_weight) : missing_dosage;
-      }
-    }
+    store_hard_call(columns_, sample_idx, allele_count_, call_alleles_.data(), called, length,
+                    any_missing, gives_dosages, origin_.file->haploid_dosage);
   }
 }
 
@@ -254,120 +212,90 @@ void RecordDecoder::check_float_storage(const bcf_fmt_t& format) const {
        std::string("declare ") + field_name() + " as Type=Float and rewrite the file");
 }
 
-int RecordDecoder::count_given_values(const bcf_fmt_t& format, std::size_t sample_idx) const {
-  double unused = 0.0;
-  for (int value_idx = 0; value_idx < format.n; ++value_idx) {
-    if (read_float_slot(format, sample_idx, value_idx, &unused) == Slot::vector_end) return value_idx;
+// The sample's values up to htslib's end-of-vector padding, NaN where missing.
+int RecordDecoder::gather_values(const bcf_fmt_t& format, std::size_t sample_idx) {
+  int given = 0;
+  for (; given < format.n; ++given) {
+    double value = 0.0;
+    const Slot slot = read_float_slot(format, sample_idx, given, &value);
+    if (slot == Slot::vector_end) break;
+    values_[given] = slot == Slot::value ? value : missing_dosage;
   }
-  return format.n;
+  return given;
 }
 
-void RecordDecoder::check_dosage(std::size_t sample_idx, int allele, double dosage,
-                                 double limit) const {
-  if (dosage >= 0.0 && dosage <= limit) return;
-  fail_for_sample(sample_idx,
-                  std::string(field_name()) + " gives a dosage of " + format_value(dosage) +
-                      " for ALT allele " + std::to_string(allele) + ", expected a value from 0 to " +
-                      format_value(limit - dosage_tolerance),
-                  std::string("check how ") + field_name() +
-                      " was produced; dosages count ALT alleles (0 to 2 for a diploid call)");
-}
-
-// DS: one expected ALT count per ALT allele (Number=A, VCF 4.3 section 1.6.2).
-void RecordDecoder::decode_dosages(const bcf_fmt_t& format) {
+// DS (Number=A, one expected count per ALT allele) or GP (a probability per
+// genotype); the arithmetic lives in dosage_rules.hpp.
+void RecordDecoder::decode_values(const bcf_fmt_t& format) {
   check_float_storage(format);
-  const int alt_count = allele_count_ - 1;
+  values_.resize(static_cast<std::size_t>(format.n));
+  const bool probabilities = origin_.file->field == DosageField::gp;
   for (std::size_t sample_idx = 0; sample_idx < sample_count_; ++sample_idx) {
-    const int given = count_given_values(format, sample_idx);
-    double first = 0.0;
-    const bool only_missing =
-        given == 0 || (given == 1 && read_float_slot(format, sample_idx, 0, &first) == Slot::missing);
-    if (only_missing) {
-      set_sample_missing(sample_idx);
-      continue;
-    }
-    if (given != alt_count) {
+    const int given = gather_values(format, sample_idx);
+    const SampleOutcome outcome =
+        probabilities ? convert_probabilities(columns_, sample_idx, values_.data(), given, allele_count_)
+                      : convert_dosages(columns_, sample_idx, values_.data(), given, allele_count_);
+    if (outcome.kind != SampleOutcome::ok) report_rejected(sample_idx, outcome, given);
+  }
+}
+
+void RecordDecoder::report_rejected(std::size_t sample_idx, const SampleOutcome& outcome,
+                                    int given) const {
+  const int alt_count = allele_count_ - 1;
+  const bool probabilities = origin_.file->field == DosageField::gp;
+  switch (outcome.kind) {
+    case SampleOutcome::wrong_count:
+      if (probabilities) {
+        fail_for_sample(sample_idx,
+                        "GP has " + std::to_string(given) + " value(s), expected " +
+                            std::to_string(allele_count_ * (allele_count_ + 1) / 2) + " (diploid) or " +
+                            std::to_string(allele_count_) + " (haploid)",
+                        "write one probability per possible genotype, in VCF order");
+      }
       fail_for_sample(sample_idx,
                       "DS has " + std::to_string(given) + " value(s), expected " +
                           std::to_string(alt_count) + " (one per ALT allele, Number=A)",
                       "write one DS value per ALT allele, or split multi-allelic records with "
                       "`bcftools norm -m-`");
-    }
-    for (int allele = 1; allele < allele_count_; ++allele) {
-      double value = 0.0;
-      if (read_float_slot(format, sample_idx, allele - 1, &value) != Slot::value) {
-        dosage_of(allele, sample_idx) = missing_dosage;
-        continue;
-      }
-      check_dosage(sample_idx, allele, value, diploid_dosage_limit);
-      dosage_of(allele, sample_idx) = value;
-    }
-  }
-}
-
-// GP: the expected count of each ALT allele, sum over genotypes of
-// (copies of the allele) x (probability). Diploid genotypes come in the VCF
-// order, (j,k) with j <= k at index k(k+1)/2 + j (VCF 4.3 section 1.6.2).
-void RecordDecoder::decode_probabilities(const bcf_fmt_t& format) {
-  check_float_storage(format);
-  const int diploid_count = allele_count_ * (allele_count_ + 1) / 2;
-  const int haploid_count = allele_count_;
-  for (std::size_t sample_idx = 0; sample_idx < sample_count_; ++sample_idx) {
-    const int given = count_given_values(format, sample_idx);
-    if (given != diploid_count && given != haploid_count) {
-      double first = 0.0;
-      const bool only_missing =
-          given == 0 ||
-          (given == 1 && read_float_slot(format, sample_idx, 0, &first) == Slot::missing);
-      if (only_missing) {
-        set_sample_missing(sample_idx);
-        continue;
-      }
+    case SampleOutcome::not_probability:
       fail_for_sample(sample_idx,
-                      "GP has " + std::to_string(given) + " value(s), expected " +
-                          std::to_string(diploid_count) + " (diploid) or " +
-                          std::to_string(haploid_count) + " (haploid)",
-                      "write one probability per possible genotype, in VCF order");
+                      "GP value " + format_value(outcome.value) + " is not a probability between 0 and 1",
+                      "GP must hold probabilities (VCF 4.3); convert phred-scaled values first");
+    case SampleOutcome::out_of_range: {
+      // A haploid GP call (one probability per allele) allows up to 1.
+      const bool haploid = probabilities && given == allele_count_;
+      const double limit = haploid ? 1.0 : 2.0;
+      fail_for_sample(sample_idx,
+                      std::string(field_name()) + " gives a dosage of " + format_value(outcome.value) +
+                          " for ALT allele " + std::to_string(outcome.allele) +
+                          ", expected a value from 0 to " + format_value(limit),
+                      std::string("check how ") + field_name() +
+                          " was produced; dosages count ALT alleles (0 to 2 for a diploid call)");
     }
-    bool any_missing = false;
-    for (int value_idx = 0; value_idx < given && !any_missing; ++value_idx) {
-      double probability = 0.0;
-      if (read_float_slot(format, sample_idx, value_idx, &probability) != Slot::value) {
-        any_missing = true;
-      } else if (probability < 0.0 || probability > 1.0 + dosage_tolerance) {
-        fail_for_sample(sample_idx,
-                        "GP value " + format_value(probability) +
-                            " is not a probability between 0 and 1",
-                        "GP must hold probabilities (VCF 4.3); convert phred-scaled values first");
-      }
-    }
-    if (any_missing) {
-      set_sample_missing(sample_idx);
-      continue;
-    }
-    const int ploidy = given == diploid_count ? 2 : 1;
-    for (int allele = 1; allele < allele_count_; ++allele) dosage_of(allele, sample_idx) = 0.0;
-    if (ploidy == 1) {
-      for (int allele = 1; allele < allele_count_; ++allele) {
-        read_float_slot(format, sample_idx, allele, &dosage_of(allele, sample_idx));
-      }
-    } else {
-      for (int second = 0; second < allele_count_; ++second) {
-        for (int first = 0; first <= second; ++first) {
-          double probability = 0.0;
-          read_float_slot(format, sample_idx, second * (second + 1) / 2 + first, &probability);
-          if (first > 0) dosage_of(first, sample_idx) += probability;
-          if (second > 0) dosage_of(second, sample_idx) += probability;
-        }
-      }
-    }
-    for (int allele = 1; allele < allele_count_; ++allele) {
-      check_dosage(sample_idx, allele, dosage_of(allele, sample_idx), ploidy + dosage_tolerance);
-    }
+    case SampleOutcome::ok: break;
   }
 }
 
 }  // namespace
+
+SiteColumns reserve_site_columns(DosageBlock& out, std::size_t first_site) {
+  const std::size_t value_count = out.sites.size() * out.sample_count;
+  out.dosages.resize(value_count, missing_dosage);
+  out.ploidy.resize(value_count, 0);
+  out.diploid_calls.resize(value_count, -1);
+  const std::size_t offset = first_site * out.sample_count;
+  return SiteColumns{out.dosages.data() + offset, out.ploidy.data() + offset,
+                     out.diploid_calls.data() + offset, out.sample_count};
+}
+
+void decode_htslib_record(const RecordOrigin& origin, bcf1_t* record, std::size_t sample_count,
+                          const FormatTagIds& tags, DosageBlock& out) {
+  assert(out.sample_count == sample_count && "the block is set up for this sample set");
+  RecordDecoder decoder(origin, record, sample_count, tags);
+  decoder.decode_into(out);
+}
+
+}  // namespace genotype_detail
 
 RecordBatch::RecordBatch() : impl_(std::make_unique<Impl>()) {}
 RecordBatch::~RecordBatch() = default;
@@ -382,9 +310,15 @@ void RecordBatch::decode(DosageBlock& out) const {
          "a block holds sites of one sample set");
   out.sample_count = impl_->sample_count;
   for (std::size_t record_idx = 0; record_idx < impl_->count; ++record_idx) {
-    RecordDecoder decoder(impl_->origins[record_idx], impl_->records[record_idx],
-                          impl_->sample_count);
-    decoder.decode_into(out);
+    const genotype_detail::RecordOrigin& origin = impl_->origins[record_idx];
+    if (origin.file->text_decoder) {
+      const kstring_t& line = impl_->lines[record_idx];
+      genotype_detail::decode_vcf_text_record(origin, std::string_view(line.s, line.l), out);
+    } else {
+      const genotype_detail::FormatTagIds tags{origin.file->tag_id, origin.file->gt_tag_id};
+      genotype_detail::decode_htslib_record(origin, impl_->records[record_idx], impl_->sample_count,
+                                            tags, out);
+    }
   }
 }
 

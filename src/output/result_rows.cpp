@@ -76,7 +76,7 @@ const std::vector<std::string>& result_columns() {
       "beta", "standard_error", "effect_allele_frequency", "p_value",
       "variant_id", "rsid", "n", "info", "ref_allele", "test",
       "neg_log_10_p_value", "score_chisq", "score_p", "wald_chisq", "wald_p",
-      "lrt_chisq", "lrt_p", "log10p_spread", "mac", "call_rate", "n_cases"};
+      "lrt_chisq", "lrt_p", "log10p_spread", "mac", "call_rate", "hwe_p", "n_cases"};
   return columns;
 }
 
@@ -161,6 +161,8 @@ void append_result_row(const ResultRow& row, std::string& out) {
   append_number(out, row.mac);
   out += '\t';
   append_number(out, row.call_rate);
+  out += '\t';
+  append_optional_p_value(out, row.hwe_log_p);
   out += '\t';
   if (row.n_cases) {
     append_count(out, *row.n_cases);

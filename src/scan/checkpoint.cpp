@@ -59,6 +59,13 @@ std::vector<std::string> describe_run(const ScanOptions& options, bool with_shar
   for (const GenomicRegion& region : options.regions) {
     lines.push_back("region=" + region.contig + ":" + std::to_string(region.first) + "-" + std::to_string(region.last));
   }
+  const QcFloors& floors = options.floors;
+  lines.push_back("floors=" + number_text(floors.minor_allele_frequency) + "," + number_text(floors.minor_allele_count) +
+                  "," + number_text(floors.info) + "," + number_text(floors.call_rate) + "," + number_text(floors.hwe_p));
+  if (!options.keep_samples_path.empty()) lines.push_back("keep_samples=" + describe_file(options.keep_samples_path));
+  if (!options.drop_samples_path.empty()) lines.push_back("drop_samples=" + describe_file(options.drop_samples_path));
+  lines.push_back("rank_normalize=" + join(options.rank_normalize));
+  lines.push_back("haploid_dosage=" + std::to_string(options.haploid_dosage));
   if (options.selection.active()) {
     std::vector<std::string> chosen(options.selection.variant_ids.begin(), options.selection.variant_ids.end());
     chosen.insert(chosen.end(), options.selection.record_ids.begin(), options.selection.record_ids.end());
@@ -99,7 +106,9 @@ void save_checkpoint(const std::string& path, const CheckpointState& state) {
   for (const auto& [trait, tally] : state.tallies) {
     text << "tally " << trait << " " << tally.written << " " << tally.monomorphic << " "
          << tally.in_covariate_span << " " << tally.confirmed << " " << tally.discordant << " "
-         << tally.confirm_not_converged << " " << tally.firth << " " << tally.filtered << "\n";
+         << tally.confirm_not_converged << " " << tally.firth;
+    for (std::uint64_t count : tally.filtered) text << " " << count;
+    text << "\n";
   }
   PlainTextFile file(path);
   file.write(text.str());
@@ -136,8 +145,8 @@ std::optional<CheckpointState> load_checkpoint(const std::string& path) {
       std::string trait;
       TraitTally tally;
       ok = static_cast<bool>(fields >> trait >> tally.written >> tally.monomorphic >> tally.in_covariate_span >>
-                             tally.confirmed >> tally.discordant >> tally.confirm_not_converged >> tally.firth >>
-                             tally.filtered);
+                             tally.confirmed >> tally.discordant >> tally.confirm_not_converged >> tally.firth);
+      for (std::uint64_t& count : tally.filtered) ok = ok && static_cast<bool>(fields >> count);
       state.tallies[trait] = tally;
     } else {
       ok = false;

@@ -8,6 +8,9 @@
 #include <cstdio>
 #include <optional>
 #include <cmath>
+#include <algorithm>
+#include <fstream>
+#include <set>
 #include <sstream>
 
 #include "scan/checkpoint.hpp"
@@ -15,6 +18,7 @@
 #include "scan/trait_pass.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/merge.hpp"
+#include "tamis/trait_transform.hpp"
 #include "tamis/results_writer.hpp"
 #include "tamis/run_log.hpp"
 
@@ -57,7 +61,9 @@ void log_samples(const AnalysisSet& set) {
   text << "trait " << set.trait << " (" << trait_kind_name(set.kind) << "): " << count.analysed
        << " analysis samples; matched " << count.matched << ", dropped " << count.genotype_only
        << " not in the table, " << count.missing_trait << " missing the trait, "
-       << count.missing_covariate << " missing a covariate; " << count.table_only
+       << count.missing_covariate << " missing a covariate";
+  if (count.excluded_by_list) text << ", " << count.excluded_by_list << " left out by --keep-samples/--drop-samples";
+  text << "; " << count.table_only
        << " table rows without genotypes";
   if (set.kind == TraitKind::binary) {
     text << "; " << set.case_count << " cases, " << set.control_count << " controls";
@@ -88,18 +94,90 @@ void log_null_model(const std::string& trait, const NullModel& model) {
   }
 }
 
+std::set<std::string> read_sample_list(const std::string& path) {
+  std::ifstream input(path);
+  if (!input) {
+    throw Error(ExitCode::usage, path, "cannot read the sample list", "give a file with one sample ID per line");
+  }
+  std::set<std::string> ids;
+  std::string line;
+  while (std::getline(input, line)) {
+    while (!line.empty() && (line.back() == '\r' || line.back() == ' ' || line.back() == '\t')) line.pop_back();
+    const std::size_t start = line.find_first_not_of(" \t");
+    if (start != std::string::npos && line[start] != '#') ids.insert(line.substr(start));
+  }
+  return ids;
+}
+
+// Reports list entries that name no sample of the genotype files: a typo
+// there would otherwise go unnoticed.
+void report_unknown_samples(const std::string& option, const std::set<std::string>& listed,
+                            const std::vector<std::string>& samples) {
+  const std::set<std::string> present(samples.begin(), samples.end());
+  std::vector<std::string> unknown;
+  for (const std::string& id : listed) {
+    if (!present.count(id)) unknown.push_back(id);
+  }
+  if (unknown.empty()) return;
+  std::string shown;
+  for (std::size_t id_idx = 0; id_idx < unknown.size() && id_idx < 5; ++id_idx) shown += (id_idx ? ", " : "") + unknown[id_idx];
+  current_log().line("note: " + std::to_string(unknown.size()) + " of the " + std::to_string(listed.size()) +
+                     " IDs in " + option + " are not in the genotype files (" + shown +
+                     (unknown.size() > 5 ? ", ..." : "") + ")");
+}
+
+// True for each genotype sample that --keep-samples leaves out or
+// --drop-samples names.
+std::vector<bool> excluded_samples(const ScanOptions& options, const std::vector<std::string>& samples) {
+  std::vector<bool> excluded;
+  if (options.keep_samples_path.empty() && options.drop_samples_path.empty()) return excluded;
+  excluded.assign(samples.size(), false);
+  if (!options.keep_samples_path.empty()) {
+    const std::set<std::string> keep = read_sample_list(options.keep_samples_path);
+    report_unknown_samples("--keep-samples", keep, samples);
+    for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) {
+      if (!keep.count(samples[sample_idx])) excluded[sample_idx] = true;
+    }
+  }
+  if (!options.drop_samples_path.empty()) {
+    const std::set<std::string> drop = read_sample_list(options.drop_samples_path);
+    report_unknown_samples("--drop-samples", drop, samples);
+    for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) {
+      if (drop.count(samples[sample_idx])) excluded[sample_idx] = true;
+    }
+  }
+  return excluded;
+}
+
+void apply_rank_normalization(const ScanOptions& options, AnalysisSet& set) {
+  if (std::find(options.rank_normalize.begin(), options.rank_normalize.end(), set.trait) ==
+      options.rank_normalize.end()) {
+    return;
+  }
+  if (set.kind != TraitKind::quantitative) {
+    throw Error(ExitCode::usage, "--rank-normalize " + set.trait, "the trait is binary",
+                "rank-normalise quantitative traits only");
+  }
+  set.y = rank_inverse_normal(set.y);
+  current_log().line("trait " + set.trait + ": rank-based inverse normal transform (Blom offset 3/8) on " +
+                     std::to_string(set.y.size()) + " analysis samples");
+}
+
 std::vector<TraitContext> prepare_traits(const ScanOptions& options, const TraitTable& table,
                                          const std::vector<std::string>& samples) {
   std::vector<TraitContext> traits(options.traits.size());
+  const std::vector<bool> excluded = excluded_samples(options, samples);
   for (std::size_t trait_idx = 0; trait_idx < options.traits.size(); ++trait_idx) {
     AnalysisRequest request;
     request.trait = options.traits[trait_idx];
     request.covariates = options.covariates;
     auto override_it = options.kind_overrides.find(request.trait);
     if (override_it != options.kind_overrides.end()) request.kind_override = override_it->second;
+    request.excluded_samples = excluded;
     TraitContext& trait = traits[trait_idx];
     trait.set = build_analysis_set(table, samples, request);
     log_samples(trait.set);
+    apply_rank_normalization(options, trait.set);
     trait.model = fit_null_model(request.trait, trait.set.kind, trait.set.y, trait.set.design,
                                  trait.set.design_names);
     log_null_model(request.trait, trait.model);
@@ -107,6 +185,8 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
     trait.spread_flag = options.spread_flag;
     trait.penalized_refit = options.penalized_refit;
     if (options.selection.active()) trait.selection = &options.selection;
+    trait.floors = options.floors;
+    trait.haploid_dosage = options.haploid_dosage;
   }
   // The kernels hold references to the models, so they are made once the vector is final.
   for (TraitContext& trait : traits) {
@@ -169,7 +249,7 @@ void add_tally(const TraitTally& block, TraitTally& total) {
   total.discordant += block.discordant;
   total.confirm_not_converged += block.confirm_not_converged;
   total.firth += block.firth;
-  total.filtered += block.filtered;
+  for (int reason = 0; reason < qc_reason_count; ++reason) total.filtered[reason] += block.filtered[reason];
 }
 
 void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
@@ -342,7 +422,9 @@ void log_tallies(const ScanSummary& summary, const std::vector<TraitContext>& tr
          << " flagged for disagreeing tests";
     if (tally.firth) text << " (" << tally.firth << " by Firth's penalised likelihood)";
     if (tally.confirm_not_converged) text << ", " << tally.confirm_not_converged << " refits not converged";
-    if (tally.filtered) text << ", " << tally.filtered << " below a QC floor";
+    for (int reason = 0; reason < qc_reason_count; ++reason) {
+      if (tally.filtered[reason]) text << ", " << tally.filtered[reason] << " below the " << kQcReasonNames[reason] << " floor";
+    }
     log.line(text.str());
   }
 }
@@ -362,6 +444,7 @@ ScanSummary run_scan(const ScanOptions& options) {
   reader_options.field = options.dosage_field;
   reader_options.io_threads = options.threads > 1 ? 1 : 0;
   reader_options.regions = options.regions;
+  reader_options.haploid_dosage = options.haploid_dosage;
   if (options.shard_count > 0) {
     reader_options.regions = plan_shard(options.genotype_paths, options.shard, options.shard_count);
     current_log().line("shard " + std::to_string(options.shard) + "/" + std::to_string(options.shard_count) +

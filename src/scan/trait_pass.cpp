@@ -5,6 +5,7 @@
 
 #include "tamis/distributions.hpp"
 #include "tamis/firth.hpp"
+#include "tamis/hardy_weinberg.hpp"
 #include "tamis/results_writer.hpp"
 
 namespace tamis {
@@ -12,8 +13,38 @@ namespace {
 
 // Gathers the trait's analysis samples into the sample-major block the kernel
 // reads, replacing missing dosages by the mean of the called ones.
-void gather_block(const std::vector<std::size_t>& sample_index, const DosageBlock& block,
-                  TraitScratch& scratch) {
+// Counts the site's alleles over each sample's ploidy, and its diploid hard
+// calls for the Hardy-Weinberg test. A haploid GT dosage scaled to 0/2 still
+// counts as one allele.
+void count_alleles(const std::vector<std::size_t>& sample_index, const DosageBlock& block, std::size_t site_idx,
+                   int haploid_dosage, SiteSummary& summary) {
+  const VariantSite& site = block.sites[site_idx];
+  if (!site.has_hard_calls) {
+    summary.allele_count = summary.sum;
+    summary.allele_slots = 2.0 * static_cast<double>(summary.called);
+    return;
+  }
+  summary.has_hard_calls = true;
+  const double* dosages = block.site_dosages(site_idx);
+  const std::uint8_t* ploidy = block.site_ploidy(site_idx);
+  const std::int8_t* calls = block.site_diploid_calls(site_idx);
+  const bool scaled_haploid = site.source == DosageField::gt && haploid_dosage == 2;
+  for (std::size_t sample : sample_index) {
+    if (calls[sample] == 0) ++summary.hom_ref;
+    if (calls[sample] == 1) ++summary.het;
+    if (calls[sample] == 2) ++summary.hom_alt;
+    const double value = dosages[sample];
+    if (std::isnan(value)) continue;
+    const int copies = ploidy[sample] > 0 ? ploidy[sample] : 2;
+    summary.allele_slots += copies;
+    summary.allele_count += (copies == 1 && scaled_haploid) ? value / 2.0 : value;
+  }
+}
+
+// Gathers the trait's analysis samples into the sample-major block the kernel
+// reads, replacing missing dosages by the mean of the called ones.
+void gather_block(const TraitContext& trait, const DosageBlock& block, TraitScratch& scratch) {
+  const std::vector<std::size_t>& sample_index = trait.set.genotype_index;
   const std::size_t width = block.size();
   const std::size_t samples = sample_index.size();
   scratch.genotypes.resize(samples * width);
@@ -28,6 +59,7 @@ void gather_block(const std::vector<std::size_t>& sample_index, const DosageBloc
       summary.sum += value;
       summary.sum_squares += value * value;
     }
+    count_alleles(sample_index, block, site_idx, trait.haploid_dosage, summary);
     const double fill = summary.mean();
     double* out = scratch.genotypes.data() + site_idx;
     for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
@@ -68,7 +100,7 @@ double variance_of(const SiteSummary& summary) {
 void fill_site_columns(const TraitContext& trait, const VariantSite& site,
                        const std::string& chromosome, const SiteSummary& summary,
                        ResultRow& row) {
-  const double allele_frequency = summary.sum / (2.0 * static_cast<double>(summary.called));
+  const double allele_frequency = summary.allele_slots > 0 ? summary.allele_count / summary.allele_slots : 0.0;
   row.chromosome = chromosome;
   row.position = site.position;
   row.effect_allele = site.alt;
@@ -81,11 +113,25 @@ void fill_site_columns(const TraitContext& trait, const VariantSite& site,
   if (site.source == DosageField::ds || site.source == DosageField::gp) {
     row.info = variance_of(summary) / (2.0 * allele_frequency * (1.0 - allele_frequency));
   }
-  const double allele_count = summary.sum;
-  row.mac = std::min(allele_count, 2.0 * static_cast<double>(summary.called) - allele_count);
+  row.mac = std::min(summary.allele_count, summary.allele_slots - summary.allele_count);
   row.call_rate = static_cast<double>(summary.called) / static_cast<double>(row.n);
+  row.hwe_log_p.reset();
+  if (summary.hom_ref + summary.het + summary.hom_alt > 0) {
+    row.hwe_log_p = hardy_weinberg_exact_log_p(summary.hom_ref, summary.het, summary.hom_alt);
+  }
   row.n_cases.reset();
   if (trait.set.kind == TraitKind::binary) row.n_cases = trait.set.case_count;
+}
+
+// The first QC floor the variant fails, or qc_reason_count when it passes all.
+int failed_floor(const QcFloors& floors, const ResultRow& row) {
+  const double minor_frequency = std::min(row.effect_allele_frequency, 1.0 - row.effect_allele_frequency);
+  if (minor_frequency < floors.minor_allele_frequency) return qc_maf;
+  if (row.mac < floors.minor_allele_count) return qc_mac;
+  if (row.info && *row.info < floors.info) return qc_info;
+  if (row.call_rate < floors.call_rate) return qc_call_rate;
+  if (row.hwe_log_p && floors.hwe_p > 0.0 && *row.hwe_log_p < std::log(floors.hwe_p)) return qc_hwe;
+  return qc_reason_count;
 }
 
 bool should_confirm(const TraitContext& trait, double score_log_p) {
@@ -208,7 +254,7 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block,
   const std::size_t width = block.size();
   if (width == 0) return;
 
-  gather_block(trait.set.genotype_index, block, scratch);
+  gather_block(trait, block, scratch);
   scratch.scores.resize(width);
   trait.kernel->compute(scratch.genotypes.data(), width, scratch.score_scratch, scratch.scores.data());
 
@@ -228,8 +274,13 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block,
       ++output.tally.in_covariate_span;
       continue;
     }
-    calibrate_score(trait, scratch, width, site_idx, score);
     fill_site_columns(trait, block.sites[site_idx], chromosomes[site_idx], summary, row);
+    const int floor = failed_floor(trait.floors, row);
+    if (floor != qc_reason_count) {
+      ++output.tally.filtered[floor];
+      continue;
+    }
+    calibrate_score(trait, scratch, width, site_idx, score);
     fill_score_columns(trait, score, row);
     if (should_confirm(trait, score.log_p)) {
       copy_column(scratch, width, site_idx, scratch.column);

@@ -26,6 +26,8 @@ struct TraitContext {
   double spread_flag = 1.0;
   PenalizedRefit penalized_refit = PenalizedRefit::automatic;
   const VariantSelection* selection = nullptr;  // null: every variant
+  QcFloors floors;
+  int haploid_dosage = 1;
 };
 
 // Dosage summary of one site over a trait's analysis samples.
@@ -33,6 +35,11 @@ struct SiteSummary {
   std::size_t called = 0;
   double sum = 0.0;
   double sum_squares = 0.0;
+  // Allele counting over the actual ploidy (from GT where the record has it).
+  double allele_count = 0.0;
+  double allele_slots = 0.0;
+  std::uint64_t hom_ref = 0, het = 0, hom_alt = 0;  // diploid hard calls
+  bool has_hard_calls = false;
   double mean() const { return called ? sum / static_cast<double>(called) : 0.0; }
   bool varies() const;
 };

@@ -131,11 +131,15 @@ std::vector<std::size_t> select_complete_samples(const TraitTable& table,
                                                  const SampleMatch& match,
                                                  const TableColumn& trait,
                                                  const std::vector<const TableColumn*>& covariates,
+                                                 const std::vector<bool>& excluded,
                                                  AnalysisSet* set) {
   std::vector<std::size_t> rows;
   for (std::size_t match_idx = 0; match_idx < match.table_rows.size(); ++match_idx) {
     const std::size_t row_idx = match.table_rows[match_idx];
-    if (trait.missing[row_idx]) {
+    const std::size_t genotype_idx = match.genotype_positions[match_idx];
+    if (genotype_idx < excluded.size() && excluded[genotype_idx]) {
+      ++set->accounting.excluded_by_list;
+    } else if (trait.missing[row_idx]) {
       ++set->accounting.missing_trait;
     } else if (!has_all_covariates(covariates, row_idx)) {
       ++set->accounting.missing_covariate;
@@ -315,7 +319,8 @@ AnalysisSet build_analysis_set(const TraitTable& table,
   AnalysisSet set;
   set.trait = request.trait;
   const SampleMatch match = match_samples(table, genotype_samples, &set.accounting);
-  const std::vector<std::size_t> rows = select_complete_samples(table, match, trait, covariates, &set);
+  const std::vector<std::size_t> rows =
+      select_complete_samples(table, match, trait, covariates, request.excluded_samples, &set);
   set.kind = decide_trait_kind(table, trait, rows, request.kind_override);
   fill_trait(trait, rows, &set);
   check_trait_varies(table, &set);
