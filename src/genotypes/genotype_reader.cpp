@@ -8,10 +8,14 @@
 #include <htslib/tbx.h>
 #include <htslib/vcf.h>
 
+#include <algorithm>
 #include <cerrno>
 #include <cstring>
+#include <string_view>
 #include <unordered_map>
+#include <utility>
 
+#include "genotypes/fast_vcf.hpp"
 #include "genotypes/genotype_index.hpp"
 #include "genotypes/record_batch_impl.hpp"
 #include "tamis/errors.hpp"
@@ -177,19 +181,6 @@ std::string describe_sample_mismatch(const std::vector<std::string>& expected,
          std::to_string(expected.size());
 }
 
-// The CHROM and POS columns of the line htslib failed on, when it is text.
-std::string place_of_unparsed_line(htsFile* file, const kstring_t& parsed_line) {
-  if (hts_get_format(file)->format != vcf || parsed_line.l == 0) return "";
-  std::string line(parsed_line.s, parsed_line.l);
-  // htslib's parser splits the line in place, turning tabs into NULs.
-  for (char& letter : line) {
-    if (letter == '\0') letter = '\t';
-  }
-  std::vector<std::string> columns = split_on(line.substr(0, line.find('\n')), '\t');
-  if (columns.size() < 2) return "";
-  return columns[0] + ":" + columns[1];
-}
-
 struct InputFile {
   std::shared_ptr<genotype_detail::FileInfo> info;
   htsFile* handle = nullptr;
@@ -197,7 +188,7 @@ struct InputFile {
   std::uint64_t records_read = 0;
   std::string last_place;  // chrom:pos of the last record read
   // Reading through regions: the index, the next region to visit and the
-  // iterator over the current one. `line` holds a VCF.gz record's text.
+  // iterator over the current one. `line` receives a VCF.gz record's text.
   std::unique_ptr<genotype_detail::FileIndex> index;
   std::size_t next_region = 0;
   const GenomicRegion* current_region = nullptr;
@@ -214,9 +205,6 @@ struct InputFile {
     if (header) bcf_hdr_destroy(header);
     if (handle) hts_close(handle);
   }
-
-  // The text htslib parsed last, for error messages.
-  const kstring_t& parsed_line() const { return index && index->is_tabix() ? line : handle->line; }
 };
 
 std::string record_where(const InputFile& input, std::uint64_t record_number,
@@ -226,21 +214,39 @@ std::string record_where(const InputFile& input, std::uint64_t record_number,
   return where;
 }
 
-// A BGZF-level failure means damaged bytes; otherwise htslib read a whole
-// line of text and could not parse it.
+// Reading stops only on damaged or cut-short data: VCF text is parsed later,
+// when the batch is decoded, and BCF records need no parsing.
 [[noreturn]] void throw_read_error(const InputFile& input, std::uint64_t record_number) {
-  htsFile* handle = input.handle;
-  const bool damaged = handle->is_bgzf && handle->fp.bgzf->errcode != 0;
-  const std::string line_place = damaged ? "" : place_of_unparsed_line(handle, input.parsed_line());
-  if (!line_place.empty()) {
-    throw_input_error(record_where(input, record_number, line_place),
-                      "htslib could not parse this record (its message is above)",
-                      "make the record follow VCF 4.3; `bcftools view` stops at the same place");
-  }
   const std::string place =
       "after " + (input.last_place.empty() ? std::string("the header") : input.last_place);
   throw_input_error(record_where(input, record_number, place),
                     "reading failed: the data is damaged or cut short", damaged_file_fix);
+}
+
+// The first `count` tab-separated columns of a line, as far as they exist.
+std::vector<std::string_view> leading_columns(const kstring_t& line, int count) {
+  std::vector<std::string_view> columns;
+  const std::string_view text(line.s ? line.s : "", line.l);
+  std::size_t start = 0;
+  while (static_cast<int>(columns.size()) < count && start <= text.size()) {
+    const std::size_t tab = std::min(text.find('\t', start), text.size());
+    columns.push_back(text.substr(start, tab - start));
+    start = tab + 1;
+  }
+  return columns;
+}
+
+// POS of a VCF line, or nothing when it is not a plain number (the decoder
+// reports such a line).
+std::optional<std::int64_t> position_in_line(const kstring_t& line) {
+  const std::vector<std::string_view> columns = leading_columns(line, 2);
+  if (columns.size() < 2 || columns[1].empty() || columns[1].size() > 18) return std::nullopt;
+  std::int64_t position = 0;
+  for (char letter : columns[1]) {
+    if (letter < '0' || letter > '9') return std::nullopt;
+    position = position * 10 + (letter - '0');
+  }
+  return position;
 }
 
 }  // namespace
@@ -256,7 +262,11 @@ struct GenotypeReader::Impl {
   std::unique_ptr<InputFile> open_input(const std::string& path, const GenotypeReaderOptions& options);
   void read_header(InputFile& input);
   void check_samples_match(const InputFile& input, std::vector<std::string> samples);
-  int read_next_in_regions(InputFile& input, bcf1_t* record);
+  bool start_next_region(InputFile& input);
+  int read_record_in_regions(InputFile& input, bcf1_t* record);
+  int read_line_in_regions(InputFile& input, kstring_t& line);
+  int read_line(InputFile& input, kstring_t& line);
+  bool read_next(InputFile& input, RecordBatch::Impl& records);
 };
 
 namespace {
@@ -270,36 +280,61 @@ void check_haploid_dosage(int haploid_dosage) {
 
 }  // namespace
 
+// Moves on to the next region that the file may hold records of; false
+// once every region is done.
+bool GenotypeReader::Impl::start_next_region(InputFile& input) {
+  while (!input.iterator) {
+    if (input.next_region >= regions.size()) return false;
+    input.current_region = &regions[input.next_region++];
+    const int tid = input.index->contig_id(input.current_region->contig);
+    // A contig this file lacks gives no iterator: nothing to read here.
+    input.iterator =
+        input.index->query(tid, input.current_region->first - 1, input.current_region->last);
+  }
+  return true;
+}
+
+bool holds_position(const GenomicRegion& region, std::int64_t position) {
+  return position >= region.first && position <= region.last;
+}
+
 // Like bcf_read: 0 for a record, -1 once every region is done, below -1 for
 // an error. Only records whose POS lies in the current region count: the
 // index iterator also yields records that start earlier and reach into it.
-int GenotypeReader::Impl::read_next_in_regions(InputFile& input, bcf1_t* record) {
-  while (true) {
-    if (!input.iterator) {
-      if (input.next_region >= regions.size()) return -1;
-      input.current_region = &regions[input.next_region++];
-      const int tid = input.index->contig_id(input.current_region->contig);
-      // A contig this file lacks gives no iterator: nothing to read here.
-      input.iterator = input.index->query(tid, input.current_region->first - 1,
-                                          input.current_region->last);
-      continue;
-    }
-    int status = 0;
-    if (input.index->is_tabix()) {
-      status = tbx_itr_next(input.handle, input.index->tabix(), input.iterator.get(), &input.line);
-      if (status >= 0) status = vcf_parse(&input.line, input.header, record) == 0 ? 0 : -2;
-    } else {
-      status = bcf_itr_next(input.handle, input.iterator.get(), record);
-    }
+int GenotypeReader::Impl::read_record_in_regions(InputFile& input, bcf1_t* record) {
+  while (start_next_region(input)) {
+    const int status = bcf_itr_next(input.handle, input.iterator.get(), record);
     if (status == -1) {
       input.iterator.reset();
       continue;
     }
     if (status < -1) return status;
-    const std::int64_t position = record->pos + 1;
-    if (position < input.current_region->first || position > input.current_region->last) continue;
+    if (holds_position(*input.current_region, record->pos + 1)) return 0;
+  }
+  return -1;
+}
+
+// The same for VCF.gz lines, which stay text: POS is read off the line.
+int GenotypeReader::Impl::read_line_in_regions(InputFile& input, kstring_t& line) {
+  while (start_next_region(input)) {
+    const int status = tbx_itr_next(input.handle, input.index->tabix(), input.iterator.get(), &input.line);
+    if (status == -1) {
+      input.iterator.reset();
+      continue;
+    }
+    if (status < -1) return status;
+    const std::optional<std::int64_t> position = position_in_line(input.line);
+    if (position && !holds_position(*input.current_region, *position)) continue;
+    std::swap(line, input.line);  // hand the text over without copying it
     return 0;
   }
+  return -1;
+}
+
+int GenotypeReader::Impl::read_line(InputFile& input, kstring_t& line) {
+  if (reads_regions) return read_line_in_regions(input, line);
+  const int length = hts_getline(input.handle, KS_SEP_LINE, &line);
+  return length >= 0 ? 0 : length;
 }
 
 std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& path,
@@ -341,6 +376,11 @@ std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& p
   check_field_type(path, input->header, info->field, info->tag_id);
   info->gt_tag_id = format_tag_id(input->header, "GT");
   info->haploid_dosage = options.haploid_dosage;
+  if (format->format == vcf) {
+    // VCF records are kept as text by the reader and parsed in parallel.
+    info->text_decoder = std::make_shared<genotype_detail::VcfTextDecoder>(
+        input->header, info->field, options.haploid_dosage);
+  }
   if (!options.regions.empty()) {
     input->index = genotype_detail::FileIndex::load(path, input->handle, input->header);
     if (!input->index) genotype_detail::throw_missing_index(path, input->handle, "reading regions");
@@ -410,6 +450,40 @@ std::optional<std::uint64_t> GenotypeReader::indexed_record_count() const {
   return total;
 }
 
+// Reads the input's next record into slot records.count; false at its end.
+bool GenotypeReader::Impl::read_next(InputFile& input, RecordBatch::Impl& records) {
+  const std::size_t slot = records.count;
+  const std::uint64_t record_number = input.records_read + 1;
+  genotype_detail::RecordOrigin& origin = records.origins[slot];
+  std::string position_text;
+  if (input.info->text_decoder) {
+    kstring_t& line = records.lines[slot];
+    const int status = read_line(input, line);
+    if (status == -1) return false;
+    if (status < -1) throw_read_error(input, record_number);
+    const std::vector<std::string_view> columns = leading_columns(line, 2);
+    origin.chromosome.assign(columns[0].data(), columns[0].size());
+    if (columns.size() > 1) position_text.assign(columns[1].data(), columns[1].size());
+  } else {
+    bcf1_t* record = records.record_at(slot);
+    const int status = reads_regions ? read_record_in_regions(input, record)
+                                     : bcf_read(input.handle, input.header, record);
+    if (status == -1) return false;
+    // Undefined contigs and tags are only warnings: htslib adds them to the header.
+    const int fatal_errors = record->errcode & ~(BCF_ERR_CTG_UNDEF | BCF_ERR_TAG_UNDEF);
+    if (status < -1 || fatal_errors != 0) throw_read_error(input, record_number);
+    // Copied now: htslib may grow the header's contig list while later
+    // records are read, and decoding must not look into a changing header.
+    origin.chromosome = bcf_seqname_safe(input.header, record);
+    position_text = std::to_string(record->pos + 1);
+  }
+  input.records_read = record_number;
+  origin.file = input.info;
+  origin.record_number = record_number;
+  input.last_place = origin.chromosome + ":" + position_text;
+  return true;
+}
+
 std::size_t GenotypeReader::read_batch(RecordBatch& batch, std::size_t max_records) {
   if (!batch.impl_) batch.impl_ = std::make_unique<RecordBatch::Impl>();
   RecordBatch::Impl& records = *batch.impl_;
@@ -419,25 +493,10 @@ std::size_t GenotypeReader::read_batch(RecordBatch& batch, std::size_t max_recor
 
   while (records.count < max_records && impl_->current_input < impl_->inputs.size()) {
     InputFile& input = *impl_->inputs[impl_->current_input];
-    bcf1_t* record = records.records[records.count];
-    const int status = impl_->reads_regions ? impl_->read_next_in_regions(input, record)
-                                            : bcf_read(input.handle, input.header, record);
-    if (status == -1) {
+    if (!impl_->read_next(input, records)) {
       ++impl_->current_input;
       continue;
     }
-    const std::uint64_t record_number = input.records_read + 1;
-    // Undefined contigs and tags are only warnings: htslib adds them to the header.
-    const int fatal_errors = record->errcode & ~(BCF_ERR_CTG_UNDEF | BCF_ERR_TAG_UNDEF);
-    if (status < -1 || fatal_errors != 0) throw_read_error(input, record_number);
-    input.records_read = record_number;
-    genotype_detail::RecordOrigin& origin = records.origins[records.count];
-    origin.file = input.info;
-    origin.record_number = record_number;
-    // Copied now: htslib may grow the header's contig list while later
-    // records are read, and decoding must not look into a changing header.
-    origin.chromosome = bcf_seqname_safe(input.header, record);
-    input.last_place = origin.chromosome + ":" + std::to_string(record->pos + 1);
     ++records.count;
   }
   return records.count;
