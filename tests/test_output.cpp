@@ -73,7 +73,7 @@ TEST(ResultRows, EmptyOptionalsAreWrittenAsNA) {
   // other allele is the reference (GWAS-SSF v1.0, from memory).
   EXPECT_EQ(line,
             "2\t150\tT\tC\t0.125\t0.0625\t0.25\t0.5\t2:150:C:T\t#NA\t1000\t#NA\tOA\tscore\t"
-            "0.301029996\t4\t0.5\t#NA\t#NA\t#NA\t#NA\t#NA\t500\t1\t#NA\n");
+            "0.301029996\t4\t0.5\t#NA\t#NA\t#NA\t#NA\t#NA\t500\t1\t#NA\t#NA\n");
 }
 
 TEST(ResultRows, FilledOptionalsAreWritten) {

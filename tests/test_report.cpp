@@ -483,7 +483,7 @@ TEST(ResultsReader, WrongColumnCountNamesFileAndLine) {
   tamis::testing::write_text_file(dir + "/bad.trait.tsv", text);
   const std::string message = error_text_of(dir + "/bad.trait.tsv");
   EXPECT_NE(message.find(dir + "/bad.trait.tsv, line 3"), std::string::npos) << message;
-  EXPECT_NE(message.find("found 24 tab-separated fields, expected 25"), std::string::npos) << message;
+  EXPECT_NE(message.find("found 25 tab-separated fields, expected 26"), std::string::npos) << message;
   EXPECT_NE(message.find("fix:"), std::string::npos) << message;
 }
 
@@ -562,7 +562,7 @@ TEST(LargeReport, TwoMillionRowsRenderQuicklyAndKeepEverySuggestivePoint) {
       if (neg_log_10_p >= 5.0) ++suggestive_rows;
       std::snprintf(line, sizeof line,
                     "%d\t%ld\tA\tG\t0.01\t0.02\t0.2\t%.6g\t%d_%ld_G_A\t#NA\t2000\t#NA\tOA\tscore\t%.9g\t%.6g\t"
-                    "%.6g\t#NA\t#NA\t#NA\t#NA\t#NA\t80\t1\t#NA\n",
+                    "%.6g\t#NA\t#NA\t#NA\t#NA\t#NA\t80\t1\t#NA\t#NA\n",
                     chromosome, position, std::pow(10.0, -neg_log_10_p), chromosome, position, neg_log_10_p,
                     neg_log_10_p * 4.0, std::pow(10.0, -neg_log_10_p));
       gzputs(file, line);

@@ -633,6 +633,8 @@ DecodePath decode_vcf_text_record(const RecordOrigin& origin, std::string_view l
   return DecodePath::general;
 }
 
+std::size_t text_sample_count(const FileInfo& file) { return file.sample_ids->size(); }
+
 DecodePath decode_vcf_text_record(const std::shared_ptr<const FileInfo>& file,
                                   std::uint64_t record_number, std::string_view line,
                                   DosageBlock& out, DecodeMode mode) {

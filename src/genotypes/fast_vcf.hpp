@@ -73,6 +73,9 @@ std::shared_ptr<const FileInfo> make_text_file_info(const std::string& header_te
                                                     const std::string& path, DosageField field,
                                                     int haploid_dosage = 1);
 
+// For tests and fuzzers: the number of samples of `file`.
+std::size_t text_sample_count(const FileInfo& file);
+
 // For tests and fuzzers: decode_vcf_text_record for record `record_number`
 // of `file` (from make_text_file_info).
 DecodePath decode_vcf_text_record(const std::shared_ptr<const FileInfo>& file,

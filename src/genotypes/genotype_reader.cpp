@@ -459,8 +459,12 @@ bool GenotypeReader::Impl::read_next(InputFile& input, RecordBatch::Impl& record
   if (input.info->text_decoder) {
     kstring_t& line = records.lines[slot];
     const int status = read_line(input, line);
+    // A block that fails its checks can end a line early without failing
+    // the read itself; BGZF remembers the failure.
+    const bool damaged = hts_get_format(input.handle)->compression != no_compression &&
+                         input.handle->fp.bgzf->errcode != 0;
+    if (status < -1 || damaged) throw_read_error(input, record_number);
     if (status == -1) return false;
-    if (status < -1) throw_read_error(input, record_number);
     const std::vector<std::string_view> columns = leading_columns(line, 2);
     origin.chromosome.assign(columns[0].data(), columns[0].size());
     if (columns.size() > 1) position_text.assign(columns[1].data(), columns[1].size());

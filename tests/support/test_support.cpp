@@ -2,6 +2,7 @@
 
 #include <sys/stat.h>
 #include <sys/wait.h>
+#include <unistd.h>
 #include <zlib.h>
 
 #include <array>
@@ -16,7 +17,9 @@ namespace tamis::testing {
 std::string make_temp_dir(const std::string& test_name) {
   const char* root = std::getenv("TAMIS_TEST_TMP");
   std::string base = root ? root : "/tmp/tamis_tests";
-  std::string dir = base + "/" + test_name;
+  // ctest runs each test in its own process, several at once: the process ID
+  // keeps their directories apart.
+  std::string dir = base + "/" + test_name + "." + std::to_string(getpid());
   run_command("rm -rf '" + dir + "' && mkdir -p '" + dir + "'");
   return dir;
 }

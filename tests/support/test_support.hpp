@@ -5,7 +5,7 @@
 
 namespace tamis::testing {
 
-// A fresh, empty directory for one test (under TAMIS_TEST_TMP or /tmp).
+// A fresh, empty directory for one test process (under TAMIS_TEST_TMP or /tmp).
 std::string make_temp_dir(const std::string& test_name);
 
 // Runs a shell command; returns its exit status (the code, not the raw wait status).
