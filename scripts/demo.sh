@@ -14,12 +14,16 @@ mkdir -p "$out"
   --trait fev1_litres --trait winter_wheeze \
   --covariates age,sex,village,pc1,pc2,pc3,pc4 \
   --genome-assembly GRCh38 --out "$out/scan"
+./build/tamis report --results "$out/scan.fev1_litres.tsv.gz" "$out/scan.winter_wheeze.tsv.gz" \
+  --out "$out/report" 2>/dev/null
 for trait in fev1_litres winter_wheeze; do
   echo
-  echo "== top hits for $trait (planted effects are listed in $out/saltmarsh.truth.tsv)"
-  zcat "$out/scan.$trait.tsv.gz" | head -1 | cut -f1,2,3,4,5,6,14,15
-  zcat "$out/scan.$trait.tsv.gz" | tail -n +2 | sort -t$'\t' -k15,15gr | head -8 | cut -f1,2,3,4,5,6,14,15
+  echo "== top hits for $trait (planted effects: $out/saltmarsh.truth.tsv)"
+  # Columns: chromosome, position, effect and other allele, beta, SE, test, -log10 p.
+  zcat "$out/scan.$trait.tsv.gz" | awk -F'\t' 'NR == 1 { print $1, $2, $3, $4, $5, $6, $14, $15; next }
+    { print $1, $2, $3, $4, $5, $6, $14, $15 | "sort -k8,8gr | head -8" }' OFS='\t'
 done
 echo
-echo "results: $out/scan.fev1_litres.tsv.gz, $out/scan.winter_wheeze.tsv.gz (tabix-indexed, GWAS-SSF columns)"
-echo "run log: $out/scan.log"
+echo "results:  $out/scan.fev1_litres.tsv.gz, $out/scan.winter_wheeze.tsv.gz (GWAS-SSF, tabix-indexed)"
+echo "report:   $out/report.html (Manhattan and QQ plots, lead loci: $out/report.loci.tsv)"
+echo "run log:  $out/scan.log"
