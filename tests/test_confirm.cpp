@@ -11,16 +11,10 @@ namespace tamis::testing {
 namespace {
 
 std::string confirmed_rows(const std::string& text) {
-  std::istringstream lines(text);
-  std::string line, kept;
-  bool header = true;
-  while (std::getline(lines, line)) {
-    std::vector<std::string> fields;
-    std::istringstream cells(line);
-    std::string cell;
-    while (std::getline(cells, cell, '\t')) fields.push_back(cell);
-    if (header || fields.at(13).rfind("score", 0) != 0) kept += line + "\n";
-    header = false;
+  const std::vector<std::string> lines = lines_of(text);
+  std::string kept = lines.at(0) + "\n";
+  for (std::size_t line_idx = 1; line_idx < lines.size(); ++line_idx) {
+    if (split_fields(lines[line_idx]).at(13).rfind("score", 0) != 0) kept += lines[line_idx] + "\n";
   }
   return kept;
 }
@@ -61,13 +55,8 @@ TEST_F(Confirm, TakesAPositionalVariantList) {
   ASSERT_EQ(run_command(tamis_binary() + " scan" + inputs() + " --confirm-below 1 --out " + dir_ + "/every"), 0);
   const std::string rows = read_gzip_file(dir_ + "/every.fev1_litres.tsv.gz");
   // The third data row, as chr:pos:ref:alt.
-  std::istringstream lines(rows);
-  std::string line;
-  for (int line_idx = 0; line_idx < 4; ++line_idx) std::getline(lines, line);
-  std::vector<std::string> fields;
-  std::istringstream cells(line);
-  std::string cell;
-  while (std::getline(cells, cell, '\t')) fields.push_back(cell);
+  const std::string line = lines_of(rows).at(3);
+  const std::vector<std::string> fields = split_fields(line);
   write_text_file(dir_ + "/list.txt", fields[0] + ":" + fields[1] + ":" + fields[3] + ":" + fields[2] + "\n");
   ASSERT_EQ(run_command(tamis_binary() + " confirm" + inputs() + " --variants " + dir_ + "/list.txt --out " + dir_ +
                         "/listed"),

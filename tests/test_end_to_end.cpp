@@ -11,23 +11,6 @@
 namespace tamis::testing {
 namespace {
 
-std::vector<std::string> split(const std::string& line, char separator) {
-  std::vector<std::string> fields;
-  std::string field;
-  std::istringstream stream(line);
-  while (std::getline(stream, field, separator)) fields.push_back(field);
-  if (!line.empty() && line.back() == separator) fields.push_back("");
-  return fields;
-}
-
-std::vector<std::string> lines_of(const std::string& text) {
-  std::vector<std::string> lines;
-  std::istringstream stream(text);
-  std::string line;
-  while (std::getline(stream, line)) lines.push_back(line);
-  return lines;
-}
-
 // The sidecar names its data file, which differs between the two runs.
 std::string without_file_name(const std::string& yaml) {
   std::string kept;
@@ -80,7 +63,7 @@ TEST_F(EndToEnd, ResultsPassTheGwasSsfColumnCheck) {
   ASSERT_EQ(run_command(scan_command(dir_ + "/ssf", 2)), 0);
   const std::vector<std::string> lines = lines_of(read_gzip_file(dir_ + "/ssf.fev1_litres.tsv.gz"));
   ASSERT_GT(lines.size(), 100u);
-  const std::vector<std::string> header = split(lines[0], '\t');
+  const std::vector<std::string> header = split_fields(lines[0], '\t');
   const std::vector<std::string> mandatory = {"chromosome", "base_pair_location", "effect_allele", "other_allele",
                                               "beta", "standard_error", "effect_allele_frequency", "p_value"};
   ASSERT_GE(header.size(), mandatory.size());
@@ -88,7 +71,7 @@ TEST_F(EndToEnd, ResultsPassTheGwasSsfColumnCheck) {
     EXPECT_EQ(header[column_idx], mandatory[column_idx]);
   }
   for (std::size_t line_idx = 1; line_idx < lines.size(); ++line_idx) {
-    const std::vector<std::string> fields = split(lines[line_idx], '\t');
+    const std::vector<std::string> fields = split_fields(lines[line_idx], '\t');
     ASSERT_EQ(fields.size(), header.size()) << lines[line_idx];
     const int chromosome = std::stoi(fields[0]);
     EXPECT_TRUE(chromosome >= 1 && chromosome <= 25);
@@ -121,7 +104,7 @@ TEST_F(EndToEnd, TabixAnswersRegionQueries) {
   const std::vector<std::string> all = lines_of(read_gzip_file(path));
   std::vector<std::string> expected;
   for (std::size_t line_idx = 1; line_idx < all.size(); ++line_idx) {
-    const std::vector<std::string> fields = split(all[line_idx], '\t');
+    const std::vector<std::string> fields = split_fields(all[line_idx], '\t');
     const long long position = std::stoll(fields[1]);
     if (fields[0] == "2" && position >= 50000 && position <= 150000) expected.push_back(all[line_idx]);
   }
@@ -138,12 +121,12 @@ TEST_F(EndToEnd, PlantedEffectsAreFoundAndConfirmed) {
   const std::vector<std::string> rows = lines_of(read_gzip_file(dir_ + "/planted.fev1_litres.tsv.gz"));
   std::map<std::string, std::vector<std::string>> by_position;
   for (std::size_t line_idx = 1; line_idx < rows.size(); ++line_idx) {
-    std::vector<std::string> fields = split(rows[line_idx], '\t');
+    std::vector<std::string> fields = split_fields(rows[line_idx], '\t');
     by_position[fields[0] + ":" + fields[1]] = fields;
   }
   int found = 0;
   for (std::size_t line_idx = 1; line_idx < truth.size(); ++line_idx) {
-    const std::vector<std::string> fields = split(truth[line_idx], '\t');
+    const std::vector<std::string> fields = split_fields(truth[line_idx], '\t');
     if (fields[0] != "fev1_litres") continue;
     auto row = by_position.find(fields[1] + ":" + fields[2]);
     ASSERT_NE(row, by_position.end());
@@ -156,7 +139,7 @@ TEST_F(EndToEnd, EveryVariantConfirmedWhenThresholdIsOne) {
   ASSERT_EQ(run_command(scan_command(dir_ + "/all", 2, "--confirm-below 1")), 0);
   const std::vector<std::string> rows = lines_of(read_gzip_file(dir_ + "/all.winter_wheeze.tsv.gz"));
   for (std::size_t line_idx = 1; line_idx < rows.size(); ++line_idx) {
-    const std::vector<std::string> fields = split(rows[line_idx], '\t');
+    const std::vector<std::string> fields = split_fields(rows[line_idx], '\t');
     EXPECT_TRUE(fields[13] == "lrt" || fields[13] == "firth_lrt") << fields[13];
     EXPECT_NE(fields[17], "#NA");
     EXPECT_NE(fields[19], "#NA");

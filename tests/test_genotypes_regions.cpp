@@ -254,7 +254,9 @@ TEST_F(RegionReading, RecordsMatchBcftoolsWithPosSemantics) {
       const std::vector<RecordKey> found = read_regions({path}, parse_all(texts));
       EXPECT_EQ(found, expected);
       // Most sets select something; a check that compares two empty lists proves little.
-      if (texts.front() != "X:123456" && texts.front() != "1:1-1") EXPECT_FALSE(found.empty());
+      if (texts.front() != "X:123456" && texts.front() != "1:1-1") {
+        EXPECT_FALSE(found.empty());
+      }
     }
   }
 }
@@ -377,7 +379,9 @@ std::vector<std::vector<RecordKey>> read_shards(const std::vector<std::string>& 
   for (int shard = 1; shard <= shard_count; ++shard) {
     const std::vector<GenomicRegion> regions = plan_shard(paths, shard, shard_count);
     EXPECT_FALSE(regions.empty()) << "shard " << shard << " of " << shard_count;
-    if (shard == shard_count && !regions.empty()) EXPECT_EQ(regions.back().last, end_of_contig);
+    if (shard == shard_count && !regions.empty()) {
+      EXPECT_EQ(regions.back().last, end_of_contig);
+    }
     for (const GenomicRegion& region : regions) EXPECT_LE(region.first, region.last);
     shards.push_back(read_regions(paths, regions));
   }

@@ -10,21 +10,6 @@
 namespace tamis::testing {
 namespace {
 
-std::vector<std::vector<std::string>> rows_of(const std::string& text) {
-  std::vector<std::vector<std::string>> rows;
-  std::istringstream lines(text);
-  std::string line;
-  std::getline(lines, line);  // header
-  while (std::getline(lines, line)) {
-    std::vector<std::string> fields;
-    std::istringstream cells(line);
-    std::string cell;
-    while (std::getline(cells, cell, '\t')) fields.push_back(cell);
-    rows.push_back(fields);
-  }
-  return rows;
-}
-
 class Selection : public ::testing::Test {
  protected:
   static void SetUpTestSuite() {
@@ -56,8 +41,8 @@ TEST_F(Selection, DroppingSamplesLowersNByExactlyThatMany) {
   const std::size_t start = log.rfind(", ", at) + 2;
   const long excluded = std::stol(log.substr(start, at - start));
   EXPECT_GE(excluded, 1);
-  const long n_whole = std::stol(rows_of(results("whole", "fev1_litres")).at(0).at(10));
-  const long n_dropped = std::stol(rows_of(results("dropped", "fev1_litres")).at(0).at(10));
+  const long n_whole = std::stol(data_rows(results("whole", "fev1_litres")).at(0).at(10));
+  const long n_dropped = std::stol(data_rows(results("dropped", "fev1_litres")).at(0).at(10));
   EXPECT_EQ(n_whole - n_dropped, excluded);
   EXPECT_NE(log.find("1 of the 6 IDs in --drop-samples are not in the genotype files (NOT_A_SAMPLE)"),
             std::string::npos)
@@ -73,7 +58,7 @@ TEST_F(Selection, KeepingSamplesKeepsOnlyThose) {
   }
   write_text_file(dir_ + "/keep.txt", keep);
   ASSERT_EQ(run_command(scan("kept", "--trait fev1_litres --keep-samples " + dir_ + "/keep.txt")), 0);
-  const long n_kept = std::stol(rows_of(results("kept", "fev1_litres")).at(0).at(10));
+  const long n_kept = std::stol(data_rows(results("kept", "fev1_litres")).at(0).at(10));
   EXPECT_LE(n_kept, 300);
   EXPECT_GT(n_kept, 250);
 }
@@ -81,7 +66,7 @@ TEST_F(Selection, KeepingSamplesKeepsOnlyThose) {
 TEST_F(Selection, RegionSelectsExactlyItsRecords) {
   ASSERT_EQ(run_command(scan("region", "--trait fev1_litres --region 2:500000-3000000 --region 3:1-800000")), 0);
   std::string expected;
-  for (const auto& row : rows_of(results("whole", "fev1_litres"))) {
+  for (const auto& row : data_rows(results("whole", "fev1_litres"))) {
     const long long position = std::stoll(row[1]);
     const bool inside = (row[0] == "2" && position >= 500000 && position <= 3000000) ||
                         (row[0] == "3" && position <= 800000);
@@ -95,7 +80,7 @@ TEST_F(Selection, RegionSelectsExactlyItsRecords) {
 }
 
 TEST_F(Selection, VariantListSelectsExactlyThoseVariants) {
-  const auto whole = rows_of(results("whole", "fev1_litres"));
+  const auto whole = data_rows(results("whole", "fev1_litres"));
   const auto& by_position = whole.at(10);
   std::string by_id_rsid;
   for (const auto& row : whole) {
@@ -108,7 +93,7 @@ TEST_F(Selection, VariantListSelectsExactlyThoseVariants) {
   write_text_file(dir_ + "/variants.txt", by_position[0] + ":" + by_position[1] + ":" + by_position[3] + ":" +
                                               by_position[2] + "\n" + by_id_rsid + "\n");
   ASSERT_EQ(run_command(scan("listed", "--trait fev1_litres --variants " + dir_ + "/variants.txt")), 0);
-  const auto listed = rows_of(results("listed", "fev1_litres"));
+  const auto listed = data_rows(results("listed", "fev1_litres"));
   ASSERT_EQ(listed.size(), 2u);
   std::vector<std::string> ids = {listed[0][8], listed[1][8]};
   EXPECT_NE(std::find(ids.begin(), ids.end(), by_position[8]), ids.end());

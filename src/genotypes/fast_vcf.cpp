@@ -27,14 +27,12 @@ constexpr int largest_format_keys = 255;  // htslib's limit on FORMAT identifier
 constexpr int largest_fast_ploidy = 16;   // longer calls go to htslib's parser
 constexpr int largest_allele_digits = 9;
 constexpr int largest_position_digits = 18;
-// A decimal with at most 15 significant digits is an integer below 2^53 over
-// a power of ten up to 10^22, both exact in a double, so one IEEE division
-// gives the correctly rounded double that strtod gives.
+// A decimal of at most 15 digits is an integer below 2^53 over a power of
+// ten up to 10^15, both exact in a double, so one IEEE division gives the
+// correctly rounded double, which is what strtod gives.
 constexpr int largest_exact_digits = 15;
-constexpr int largest_exact_decimals = 22;
-constexpr double powers_of_ten[largest_exact_decimals + 1] = {
-    1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,  1e8,  1e9,  1e10, 1e11,
-    1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+constexpr double powers_of_ten[largest_exact_digits + 1] = {
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15};
 
 bool is_digit(char letter) { return letter >= '0' && letter <= '9'; }
 
@@ -240,6 +238,8 @@ class FastLineDecoder {
   bool split_alleles(std::string_view ref, std::string_view alt);
   void append_sites(const std::string_view* columns, std::int64_t position);
   bool decode_samples(Cursor cursor);
+  bool decode_biallelic_gt_ds(Cursor cursor);
+  bool finish_sample(Cursor& cursor, std::size_t sample_idx) const;
   bool decode_sample_field(FieldRole role, Cursor& cursor, std::size_t sample_idx);
   void fill_omitted_field(FieldRole role, std::size_t sample_idx);
   bool decode_genotype(Cursor& cursor, std::size_t sample_idx);
@@ -269,41 +269,33 @@ bool parse_position(std::string_view text, std::int64_t* position) {
 // decimal, rounded to float. Plain decimals only ([-]digits[.digits],
 // [-].digits); anything else (exponents, inf, nan, hex, signs, spaces) is
 // declined. `allow_negative` is for fields only checked, never used.
-bool parse_float(Cursor& cursor, double* value, bool allow_negative) {
+inline bool parse_float(Cursor& cursor, double* value, bool allow_negative) {
   const char* start = cursor.at;
-  bool negative = false;
-  if (allow_negative && cursor.peek() == '-') {
-    negative = true;
-    ++cursor.at;
-  }
+  const char* at = cursor.at;
+  const char* const end = cursor.end;
+  const bool negative = allow_negative && at < end && *at == '-';
+  if (negative) ++at;
+  // Digits past the 19th wrap the mantissa; such numbers go to strtod.
   std::uint64_t mantissa = 0;
-  int significant = 0;
+  const char* digits_start = at;
+  while (at < end && is_digit(*at)) mantissa = mantissa * 10 + static_cast<unsigned>(*at++ - '0');
+  int digits = static_cast<int>(at - digits_start);
   int decimals = 0;
-  bool any_digit = false;
-  auto take_digit = [&](char letter) {
-    any_digit = true;
-    if (mantissa == 0 && letter == '0') return;  // leading zeros are not significant
-    if (significant < largest_exact_digits + 1) mantissa = mantissa * 10 + (letter - '0');
-    ++significant;
-  };
-  while (is_digit(cursor.peek())) take_digit(*cursor.at++);
-  if (cursor.peek() == '.') {
-    ++cursor.at;
-    while (is_digit(cursor.peek())) {
-      take_digit(*cursor.at++);
-      ++decimals;
-    }
+  if (at < end && *at == '.') {
+    const char* fraction = ++at;
+    while (at < end && is_digit(*at)) mantissa = mantissa * 10 + static_cast<unsigned>(*at++ - '0');
+    decimals = static_cast<int>(at - fraction);
+    digits += decimals;
   }
-  if (!any_digit) return false;
-  const char next = cursor.peek();
-  if (next == 'e' || next == 'E') return false;
+  if (digits == 0 || (at < end && (*at == 'e' || *at == 'E'))) return false;
   double nearest = 0.0;
-  if (significant <= largest_exact_digits && decimals <= largest_exact_decimals) {
+  if (digits <= largest_exact_digits) {
     nearest = static_cast<double>(mantissa) / powers_of_ten[decimals];
     if (negative) nearest = -nearest;
   } else {
-    nearest = std::strtod(std::string(start, cursor.at).c_str(), nullptr);
+    nearest = std::strtod(std::string(start, at).c_str(), nullptr);
   }
+  cursor.at = at;
   *value = static_cast<double>(static_cast<float>(nearest));
   return true;
 }
@@ -462,8 +454,61 @@ bool FastLineDecoder::decode_line(std::string_view line, std::size_t first_site)
   return decode_samples(Cursor{samples, line.data() + line.size()});
 }
 
+// The commonest layout of imputed data, GT:DS on a biallelic site, in one
+// tight loop: a fully called diploid GT of 0s and 1s and a plain DS number
+// are handled inline; anything else in a sample goes through the general
+// field decoders, which give the same result.
+bool FastLineDecoder::decode_biallelic_gt_ds(Cursor cursor) {
+  const std::size_t sample_count = layout_.sample_count;
+  double* const dosages = columns_.dosages;
+  std::uint8_t* const ploidy = columns_.ploidy;
+  std::int8_t* const calls = columns_.diploid_calls;
+  for (std::size_t sample_idx = 0; sample_idx < sample_count; ++sample_idx) {
+    const char* at = cursor.at;
+    const bool plain_call = cursor.end - at >= 4 && (at[0] == '0' || at[0] == '1') &&
+                            (at[1] == '/' || at[1] == '|') && (at[2] == '0' || at[2] == '1') &&
+                            at[3] == ':';
+    if (plain_call) {
+      ploidy[sample_idx] = 2;
+      calls[sample_idx] = static_cast<std::int8_t>((at[0] - '0') + (at[2] - '0'));
+      cursor.at = at + 4;
+    } else {
+      if (!decode_genotype(cursor, sample_idx)) return false;
+      if (cursor.peek() != ':') {
+        fill_omitted_field(FieldRole::dosage, sample_idx);
+        if (!finish_sample(cursor, sample_idx)) return false;
+        continue;
+      }
+      ++cursor.at;
+    }
+    double value = 0.0;
+    if (take_missing(cursor)) {
+      dosages[sample_idx] = missing_dosage;
+    } else {
+      if (!parse_float(cursor, &value, false)) return false;
+      if (!(value >= 0.0 && value <= diploid_dosage_limit)) return false;  // an error: htslib's path
+      dosages[sample_idx] = value;
+    }
+    if (cursor.peek() == ',' || cursor.peek() == ':') return false;  // more values or fields: general loop
+    if (!finish_sample(cursor, sample_idx)) return false;
+  }
+  return true;
+}
+
+// After a sample: a tab before the next one, the end of the line after the last.
+bool FastLineDecoder::finish_sample(Cursor& cursor, std::size_t sample_idx) const {
+  if (sample_idx + 1 == layout_.sample_count) return cursor.at == cursor.end;
+  if (cursor.peek() != '\t') return false;
+  ++cursor.at;
+  return true;
+}
+
 bool FastLineDecoder::decode_samples(Cursor cursor) {
   const std::vector<FieldRole>& roles = scratch_.plan.roles;
+  if (allele_count_ == 2 && roles.size() == 2 && roles[0] == FieldRole::genotype &&
+      roles[1] == FieldRole::dosage && layout_.field == DosageField::ds) {
+    return decode_biallelic_gt_ds(cursor);
+  }
   const std::size_t role_count = roles.size();
   const std::size_t sample_count = layout_.sample_count;
   for (std::size_t sample_idx = 0; sample_idx < sample_count; ++sample_idx) {
@@ -477,10 +522,8 @@ bool FastLineDecoder::decode_samples(Cursor cursor) {
     }
     // Trailing fields may be left out (VCF 4.3 section 1.6.2): missing.
     for (; role_idx < role_count; ++role_idx) fill_omitted_field(roles[role_idx], sample_idx);
-    const bool last = sample_idx + 1 == sample_count;
-    if (last) return cursor.at == cursor.end;  // more columns than samples: htslib's path
-    if (cursor.peek() != '\t') return false;
-    ++cursor.at;
+    // More columns than samples are left to htslib's path.
+    if (!finish_sample(cursor, sample_idx)) return false;
   }
   return true;
 }

@@ -2,6 +2,13 @@
 // threads: it reads only the batch's own records and immutable file state,
 // never the reading thread's htslib header. BCF records arrive as htslib
 // records; VCF text arrives as lines, decoded in fast_vcf.cpp.
+
+// FORMAT values sit at any byte offset in htslib's buffers: read them byte
+// by byte (htslib's documented switch), not through misaligned word loads,
+// which are undefined behaviour and which UBSan rejects under clang.
+#ifndef HTS_ALLOW_UNALIGNED
+#define HTS_ALLOW_UNALIGNED 0
+#endif
 #include <htslib/hts_endian.h>
 #include <htslib/vcf.h>
 
@@ -179,7 +186,32 @@ void RecordDecoder::decode_genotypes(const bcf_fmt_t& format, bool gives_dosages
     fail("FORMAT/GT is not stored as genotype integers", "rewrite the file with `bcftools view`");
   }
   call_alleles_.resize(static_cast<std::size_t>(format.n));
+  // Most records store diploid calls in one byte per allele: such samples,
+  // fully called with alleles the record has, need no slot-by-slot reading.
+  const bool byte_pairs = format.type == BCF_BT_INT8 && format.n == 2;
   for (std::size_t sample_idx = 0; sample_idx < sample_count_; ++sample_idx) {
+    if (byte_pairs) {
+      const std::int8_t first = static_cast<std::int8_t>(format.p[sample_idx * 2]);
+      const std::int8_t second = static_cast<std::int8_t>(format.p[sample_idx * 2 + 1]);
+      // An encoded allele is (index + 1) << 1 | phased, so 2 and up is called.
+      const int first_allele = (first >> 1) - 1, second_allele = (second >> 1) - 1;
+      const bool called = first >= 2 && second >= 2;
+      if (called && allele_count_ == 2 && first_allele < 2 && second_allele < 2) {
+        // What store_hard_call gives for a full diploid call of alleles 0 and 1.
+        const int copies = first_allele + second_allele;
+        columns_.ploidy_of(1, sample_idx) = 2;
+        columns_.diploid_call(1, sample_idx) = static_cast<std::int8_t>(copies);
+        if (gives_dosages) columns_.dosage(1, sample_idx) = copies;
+        continue;
+      }
+      if (called && first_allele < allele_count_ && second_allele < allele_count_) {
+        call_alleles_[0] = first_allele;
+        call_alleles_[1] = second_allele;
+        store_hard_call(columns_, sample_idx, allele_count_, call_alleles_.data(), 2, 2, false,
+                        gives_dosages, origin_.file->haploid_dosage);
+        continue;
+      }
+    }
     int length = 0;
     int called = 0;
     bool any_missing = false;
@@ -230,7 +262,20 @@ void RecordDecoder::decode_values(const bcf_fmt_t& format) {
   check_float_storage(format);
   values_.resize(static_cast<std::size_t>(format.n));
   const bool probabilities = origin_.file->field == DosageField::gp;
+  // One DS value per sample on a biallelic record: a plain in-range value
+  // is stored at once; the rest (missing, padding, rejected) goes below.
+  const bool single_dosages = !probabilities && format.n == 1 && allele_count_ == 2;
   for (std::size_t sample_idx = 0; sample_idx < sample_count_; ++sample_idx) {
+    if (single_dosages) {
+      const std::uint8_t* at = format.p + sample_idx * sizeof(float);
+      const std::uint32_t bits = le_to_u32(at);
+      const double value = le_to_float(at);
+      if (bits != bcf_float_missing && bits != bcf_float_vector_end && value >= 0.0 &&
+          value <= diploid_dosage_limit) {
+        columns_.dosage(1, sample_idx) = value;
+        continue;
+      }
+    }
     const int given = gather_values(format, sample_idx);
     const SampleOutcome outcome =
         probabilities ? convert_probabilities(columns_, sample_idx, values_.data(), given, allele_count_)

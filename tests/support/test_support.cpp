@@ -72,6 +72,32 @@ bool file_exists(const std::string& path) {
   return stat(path.c_str(), &info) == 0;
 }
 
+std::vector<std::string> split_fields(const std::string& line, char separator) {
+  std::vector<std::string> fields;
+  std::size_t start = 0;
+  while (true) {
+    const std::size_t end = line.find(separator, start);
+    fields.push_back(line.substr(start, end == std::string::npos ? std::string::npos : end - start));
+    if (end == std::string::npos) return fields;
+    start = end + 1;
+  }
+}
+
+std::vector<std::string> lines_of(const std::string& text) {
+  std::vector<std::string> lines;
+  std::istringstream stream(text);
+  std::string line;
+  while (std::getline(stream, line)) lines.push_back(line);
+  return lines;
+}
+
+std::vector<std::vector<std::string>> data_rows(const std::string& text) {
+  std::vector<std::vector<std::string>> rows;
+  const std::vector<std::string> lines = lines_of(text);
+  for (std::size_t line_idx = 1; line_idx < lines.size(); ++line_idx) rows.push_back(split_fields(lines[line_idx]));
+  return rows;
+}
+
 std::string tamis_binary() { return TAMIS_BINARY; }
 std::string source_dir() { return TAMIS_SOURCE_DIR; }
 

@@ -2,6 +2,7 @@
 #pragma once
 
 #include <string>
+#include <vector>
 
 namespace tamis::testing {
 
@@ -19,6 +20,12 @@ void write_text_file(const std::string& path, const std::string& text);
 // The decompressed text of a gzip / BGZF file.
 std::string read_gzip_file(const std::string& path);
 bool file_exists(const std::string& path);
+
+// Text helpers for results files: the fields of one line, the lines of a
+// text, and the data rows (header left out) split into fields.
+std::vector<std::string> split_fields(const std::string& line, char separator = '\t');
+std::vector<std::string> lines_of(const std::string& text);
+std::vector<std::vector<std::string>> data_rows(const std::string& text);
 
 // Path of the tamis executable under test and of the source tree.
 std::string tamis_binary();

@@ -1,0 +1,108 @@
+#!/usr/bin/env bash
+# Throughput of the scan against the htslib decode floor, and of the score
+# kernel.
+#
+# Builds tamis and the benchmarks (Release, in build-bench/), simulates a
+# cohort (5000 samples x 20000 variants, GT:DS) and its BCF copy, then runs
+# the decode floor (scripts/bench/decode_floor.c: bcf_read, bcf_unpack and
+# bcf_get_format_float of DS on one thread) and the scan interleaved, ROUNDS
+# times each, on VCF.gz and on BCF. Prints the median wall times, the median
+# ratio scan / floor, and the scan's peak memory (GNU time -v) at 20000 and
+# at 5000 variants. Ends with the Google Benchmark of the blocked score
+# kernel against width-1 calls.
+#
+# Environment: SAMPLES, VARIANTS, ROUNDS, THREADS (scan threads, 2), JOBS
+# (build jobs, 2), TAMIS_BENCH_BUILD_DIR, TAMIS_BENCH_DIR (data), KEEP_DATA.
+# Run it when the machine is otherwise idle: the figures are wall times.
+set -euo pipefail
+root=$(cd "$(dirname "$0")/.." && pwd)
+build=${TAMIS_BENCH_BUILD_DIR:-$root/build-bench}
+data=${TAMIS_BENCH_DIR:-$build/bench_data}
+samples=${SAMPLES:-5000}
+variants=${VARIANTS:-20000}
+small_variants=$((variants / 4))
+rounds=${ROUNDS:-3}
+threads=${THREADS:-2}
+jobs=${JOBS:-2}
+
+[ -x /usr/bin/time ] || { echo "GNU time is needed: apt-get install time" >&2; exit 1; }
+command -v bcftools > /dev/null || { echo "bcftools is needed: apt-get install bcftools" >&2; exit 1; }
+
+cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=Release -DTAMIS_BUILD_BENCH=ON -DTAMIS_BUILD_TESTS=OFF > /dev/null
+cmake --build "$build" -j "$jobs" --target tamis decode_floor score_kernel_bench read_throughput > /dev/null
+tamis="$build/tamis"
+floor="$build/scripts/bench/decode_floor"
+kernel_bench="$build/scripts/bench/score_kernel_bench"
+
+mkdir -p "$data"
+make_cohort() {  # PREFIX VARIANTS
+  if [ ! -f "$1.vcf.gz" ]; then
+    "$tamis" simulate --out "$1" --samples "$samples" --variants "$2" > /dev/null
+  fi
+  if [ ! -f "$1.bcf.csi" ]; then
+    bcftools view -Ob -o "$1.bcf" "$1.vcf.gz" && bcftools index -f "$1.bcf"
+  fi
+}
+cohort="$data/cohort_${samples}x${variants}"
+small_cohort="$data/cohort_${samples}x${small_variants}"
+make_cohort "$cohort" "$variants"
+make_cohort "$small_cohort" "$small_variants"
+
+# Runs a command under GNU time -v; prints "WALL_SECONDS PEAK_KB".
+measure() {
+  local report
+  report=$(mktemp)
+  /usr/bin/time -v "$@" > /dev/null 2> "$report"
+  awk -F': ' '
+    /Elapsed \(wall clock\)/ {
+      n = split($2, part, ":"); wall = 0
+      for (i = 1; i <= n; i++) wall = wall * 60 + part[i]
+    }
+    /Maximum resident set size/ { peak = $2 }
+    END { printf "%.3f %d\n", wall, peak }' "$report"
+  rm -f "$report"
+}
+
+scan() {  # GENOTYPES OUT
+  "$tamis" scan --genotypes "$1" --traits "$cohort.traits.tsv" --trait fev1_litres \
+    --trait winter_wheeze --covariates age,sex,village,pc1,pc2,pc3,pc4 --out "$2" \
+    --threads "$threads" --quiet
+}
+
+median() { sort -g | awk '{ value[NR] = $1 } END { print value[int((NR + 1) / 2)] }'; }
+
+echo "cohort: $samples samples x $variants variants (GT:DS), scan with $threads threads, $rounds rounds"
+for format in vcf.gz bcf; do
+  input="$cohort.$format"
+  floor_times=() scan_times=() ratios=() peaks=()
+  for round in $(seq "$rounds"); do
+    read -r floor_wall _ < <(measure "$floor" "$input")
+    read -r scan_wall scan_peak < <(measure scan "$input" "$data/scan_$format")
+    floor_times+=("$floor_wall") scan_times+=("$scan_wall") peaks+=("$scan_peak")
+    ratios+=("$(awk -v s="$scan_wall" -v f="$floor_wall" 'BEGIN { printf "%.3f", s / f }')")
+    rm -f "$data/scan_$format".*
+  done
+  printf '%-6s floor %6.2f s   scan %6.2f s   scan/floor %.2f (rounds: %s)   peak RSS %d MB\n' "$format" \
+    "$(printf '%s\n' "${floor_times[@]}" | median)" "$(printf '%s\n' "${scan_times[@]}" | median)" \
+    "$(printf '%s\n' "${ratios[@]}" | median)" "${ratios[*]}" \
+    "$(( $(printf '%s\n' "${peaks[@]}" | median) / 1024 ))"
+done
+
+# Memory against variant count: the same samples, a quarter of the variants.
+small_scan() {
+  "$tamis" scan --genotypes "$1" --traits "$small_cohort.traits.tsv" --trait fev1_litres \
+    --trait winter_wheeze --covariates age,sex,village,pc1,pc2,pc3,pc4 --out "$2" \
+    --threads "$threads" --quiet
+}
+read -r _ small_peak < <(measure small_scan "$small_cohort.vcf.gz" "$data/scan_small")
+read -r _ large_peak < <(measure scan "$cohort.vcf.gz" "$data/scan_large")
+rm -f "$data"/scan_small.* "$data"/scan_large.*
+awk -v s="$small_peak" -v l="$large_peak" -v sv="$small_variants" -v lv="$variants" 'BEGIN {
+  printf "peak RSS (VCF.gz): %d MB at %d variants, %d MB at %d variants (ratio %.2f)\n",
+    s / 1024, sv, l / 1024, lv, l / s }'
+
+echo "score kernel (samples x variants per second):"
+"$kernel_bench" --benchmark_repetitions="$rounds" --benchmark_report_aggregates_only=true \
+  --benchmark_counters_tabular=true 2>/dev/null | grep -E "median|Benchmark"
+
+[ -n "${KEEP_DATA:-}" ] || rm -f "$data"/scan_*
