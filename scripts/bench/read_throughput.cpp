@@ -80,6 +80,7 @@ int main(int argc, char** argv) {
     std::atomic<std::size_t> sites{0};
     double checksum = 0.0;
     std::mutex checksum_mutex;
+    std::string decode_error;
     if (decode_threads == 0) {
       tamis::RecordBatch batch;
       tamis::DosageBlock block;
@@ -97,23 +98,41 @@ int main(int argc, char** argv) {
           tamis::RecordBatch batch;
           tamis::DosageBlock block;
           double local = 0.0;
-          while (queue.pop(batch)) {
-            block.clear();
-            batch.decode(block);
-            sites += block.size();
-            local += sum_dosages(block);
+          try {
+            while (queue.pop(batch)) {
+              block.clear();
+              batch.decode(block);
+              sites += block.size();
+              local += sum_dosages(block);
+            }
+          } catch (const tamis::Error& error) {
+            std::lock_guard<std::mutex> lock(checksum_mutex);
+            if (decode_error.empty()) decode_error = error.what();
+            while (queue.pop(batch)) {
+            }  // let the reader finish
           }
           std::lock_guard<std::mutex> lock(checksum_mutex);
           checksum += local;
         });
       }
+      // The decoders are joined whatever happens to the reading.
+      struct Joiner {
+        BatchQueue& queue;
+        std::vector<std::thread>& decoders;
+        ~Joiner() {
+          queue.close();
+          for (std::thread& decoder : decoders) decoder.join();
+        }
+      } joiner{queue, decoders};
       while (true) {
         tamis::RecordBatch batch;
         if (reader.read_batch(batch, batch_records) == 0) break;
         queue.push(std::move(batch));
       }
-      queue.close();
-      for (std::thread& decoder : decoders) decoder.join();
+    }
+    if (!decode_error.empty()) {
+      std::fprintf(stderr, "%s\n", decode_error.c_str());
+      return 1;
     }
     const double seconds =
         std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();

@@ -194,6 +194,10 @@ struct InputFile {
   const GenomicRegion* current_region = nullptr;
   genotype_detail::IteratorPtr iterator;
   kstring_t line = {0, 0, nullptr};
+  // Once BGZF has seen a damaged block, each line is only taken when the
+  // line after it reads too; that line waits here.
+  kstring_t next_line = {0, 0, nullptr};
+  bool has_next_line = false;
 
   InputFile() = default;
   InputFile(const InputFile&) = delete;
@@ -202,6 +206,7 @@ struct InputFile {
     iterator.reset();
     index.reset();
     free(line.s);
+    free(next_line.s);
     if (header) bcf_hdr_destroy(header);
     if (handle) hts_close(handle);
   }
@@ -331,10 +336,32 @@ int GenotypeReader::Impl::read_line_in_regions(InputFile& input, kstring_t& line
   return -1;
 }
 
+bool has_damage(const InputFile& input) {
+  return hts_get_format(input.handle)->compression != no_compression &&
+         input.handle->fp.bgzf->errcode != 0;
+}
+
+// Like hts_getline: 0 for a line, -1 at the end, below -1 for an error.
+// A damaged block can end a line early without failing the read itself,
+// and with decompression threads BGZF notes the damage while earlier lines
+// are still intact. So after damage a line counts only if another line
+// follows it; the line cut short is reported as damage, at the same record
+// whatever the thread count.
 int GenotypeReader::Impl::read_line(InputFile& input, kstring_t& line) {
-  if (reads_regions) return read_line_in_regions(input, line);
-  const int length = hts_getline(input.handle, KS_SEP_LINE, &line);
-  return length >= 0 ? 0 : length;
+  if (reads_regions) {
+    const int status = read_line_in_regions(input, line);
+    return status == 0 && has_damage(input) ? -2 : status;
+  }
+  if (input.has_next_line) {
+    std::swap(line, input.next_line);
+    input.has_next_line = false;
+  } else if (hts_getline(input.handle, KS_SEP_LINE, &line) < 0) {
+    return has_damage(input) ? -2 : -1;
+  }
+  if (!has_damage(input)) return 0;
+  if (hts_getline(input.handle, KS_SEP_LINE, &input.next_line) < 0) return -2;
+  input.has_next_line = true;
+  return 0;
 }
 
 std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& path,
@@ -459,11 +486,7 @@ bool GenotypeReader::Impl::read_next(InputFile& input, RecordBatch::Impl& record
   if (input.info->text_decoder) {
     kstring_t& line = records.lines[slot];
     const int status = read_line(input, line);
-    // A block that fails its checks can end a line early without failing
-    // the read itself; BGZF remembers the failure.
-    const bool damaged = hts_get_format(input.handle)->compression != no_compression &&
-                         input.handle->fp.bgzf->errcode != 0;
-    if (status < -1 || damaged) throw_read_error(input, record_number);
+    if (status < -1) throw_read_error(input, record_number);
     if (status == -1) return false;
     const std::vector<std::string_view> columns = leading_columns(line, 2);
     origin.chromosome.assign(columns[0].data(), columns[0].size());

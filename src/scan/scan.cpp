@@ -254,8 +254,24 @@ void add_tally(const TraitTally& block, TraitTally& total) {
 
 void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
                   const std::vector<TraitContext>& traits, ScanProgress& progress) {
-  tbb::enumerable_thread_specific<std::vector<TraitScratch>> scratch_per_thread(
-      [&] { return std::vector<TraitScratch>(traits.size()); });
+  // Traits with the same analysis samples share one gathered block: the first
+  // of them gathers it.
+  std::vector<std::size_t> gatherer(traits.size());
+  for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
+    gatherer[trait_idx] = trait_idx;
+    for (std::size_t earlier = 0; earlier < trait_idx; ++earlier) {
+      if (traits[earlier].set.genotype_index == traits[trait_idx].set.genotype_index) {
+        gatherer[trait_idx] = gatherer[earlier];
+        break;
+      }
+    }
+  }
+  struct ThreadScratch {
+    std::vector<GatheredBlock> gathered;
+    std::vector<TraitScratch> traits;
+  };
+  tbb::enumerable_thread_specific<ThreadScratch> scratch_per_thread(
+      [&] { return ThreadScratch{std::vector<GatheredBlock>(traits.size()), std::vector<TraitScratch>(traits.size())}; });
   const std::size_t tokens = static_cast<std::size_t>(options.threads) * 3;
   const std::size_t sample_count = reader.sample_ids().size();
   ProgressDisplay display(choose_progress_mode(options.quiet), reader.indexed_record_count());
@@ -272,10 +288,12 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     work->block.sample_count = sample_count;
     work->batch.decode(work->block);
     work->chromosomes = map_chromosomes(work->block, options.chromosome_codes, reader.paths());
-    std::vector<TraitScratch>& scratch = scratch_per_thread.local();
+    ThreadScratch& scratch = scratch_per_thread.local();
     work->outputs.resize(traits.size());
     for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
-      process_trait_block(traits[trait_idx], work->block, work->chromosomes, scratch[trait_idx],
+      GatheredBlock& gathered = scratch.gathered[gatherer[trait_idx]];
+      if (gatherer[trait_idx] == trait_idx) gather_block(traits[trait_idx], work->block, gathered);
+      process_trait_block(traits[trait_idx], work->block, gathered, work->chromosomes, scratch.traits[trait_idx],
                           work->outputs[trait_idx]);
     }
     return work;

@@ -41,9 +41,9 @@ void count_alleles(const std::vector<std::size_t>& sample_index, const DosageBlo
   }
 }
 
-// Gathers the trait's analysis samples into the sample-major block the kernel
-// reads, replacing missing dosages by the mean of the called ones.
-void gather_block(const TraitContext& trait, const DosageBlock& block, TraitScratch& scratch) {
+}  // namespace
+
+void gather_block(const TraitContext& trait, const DosageBlock& block, GatheredBlock& scratch) {
   const std::vector<std::size_t>& sample_index = trait.set.genotype_index;
   const std::size_t width = block.size();
   const std::size_t samples = sample_index.size();
@@ -69,7 +69,9 @@ void gather_block(const TraitContext& trait, const DosageBlock& block, TraitScra
   }
 }
 
-void copy_column(const TraitScratch& scratch, std::size_t width, std::size_t site_idx,
+namespace {
+
+void copy_column(const GatheredBlock& scratch, std::size_t width, std::size_t site_idx,
                  Eigen::VectorXd& column) {
   const std::size_t samples = scratch.genotypes.size() / width;
   column.resize(static_cast<Eigen::Index>(samples));
@@ -217,11 +219,11 @@ void confirm_row(const TraitContext& trait, const Eigen::VectorXd& column, Resul
 
 // The saddlepoint tail replaces the normal one beyond its cut-off; below it
 // the two agree, so the plain p-value stands and null variants stay cheap.
-void calibrate_score(const TraitContext& trait, TraitScratch& scratch, std::size_t width, std::size_t site_idx,
-                     ScoreResult& score) {
+void calibrate_score(const TraitContext& trait, const GatheredBlock& gathered, TraitScratch& scratch,
+                     std::size_t width, std::size_t site_idx, ScoreResult& score) {
   constexpr double kNormalCutoff = 2.0;
   if (!trait.saddlepoint || score.chisq < kNormalCutoff * kNormalCutoff) return;
-  copy_column(scratch, width, site_idx, scratch.column);
+  copy_column(gathered, width, site_idx, scratch.column);
   score.log_p = saddlepoint_score_log_p(*trait.saddlepoint, scratch.column, score.u, score.v, kNormalCutoff).log_p;
 }
 
@@ -245,7 +247,7 @@ bool SiteSummary::varies() const {
   return sum_squares - mean * sum > 1e-12 * static_cast<double>(called);
 }
 
-void process_trait_block(const TraitContext& trait, const DosageBlock& block,
+void process_trait_block(const TraitContext& trait, const DosageBlock& block, const GatheredBlock& gathered,
                          const std::vector<std::string>& chromosomes, TraitScratch& scratch,
                          TraitBlockOutput& output) {
   output.rows.clear();
@@ -254,9 +256,8 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block,
   const std::size_t width = block.size();
   if (width == 0) return;
 
-  gather_block(trait, block, scratch);
   scratch.scores.resize(width);
-  trait.kernel->compute(scratch.genotypes.data(), width, scratch.score_scratch, scratch.scores.data());
+  trait.kernel->compute(gathered.genotypes.data(), width, scratch.score_scratch, scratch.scores.data());
 
   ResultRow row;
   for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
@@ -264,7 +265,7 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block,
         !is_selected(*trait.selection, trait.set.trait, block.sites[site_idx], chromosomes[site_idx])) {
       continue;
     }
-    const SiteSummary& summary = scratch.summaries[site_idx];
+    const SiteSummary& summary = gathered.summaries[site_idx];
     if (!summary.varies()) {
       ++output.tally.monomorphic;
       continue;
@@ -280,10 +281,10 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block,
       ++output.tally.filtered[floor];
       continue;
     }
-    calibrate_score(trait, scratch, width, site_idx, score);
+    calibrate_score(trait, gathered, scratch, width, site_idx, score);
     fill_score_columns(trait, score, row);
     if (should_confirm(trait, score.log_p)) {
-      copy_column(scratch, width, site_idx, scratch.column);
+      copy_column(gathered, width, site_idx, scratch.column);
       confirm_row(trait, scratch.column, row, output.tally);
       if (*row.log10p_spread > trait.spread_flag) {
         ++output.tally.discordant;

@@ -44,9 +44,14 @@ struct SiteSummary {
   bool varies() const;
 };
 
-struct TraitScratch {
-  std::vector<double> genotypes;  // sample-major block for the kernel
+// A block's dosages gathered for one sample set: traits with the same
+// analysis samples share it.
+struct GatheredBlock {
+  std::vector<double> genotypes;  // sample-major, missing values imputed, for the kernel
   std::vector<SiteSummary> summaries;
+};
+
+struct TraitScratch {
   std::vector<ScoreResult> scores;
   ScoreScratch score_scratch;
   Eigen::VectorXd column;
@@ -58,8 +63,13 @@ struct TraitBlockOutput {
   std::vector<std::string> discordant_notes;  // one line per flagged hit
 };
 
+// Gathers the block's dosages of the trait's analysis samples, replacing a
+// missing dosage by the mean of the called ones, and summarises each site.
+void gather_block(const TraitContext& trait, const DosageBlock& block, GatheredBlock& gathered);
+
+// `gathered` comes from gather_block for this trait's sample set;
 // `chromosomes[site_idx]` is the contig name as it is to be written.
-void process_trait_block(const TraitContext& trait, const DosageBlock& block,
+void process_trait_block(const TraitContext& trait, const DosageBlock& block, const GatheredBlock& gathered,
                          const std::vector<std::string>& chromosomes, TraitScratch& scratch,
                          TraitBlockOutput& output);
 
