@@ -11,8 +11,6 @@
 namespace tamis {
 namespace {
 
-// Gathers the trait's analysis samples into the sample-major block the kernel
-// reads, replacing missing dosages by the mean of the called ones.
 // Counts the site's alleles over each sample's ploidy, and its diploid hard
 // calls for the Hardy-Weinberg test. A haploid GT dosage scaled to 0/2 still
 // counts as one allele.
@@ -24,7 +22,6 @@ void count_alleles(const std::vector<std::size_t>& sample_index, const DosageBlo
     summary.allele_slots = 2.0 * static_cast<double>(summary.called);
     return;
   }
-  summary.has_hard_calls = true;
   const double* dosages = block.site_dosages(site_idx);
   const std::uint8_t* ploidy = block.site_ploidy(site_idx);
   const std::int8_t* calls = block.site_diploid_calls(site_idx);
@@ -80,10 +77,14 @@ void copy_column(const GatheredBlock& scratch, std::size_t width, std::size_t si
   }
 }
 
+std::string make_variant_id(const VariantSite& site, const std::string& chromosome) {
+  return chromosome + "_" + std::to_string(site.position) + "_" + site.ref + "_" + site.alt;
+}
+
 bool is_selected(const VariantSelection& selection, const std::string& trait, const VariantSite& site,
                  const std::string& chromosome) {
   if (selection.record_ids.count(site.id)) return true;
-  const std::string variant_id = chromosome + "_" + std::to_string(site.position) + "_" + site.ref + "_" + site.alt;
+  const std::string variant_id = make_variant_id(site, chromosome);
   if (selection.variant_ids.count(variant_id)) return true;
   auto for_trait = selection.trait_variant_ids.find(trait);
   return for_trait != selection.trait_variant_ids.end() && for_trait->second.count(variant_id) > 0;
@@ -108,7 +109,7 @@ void fill_site_columns(const TraitContext& trait, const VariantSite& site,
   row.effect_allele = site.alt;
   row.other_allele = site.ref;
   row.effect_allele_frequency = allele_frequency;
-  row.variant_id = chromosome + "_" + std::to_string(site.position) + "_" + site.ref + "_" + site.alt;
+  row.variant_id = make_variant_id(site, chromosome);
   row.rsid = looks_like_rsid(site.id) ? site.id : std::string();
   row.n = trait.set.genotype_index.size();
   row.info.reset();

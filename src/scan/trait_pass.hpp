@@ -39,7 +39,6 @@ struct SiteSummary {
   double allele_count = 0.0;
   double allele_slots = 0.0;
   std::uint64_t hom_ref = 0, het = 0, hom_alt = 0;  // diploid hard calls
-  bool has_hard_calls = false;
   double mean() const { return called ? sum / static_cast<double>(called) : 0.0; }
   bool varies() const;
 };
