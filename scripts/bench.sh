@@ -5,9 +5,10 @@
 # Builds tamis and the benchmarks (Release, in build-bench/), simulates a
 # cohort (5000 samples x 20000 variants, GT:DS) and its BCF copy, then runs
 # the decode floor (scripts/bench/decode_floor.c: bcf_read, bcf_unpack and
-# bcf_get_format_float of DS on one thread) and the scan interleaved, ROUNDS
-# times each, on VCF.gz and on BCF. Prints the median wall times, the median
-# ratio scan / floor, and the scan's peak memory (GNU time -v) at 20000 and
+# bcf_get_format_float of DS on one thread), the reader alone
+# (scripts/bench/read_throughput.cpp) and the scan interleaved, ROUNDS times
+# each, on VCF.gz and on BCF. Prints the median wall times, the median
+# ratios to the floor, and the scan's peak memory (GNU time -v) at 20000 and
 # at 5000 variants. Ends with the Google Benchmark of the blocked score
 # kernel against width-1 calls.
 #
@@ -28,16 +29,17 @@ jobs=${JOBS:-2}
 [ -x /usr/bin/time ] || { echo "GNU time is needed: apt-get install time" >&2; exit 1; }
 command -v bcftools > /dev/null || { echo "bcftools is needed: apt-get install bcftools" >&2; exit 1; }
 
-cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=Release -DTAMIS_BUILD_BENCH=ON -DTAMIS_BUILD_TESTS=OFF > /dev/null
+cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=Release -DTAMIS_BUILD_BENCH=ON > /dev/null
 cmake --build "$build" -j "$jobs" --target tamis decode_floor score_kernel_bench read_throughput > /dev/null
 tamis="$build/tamis"
 floor="$build/scripts/bench/decode_floor"
+reader="$build/scripts/bench/read_throughput"
 kernel_bench="$build/scripts/bench/score_kernel_bench"
 
 mkdir -p "$data"
 make_cohort() {  # PREFIX VARIANTS
   if [ ! -f "$1.vcf.gz" ]; then
-    "$tamis" simulate --out "$1" --samples "$samples" --variants "$2" > /dev/null
+    "$tamis" simulate --out "$1" --samples "$samples" --variants "$2" > /dev/null 2>&1
   fi
   if [ ! -f "$1.bcf.csi" ]; then
     bcftools view -Ob -o "$1.bcf" "$1.vcf.gz" && bcftools index -f "$1.bcf"
@@ -63,10 +65,11 @@ measure() {
   rm -f "$report"
 }
 
-scan() {  # GENOTYPES OUT
-  "$tamis" scan --genotypes "$1" --traits "$cohort.traits.tsv" --trait fev1_litres \
-    --trait winter_wheeze --covariates age,sex,village,pc1,pc2,pc3,pc4 --out "$2" \
-    --threads "$threads" --quiet
+# The scan's command line in the array `scan_args` (GNU time runs programs,
+# not shell functions).
+set_scan_args() {  # TRAITS GENOTYPES OUT
+  scan_args=("$tamis" scan --genotypes "$2" --traits "$1" --trait fev1_litres --trait winter_wheeze
+    --covariates age,sex,village,pc1,pc2,pc3,pc4 --out "$3" --threads "$threads" --quiet)
 }
 
 median() { sort -g | awk '{ value[NR] = $1 } END { print value[int((NR + 1) / 2)] }'; }
@@ -74,10 +77,14 @@ median() { sort -g | awk '{ value[NR] = $1 } END { print value[int((NR + 1) / 2)
 echo "cohort: $samples samples x $variants variants (GT:DS), scan with $threads threads, $rounds rounds"
 for format in vcf.gz bcf; do
   input="$cohort.$format"
-  floor_times=() scan_times=() ratios=() peaks=()
+  floor_times=() scan_times=() ratios=() peaks=() reader_ratios=()
   for round in $(seq "$rounds"); do
     read -r floor_wall _ < <(measure "$floor" "$input")
-    read -r scan_wall scan_peak < <(measure scan "$input" "$data/scan_$format")
+    # The reader alone (read serially, decode on THREADS - 1 threads, no statistics).
+    read -r reader_wall _ < <(measure "$reader" "$input" "$((threads > 1 ? threads - 1 : 0))")
+    reader_ratios+=("$(awk -v r="$reader_wall" -v f="$floor_wall" 'BEGIN { printf "%.3f", r / f }')")
+    set_scan_args "$cohort.traits.tsv" "$input" "$data/scan_$format"
+    read -r scan_wall scan_peak < <(measure "${scan_args[@]}")
     floor_times+=("$floor_wall") scan_times+=("$scan_wall") peaks+=("$scan_peak")
     ratios+=("$(awk -v s="$scan_wall" -v f="$floor_wall" 'BEGIN { printf "%.3f", s / f }')")
     rm -f "$data/scan_$format".*
@@ -86,16 +93,15 @@ for format in vcf.gz bcf; do
     "$(printf '%s\n' "${floor_times[@]}" | median)" "$(printf '%s\n' "${scan_times[@]}" | median)" \
     "$(printf '%s\n' "${ratios[@]}" | median)" "${ratios[*]}" \
     "$(( $(printf '%s\n' "${peaks[@]}" | median) / 1024 ))"
+  printf '%-6s reader alone / floor %.2f (rounds: %s)\n' "$format" \
+    "$(printf '%s\n' "${reader_ratios[@]}" | median)" "${reader_ratios[*]}"
 done
 
 # Memory against variant count: the same samples, a quarter of the variants.
-small_scan() {
-  "$tamis" scan --genotypes "$1" --traits "$small_cohort.traits.tsv" --trait fev1_litres \
-    --trait winter_wheeze --covariates age,sex,village,pc1,pc2,pc3,pc4 --out "$2" \
-    --threads "$threads" --quiet
-}
-read -r _ small_peak < <(measure small_scan "$small_cohort.vcf.gz" "$data/scan_small")
-read -r _ large_peak < <(measure scan "$cohort.vcf.gz" "$data/scan_large")
+set_scan_args "$small_cohort.traits.tsv" "$small_cohort.vcf.gz" "$data/scan_small"
+read -r _ small_peak < <(measure "${scan_args[@]}")
+set_scan_args "$cohort.traits.tsv" "$cohort.vcf.gz" "$data/scan_large"
+read -r _ large_peak < <(measure "${scan_args[@]}")
 rm -f "$data"/scan_small.* "$data"/scan_large.*
 awk -v s="$small_peak" -v l="$large_peak" -v sv="$small_variants" -v lv="$variants" 'BEGIN {
   printf "peak RSS (VCF.gz): %d MB at %d variants, %d MB at %d variants (ratio %.2f)\n",

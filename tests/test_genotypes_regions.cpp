@@ -190,6 +190,8 @@ void expect_error(const std::function<void()>& action, ExitCode code,
   }
 }
 
+std::vector<std::vector<RecordKey>> read_shards(const std::vector<std::string>& paths, int shard_count);
+
 // ---- region text -------------------------------------------------------------
 
 TEST(GenomicRegions, ParsesEveryForm) {
@@ -343,6 +345,22 @@ TEST_F(RegionReading, RegionsLeaveDosagesAndCallsUnchanged) {
   }
   // Records are numbered within what the regions read; here that is everything.
   EXPECT_EQ(regional_block.sites.back().record_number, 1200u);
+}
+
+TEST_F(RegionReading, VcfGzWithACsiIndexIsReadThroughIt) {
+  // bcftools 1.16 index writes a .csi for VCF.gz as well; tabix's loader takes it.
+  const std::string csi_dir = make_temp_dir("genotypes_regions_csi");
+  const std::string path = csi_dir + "/csi_only.vcf.gz";
+  ASSERT_EQ(run_command("cp '" + copies_.vcf_gz + "' '" + path + "' && bcftools index '" + path + "'"), 0);
+  ASSERT_TRUE(testing::file_exists(path + ".csi"));
+  ASSERT_FALSE(testing::file_exists(path + ".tbi"));
+  const std::vector<std::string> texts = {"2:100000-400000", "1:5000-"};
+  const std::vector<RecordKey> found = read_regions({path}, parse_all(texts));
+  EXPECT_EQ(found, bcftools_keys(copies_.vcf_gz, texts));
+  EXPECT_FALSE(found.empty());
+  std::vector<RecordKey> joined;
+  for (const std::vector<RecordKey>& shard : read_shards({path}, 4)) joined.insert(joined.end(), shard.begin(), shard.end());
+  EXPECT_EQ(joined, read_everything({path}));
 }
 
 TEST_F(RegionReading, RecordCountIsUnknownWithRegions) {

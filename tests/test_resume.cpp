@@ -64,7 +64,11 @@ TEST_F(Resume, KilledScansResumeToIdenticalFiles) {
   for (double share : {0.1, 0.35, 0.6, 0.85}) {
     const std::string prefix = dir_ + "/killed" + std::to_string(kill_idx++);
     run_and_kill(prefix, kill_delay(share), SIGKILL);
-    EXPECT_FALSE(file_exists(prefix + ".fev1_litres.tsv.gz")) << "a killed run leaves no final file";
+    if (file_exists(prefix + ".fev1_litres.tsv.gz")) {
+      // On a loaded machine the run may finish before the kill lands.
+      expect_same_as_whole(dir_, prefix);
+      continue;
+    }
     ASSERT_EQ(run_command(scan_command(prefix, "--resume")), 0);
     expect_same_as_whole(dir_, prefix);
     EXPECT_FALSE(file_exists(prefix + ".resume")) << "the checkpoint is removed once the run completes";

@@ -75,9 +75,11 @@ class RecordBatch {
 
   // Decodes every record into one site per ALT allele (appending to `out`,
   // after setting out.sample_count). Thread-safe across distinct batches.
-  // Throws tamis::Error (genotype_input) naming the file, the record number
-  // and chrom:pos for a malformed value: a bad number in DS/GP, the wrong
-  // number of values, an unparsable GT.
+  // VCF records are still text here: they are parsed now, so a record that
+  // htslib cannot parse is reported by decode, not by read_batch. Throws
+  // tamis::Error (genotype_input) naming the file, the record number and
+  // chrom:pos for such a record or a malformed value: a bad number in DS/GP,
+  // the wrong number of values, an unparsable GT.
   void decode(DosageBlock& out) const;
 
   struct Impl;
@@ -158,12 +160,15 @@ class GenotypeReader {
   std::optional<std::uint64_t> indexed_record_count() const;
 
   // Serial: reads up to `max_records` records into `batch` (replacing its
-  // contents), moving on to the next file at the end of one. With regions,
+  // contents), moving on to the next file at the end of one. A batch is
+  // cheapest when reused: it keeps its buffers from one call to the next.
+  // With regions,
   // a site's record_number counts the records read from its file through
   // the regions, not its place in the whole file. Returns the
   // number read; 0 once every file is exhausted. Throws tamis::Error
   // (genotype_input) for a truncated or corrupt file, naming the last
-  // position reached.
+  // position reached (with decompression threads, htslib notices damage a
+  // few blocks ahead, so the record named can come a little before it).
   std::size_t read_batch(RecordBatch& batch, std::size_t max_records);
 
  private:

@@ -445,6 +445,9 @@ void install_signal_handlers() {
   action.sa_handler = remove_temporaries_and_exit;
   sigemptyset(&action.sa_mask);
   for (int signal_number : {SIGINT, SIGTERM, SIGHUP}) sigaction(signal_number, &action, nullptr);
+  // A file-size limit then fails the write (EFBIG), which is reported as an
+  // output error, instead of killing the process.
+  signal(SIGXFSZ, SIG_IGN);
 }
 
 }  // namespace

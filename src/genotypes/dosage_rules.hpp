@@ -60,6 +60,12 @@ inline void store_hard_call(const SiteColumns& columns, std::size_t sample_idx, 
   }
 }
 
+// Genotypes of a diploid call over `allele_count` alleles (VCF 4.3 section
+// 1.6.2, Number=G): n(n+1)/2; also the index of the first genotype (0,n).
+inline std::int64_t diploid_genotype_count(int allele_count) {
+  return static_cast<std::int64_t>(allele_count) * (allele_count + 1) / 2;
+}
+
 // What one sample's DS or GP values amount to. `value` and `allele` name the
 // offending number when the values are rejected.
 struct SampleOutcome {
@@ -98,7 +104,8 @@ inline SampleOutcome convert_dosages(const SiteColumns& columns, std::size_t sam
 // has one probability per allele.
 inline SampleOutcome convert_probabilities(const SiteColumns& columns, std::size_t sample_idx,
                                            const double* values, int given, int allele_count) {
-  const int diploid_count = allele_count * (allele_count + 1) / 2;
+  // In 64 bits: with tens of thousands of alleles the count passes INT_MAX.
+  const std::int64_t diploid_count = diploid_genotype_count(allele_count);
   const int haploid_count = allele_count;
   auto set_missing = [&] {
     for (int allele = 1; allele < allele_count; ++allele) columns.dosage(allele, sample_idx) = missing_dosage;
@@ -128,7 +135,7 @@ inline SampleOutcome convert_probabilities(const SiteColumns& columns, std::size
   } else {
     for (int second = 0; second < allele_count; ++second) {
       for (int first = 0; first <= second; ++first) {
-        const double probability = values[second * (second + 1) / 2 + first];
+        const double probability = values[diploid_genotype_count(second) + first];
         if (first > 0) columns.dosage(first, sample_idx) += probability;
         if (second > 0) columns.dosage(second, sample_idx) += probability;
       }

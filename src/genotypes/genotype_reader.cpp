@@ -1,5 +1,9 @@
 // Streaming VCF / VCF.gz / BCF reading. Records are read serially here and
-// decoded later (record_decoding.cpp), possibly on several threads at once.
+// decoded later (record_decoding.cpp, fast_vcf.cpp), possibly on several
+// threads at once. BCF records are read with bcf_read; VCF records stay raw
+// lines of text (hts_getline, BGZF decompressed by htslib's thread pool), so
+// that their parsing happens in the parallel decoding stage. With regions,
+// each file is read through its index, one region after the other.
 #include "tamis/genotype_reader.hpp"
 
 #include <htslib/bgzf.h>
@@ -194,10 +198,6 @@ struct InputFile {
   const GenomicRegion* current_region = nullptr;
   genotype_detail::IteratorPtr iterator;
   kstring_t line = {0, 0, nullptr};
-  // Once BGZF has seen a damaged block, each line is only taken when the
-  // line after it reads too; that line waits here.
-  kstring_t next_line = {0, 0, nullptr};
-  bool has_next_line = false;
 
   InputFile() = default;
   InputFile(const InputFile&) = delete;
@@ -206,7 +206,6 @@ struct InputFile {
     iterator.reset();
     index.reset();
     free(line.s);
-    free(next_line.s);
     if (header) bcf_hdr_destroy(header);
     if (handle) hts_close(handle);
   }
@@ -341,27 +340,15 @@ bool has_damage(const InputFile& input) {
          input.handle->fp.bgzf->errcode != 0;
 }
 
-// Like hts_getline: 0 for a line, -1 at the end, below -1 for an error.
-// A damaged block can end a line early without failing the read itself,
-// and with decompression threads BGZF notes the damage while earlier lines
-// are still intact. So after damage a line counts only if another line
-// follows it; the line cut short is reported as damage, at the same record
-// whatever the thread count.
+// Like hts_getline: 0 for a line, -1 at the end, below -1 for an error. A
+// damaged block can end a line early without failing the read itself; BGZF
+// remembers the failure, so a line read once it has is not trusted. (With
+// decompression threads BGZF learns of the damage a few blocks ahead, and
+// stops there, so the record named may come a little before the damage.)
 int GenotypeReader::Impl::read_line(InputFile& input, kstring_t& line) {
-  if (reads_regions) {
-    const int status = read_line_in_regions(input, line);
-    return status == 0 && has_damage(input) ? -2 : status;
-  }
-  if (input.has_next_line) {
-    std::swap(line, input.next_line);
-    input.has_next_line = false;
-  } else if (hts_getline(input.handle, KS_SEP_LINE, &line) < 0) {
-    return has_damage(input) ? -2 : -1;
-  }
-  if (!has_damage(input)) return 0;
-  if (hts_getline(input.handle, KS_SEP_LINE, &input.next_line) < 0) return -2;
-  input.has_next_line = true;
-  return 0;
+  const int status = reads_regions ? read_line_in_regions(input, line)
+                                   : std::min(hts_getline(input.handle, KS_SEP_LINE, &line), 0);
+  return has_damage(input) ? -2 : status;
 }
 
 std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& path,

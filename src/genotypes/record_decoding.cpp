@@ -293,7 +293,7 @@ void RecordDecoder::report_rejected(std::size_t sample_idx, const SampleOutcome&
       if (probabilities) {
         fail_for_sample(sample_idx,
                         "GP has " + std::to_string(given) + " value(s), expected " +
-                            std::to_string(allele_count_ * (allele_count_ + 1) / 2) + " (diploid) or " +
+                            std::to_string(diploid_genotype_count(allele_count_)) + " (diploid) or " +
                             std::to_string(allele_count_) + " (haploid)",
                         "write one probability per possible genotype, in VCF order");
       }

@@ -178,8 +178,14 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
     trait.set = build_analysis_set(table, samples, request);
     log_samples(trait.set);
     apply_rank_normalization(options, trait.set);
-    trait.model = fit_null_model(request.trait, trait.set.kind, trait.set.y, trait.set.design,
-                                 trait.set.design_names);
+    try {
+      trait.model = fit_null_model(request.trait, trait.set.kind, trait.set.y, trait.set.design,
+                                   trait.set.design_names);
+    } catch (const Error& error) {
+      // The model knows the trait, not the file: name the table it came from.
+      throw Error(error.code(), options.traits_path + ", column '" + request.trait + "'",
+                  error.where().empty() ? error.problem() : error.where() + ": " + error.problem(), error.fix());
+    }
     log_null_model(request.trait, trait.model);
     trait.confirm_below = options.confirm_below;
     trait.spread_flag = options.spread_flag;
