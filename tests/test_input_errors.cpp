@@ -335,8 +335,6 @@ TEST_F(InputErrors, CovariatesWithoutResidualDegreesOfFreedomAreAModelError) {
 }
 
 TEST_F(InputErrors, ResidualDegreesOfFreedomErrorNamesTheTable) {
-  GTEST_SKIP() << "pending fix: the null-model error (src/model, thrown as \"trait 'X': ...\") reaches the user "
-                  "without the table's name; src/scan should add the --traits path when it reports it";
   const std::string path = write_household_table(dir_, table_rows_);
   const Outcome outcome =
       run_tamis(scan_arguments(vcf_gz_, path, "fev1_litres", dir_ + "/s", 2, "", "age,household"));
@@ -423,9 +421,6 @@ TEST_F(InputErrors, CorruptBgzfBlockGivesThePositionReached) {
 // A CRC failure or a cut block is damage to the file, and the fix is a fresh
 // copy, not an edit of the record that happened to be cut.
 TEST_F(InputErrors, DamagedBgzfIsReportedAsDamageNotAsABadRecord) {
-  GTEST_SKIP() << "pending fix: src/genotypes (the new text-record path) parses the line cut short by a damaged "
-                  "block before the BGZF failure is noticed, so the message reads 'htslib could not parse this "
-                  "record' instead of 'reading failed: the data is damaged or cut short'";
   const std::string data = read_text_file(vcf_gz_);
   const std::string cut = dir_ + "/cut_with_marker.vcf.gz";
   const std::string flipped = dir_ + "/flipped.vcf.gz";
@@ -529,9 +524,6 @@ TEST_F(InputErrors, GpWithTheWrongCountNamesChromPos) {
 // (VCF 4.3, section 1.6.2, Number=G), which fits an int although the product
 // before the halving does not.
 TEST_F(InputErrors, GpCountForVeryManyAllelesIsComputedWithoutOverflow) {
-  GTEST_SKIP() << "pending fix: src/genotypes/record_decoding.cpp computes allele_count_ * (allele_count_ + 1) "
-                  "in int, a signed overflow (UBSan, found by fuzz_vcf_records) that prints 'expected "
-                  "-897408647 (diploid)'; compute the genotype count in 64 bits";
   std::string text = gp_vcf("0.2,0.6,0.2");
   std::string alts = "C";
   for (int allele_idx = 1; allele_idx < 50000; ++allele_idx) alts += ",C";
@@ -709,8 +701,6 @@ TEST_F(InterruptedScan, SigkillLeavesNoFinalFile) {
 // `ulimit -f` (bash 5.2.15, in 1024-byte blocks) makes writes beyond the
 // limit fail as on a full disk. The scan writes several hundred KB per trait.
 TEST_F(InterruptedScan, FullDiskIsAnOutputError) {
-  GTEST_SKIP() << "pending fix: tamis dies from SIGXFSZ (exit 153) instead of reporting the failed write with "
-                  "exit code 6; src/cli should ignore SIGXFSZ so that write() fails with EFBIG";
   Outcome outcome;
   outcome.message = capture_command("bash -c 'ulimit -f 64; exec " + tamis_binary() + " " +
                                         scan_arguments(dir_ + "/s", false) + "' 2>&1 >/dev/null",
