@@ -3,6 +3,8 @@
 # ctest; then runs the suite again under AddressSanitizer and
 # UndefinedBehaviorSanitizer, and, where clang is installed, each libFuzzer
 # target of the input parsers for a bounded time (TAMIS_FUZZ_SECONDS, default 45).
+# A failing stage does not stop the later ones; the script fails at the end
+# and names the stages that failed.
 set -euo pipefail
 root=$(cd "$(dirname "$0")/.." && pwd)
 cd "$root"
@@ -11,17 +13,19 @@ build=${TAMIS_BUILD_DIR:-build}
 asan_build=${TAMIS_ASAN_BUILD_DIR:-build-asan}
 fuzz_build=${TAMIS_FUZZ_BUILD_DIR:-build-fuzz}
 jobs=$(nproc)
+failed=()
 
 cmake -S . -B "$build" -DCMAKE_BUILD_TYPE=Release
 cmake --build "$build" -j "$jobs"
-ctest --test-dir "$build" --output-on-failure -j "$jobs"
+ctest --test-dir "$build" --output-on-failure -j "$jobs" || failed+=("tests")
 
 # The sanitized suite leaves out the R reference check, which is slow and
 # checks numbers that the plain build has already checked.
 cmake -S . -B "$asan_build" -DTAMIS_SANITIZE=ON -DCMAKE_BUILD_TYPE=RelWithDebInfo
 cmake --build "$asan_build" -j "$jobs"
 ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
-  ctest --test-dir "$asan_build" --output-on-failure -j "$jobs" -E '^reference_r_stats$'
+  ctest --test-dir "$asan_build" --output-on-failure -j "$jobs" -E '^reference_r_stats$' ||
+  failed+=("sanitizer tests")
 
 clang_cxx=$(command -v clang++-14 || command -v clang++ || true)
 clang_c=$(command -v clang-14 || command -v clang || true)
@@ -30,7 +34,13 @@ if [ -n "$clang_cxx" ] && [ -n "$clang_c" ]; then
     -DCMAKE_BUILD_TYPE=RelWithDebInfo -DTAMIS_FUZZ=ON -DTAMIS_BUILD_TESTS=OFF \
     -DTAMIS_FUZZ_SECONDS="${TAMIS_FUZZ_SECONDS:-45}"
   cmake --build "$fuzz_build" -j "$jobs" --target fuzz_targets
-  ctest --test-dir "$fuzz_build" --output-on-failure -j "$jobs" -L fuzz
+  ctest --test-dir "$fuzz_build" --output-on-failure -j "$jobs" -L fuzz || failed+=("fuzz runs")
 else
   echo "test.sh: clang not found, so the fuzz runs are skipped (scripts/install_dependencies.sh installs it)"
 fi
+
+if [ ${#failed[@]} -gt 0 ]; then
+  echo "test.sh: failed: ${failed[*]}" >&2
+  exit 1
+fi
+echo "test.sh: all stages passed"
