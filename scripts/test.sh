@@ -27,8 +27,8 @@ ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
   ctest --test-dir "$asan_build" --output-on-failure -j "$jobs" -E '^reference_r_stats$' ||
   failed+=("sanitizer tests")
 
-clang_cxx=$(command -v clang++-14 || command -v clang++ || true)
-clang_c=$(command -v clang-14 || command -v clang || true)
+clang_cxx=$(command -v clang++ || command -v clang++-14 || true)
+clang_c=$(command -v clang || command -v clang-14 || true)
 if [ -n "$clang_cxx" ] && [ -n "$clang_c" ]; then
   cmake -S . -B "$fuzz_build" -DCMAKE_C_COMPILER="$clang_c" -DCMAKE_CXX_COMPILER="$clang_cxx" \
     -DCMAKE_BUILD_TYPE=RelWithDebInfo -DTAMIS_FUZZ=ON -DTAMIS_BUILD_TESTS=OFF \

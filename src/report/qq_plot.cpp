@@ -125,8 +125,8 @@ std::vector<QqBandPoint> compute_qq_band(std::size_t n, int wanted) {
   if (n == 0) return band;
   const double top = expected_at_rank(1, n);
   std::size_t previous_rank = 0;
-  for (int step = wanted; step >= 0; --step) {
-    const double target = top * step / wanted;
+  for (int level = wanted; level >= 0; --level) {
+    const double target = top * level / wanted;
     const double exact_rank = static_cast<double>(n + 1) * std::pow(10.0, -target);
     const std::size_t rank = std::clamp<std::size_t>(static_cast<std::size_t>(std::llround(exact_rank)), 1, n);
     if (rank == previous_rank) continue;
