@@ -19,7 +19,7 @@ enum class ExitCode : int {
   model = 5,         // a trait or covariate set that cannot be analysed
   output = 6,        // results could not be written (permissions, full disk)
   results_input = 7,  // a results file read back (report): damaged, edited or not from tamis
-  interrupted = 130  // stopped by SIGINT or SIGTERM; no final file was written
+  interrupted = 130  // stopped by SIGINT (other signals: 128 + the signal, e.g. 143 for SIGTERM)
 };
 
 // The exception every stage throws for a problem the user can fix.
