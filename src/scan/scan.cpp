@@ -497,6 +497,10 @@ ScanSummary run_scan(const ScanOptions& options) {
   open_result_files(options, traits, saved, progress);
   run_pipeline(options, reader, traits, progress);
 
+  // The checkpoint goes before any file takes its final name: a run stopped
+  // while committing then starts over on --resume instead of finding some
+  // traits' results already renamed.
+  std::remove(checkpoint_path(options.out_prefix).c_str());
   ScanSummary summary;
   summary.records = progress.state.records;
   summary.alleles = progress.state.alleles;
@@ -506,7 +510,6 @@ ScanSummary run_scan(const ScanOptions& options) {
     write_sidecar(options, traits[trait_idx], progress.files[trait_idx]->final_path(), provenance);
     summary.result_files.push_back(progress.files[trait_idx]->final_path());
   }
-  std::remove(checkpoint_path(options.out_prefix).c_str());
   log_tallies(summary, traits);
   const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   current_log().line("wall time: " + format_number(std::round(seconds * 100) / 100) + " s");
