@@ -56,6 +56,21 @@ TEST_F(EndToEnd, OutputsAreByteIdenticalAtOneAndFourThreads) {
   }
 }
 
+// The score kernel has one register blocking per instruction set, chosen at
+// run time; shards of one scan may run on different cluster nodes, so every
+// blocking must give the same bytes as the widest this machine runs.
+TEST_F(EndToEnd, OutputsAreByteIdenticalWhateverTheKernelInstructionSet) {
+  ASSERT_EQ(run_command(scan_command(dir_ + "/widest", 2)), 0);
+  for (const std::string isa : {"baseline", "avx2"}) {
+    ASSERT_EQ(run_command("TAMIS_KERNEL_ISA=" + isa + " " + scan_command(dir_ + "/" + isa, 2)), 0);
+    for (const std::string trait : {"fev1_litres", "winter_wheeze"}) {
+      EXPECT_TRUE(read_gzip_file(dir_ + "/" + isa + "." + trait + ".tsv.gz") ==
+                  read_gzip_file(dir_ + "/widest." + trait + ".tsv.gz"))
+          << trait << ": the " << isa << " kernel differs";
+    }
+  }
+}
+
 // GWAS-SSF v1.1: the eight mandatory columns come first, in this order, and
 // each has the type the standard gives it (GWAS Catalog summary-statistics
 // format specification).

@@ -19,6 +19,7 @@
 #include <utility>
 #include <vector>
 
+#include "model/vector_math.hpp"
 #include "tamis/confirm.hpp"
 #include "tamis/distributions.hpp"
 #include "tamis/firth.hpp"
@@ -744,6 +745,36 @@ TEST(Firth, GenotypeInCovariateSpanIsNotEstimable) {
 }
 
 // ---------------------------------------------------------------------------
+// The saddlepoint's own expm1 and log1p
+// ---------------------------------------------------------------------------
+
+// Against glibc's expm1 and log1p (Debian 12, glibc 2.36), which are accurate
+// to within an ulp or so (common practice): the saddlepoint's versions must
+// stay within three ulps over the whole range it uses, near 0 included.
+TEST(VectorMath, Expm1AndLog1pMatchTheLibrary) {
+  double worst_expm1 = 0.0, worst_log1p = 0.0;
+  for (double magnitude = 1e-300; magnitude < 800.0; magnitude *= 1.0137) {
+    for (double x : {-magnitude, -magnitude * 0.7071, -magnitude * 0.3333}) {
+      const double want = std::expm1(x);
+      worst_expm1 = std::max(worst_expm1, std::fabs(detail::expm1_nonpositive(x) - want) / std::fabs(want));
+    }
+  }
+  for (double magnitude = 1e-300; magnitude < 1.0; magnitude *= 1.0137) {
+    // y = -1 itself (ln 0) never arises: the saddlepoint's y is a probability times expm1.
+    for (double y : {-magnitude, -magnitude * 0.7071, -(1.0 - std::max(magnitude, 1e-15))}) {
+      const double want = std::log1p(y);
+      worst_log1p = std::max(worst_log1p, std::fabs(detail::log1p_nonpositive(y) - want) / std::fabs(want));
+    }
+  }
+  // Three ulps (2^-52 is one at 1).
+  EXPECT_LE(worst_expm1, 3 * 0x1p-52);
+  EXPECT_LE(worst_log1p, 3 * 0x1p-52);
+  EXPECT_EQ(detail::expm1_nonpositive(0.0), 0.0);
+  EXPECT_EQ(detail::expm1_nonpositive(-1e4), -1.0);
+  EXPECT_EQ(detail::log1p_nonpositive(0.0), 0.0);
+}
+
+// ---------------------------------------------------------------------------
 // Hardy-Weinberg exact test
 // ---------------------------------------------------------------------------
 
@@ -784,6 +815,19 @@ TEST(HardyWeinberg, EveryGenotypeSplitOfTenMatchesEnumeration) {
   EXPECT_NEAR(hardy_weinberg_exact_p(1, 0, 1), 1.0 / 3.0, 1e-15);
   EXPECT_EQ(hardy_weinberg_exact_p(0, 0, 0), 1.0);   // no calls
   EXPECT_EQ(hardy_weinberg_exact_p(25, 0, 0), 1.0);  // monomorphic
+}
+
+TEST(HardyWeinberg, LargeSamplesMatchEnumeration) {
+  // Cohort-sized counts, where the test sums only the states near the mode,
+  // and counts so far in the tail that it switches to log space.
+  const int splits[][3] = {{3600, 1300, 100}, {4990, 10, 0},  {2500, 0, 2500}, {1250, 2500, 1250},
+                           {4000, 990, 10},   {4000, 600, 400}, {1, 4998, 1},  {2000, 2500, 500},
+                           {4999, 1, 0},      {3000, 1700, 300}, {1700, 1600, 1700}};
+  for (const auto& split : splits) {
+    const double want = enumerate_hardy_weinberg_log_p(split[0], split[1], split[2]);
+    const double got = hardy_weinberg_exact_log_p(split[0], split[1], split[2]);
+    EXPECT_NEAR(got, want, 1e-8 * std::max(1.0, std::fabs(want))) << split[0] << "/" << split[1] << "/" << split[2];
+  }
 }
 
 TEST(HardyWeinberg, MatchesREnumeration) {

@@ -86,7 +86,8 @@ struct ScanOptions {
   std::string drop_samples_path;
   std::vector<std::string> rank_normalize;  // quantitative traits given the rank-based inverse normal transform
   int haploid_dosage = 1;                   // dosage of a haploid ALT call from GT: 1 or 2
-  std::size_t records_per_block = 128;
+  // 0: chosen from the sample count, so that a block stays in cache.
+  std::size_t records_per_block = 0;
   // Outputs are flushed to a block boundary and the checkpoint is saved every
   // this many blocks, in every run, so a resumed file is byte-identical.
   std::size_t blocks_per_checkpoint = 64;

@@ -12,9 +12,11 @@
 #include <htslib/hts_endian.h>
 #include <htslib/vcf.h>
 
+#include <algorithm>
 #include <cassert>
 #include <cmath>
 #include <cstdio>
+#include <cstring>
 #include <string_view>
 #include <vector>
 
@@ -28,6 +30,28 @@ namespace tamis {
 namespace genotype_detail {
 
 namespace {
+
+// BCF stores floats little-endian, as the host does: one unaligned load.
+static_assert(__BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__, "BCF float decoding assumes a little-endian host");
+inline float read_host_float(const std::uint8_t* at) {
+  float value;
+  std::memcpy(&value, at, sizeof value);
+  return value;
+}
+
+// Samples per pass of the branch-free decoders: small enough that a missing
+// value sends few samples to the slow path, large enough to vectorise.
+constexpr std::size_t kSampleChunk = 16;
+
+// A full diploid call of alleles 0 and 1: both encoded alleles are 2..5,
+// (index + 1) << 1 | phased.
+inline bool is_plain_diploid_pair(const std::uint8_t* pair) {
+  return static_cast<unsigned>(pair[0]) - 2u < 4u && static_cast<unsigned>(pair[1]) - 2u < 4u;
+}
+
+inline bool is_plain_dosage(float value) {
+  return value >= 0.0f && static_cast<double>(value) <= diploid_dosage_limit;
+}
 
 enum class Slot { value, missing, vector_end };
 
@@ -91,6 +115,10 @@ class RecordDecoder {
   const bcf_fmt_t* find_format(int tag_id) const;
   void append_sites(DosageBlock& out, bool has_hard_calls) const;
   void decode_genotypes(const bcf_fmt_t& format, bool gives_dosages);
+  void decode_one_genotype(const bcf_fmt_t& format, std::size_t sample_idx, bool gives_dosages);
+  bool decode_plain_diploid_pairs(const std::uint8_t* pairs, std::size_t first, std::size_t last,
+                                  bool gives_dosages);
+  bool decode_plain_dosages(const std::uint8_t* values, std::size_t first, std::size_t last);
   void decode_values(const bcf_fmt_t& format);
   void check_float_storage(const bcf_fmt_t& format) const;
   int gather_values(const bcf_fmt_t& format, std::size_t sample_idx);
@@ -178,6 +206,25 @@ void RecordDecoder::append_sites(DosageBlock& out, bool has_hard_calls) const {
   }
 }
 
+// The full diploid calls of alleles 0 and 1 ("0/1", "1|1"...) of samples
+// [first, last), as store_hard_call would give them; the others must be
+// decoded again by the caller. Returns whether every one of those samples had such a call.
+bool RecordDecoder::decode_plain_diploid_pairs(const std::uint8_t* pairs, std::size_t first, std::size_t last,
+                                               bool gives_dosages) {
+  bool all_plain = true;
+  for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) {
+    const bool plain = is_plain_diploid_pair(pairs + sample_idx * 2);
+    all_plain &= plain;
+    const int copies = static_cast<int>((pairs[sample_idx * 2] >> 1) + (pairs[sample_idx * 2 + 1] >> 1)) - 2;
+    // Stored whatever the call, so that the loop vectorises: the caller
+    // overwrites the samples that are not plain.
+    columns_.ploidy_of(1, sample_idx) = 2;
+    columns_.diploid_call(1, sample_idx) = static_cast<std::int8_t>(copies);
+    if (gives_dosages) columns_.dosage(1, sample_idx) = copies;
+  }
+  return all_plain;
+}
+
 // GT: the hard calls, and when they are the dosage source, the dosages. The
 // call's ploidy is its length before htslib's end-of-vector padding, so
 // haploid and diploid calls can share a record.
@@ -186,56 +233,58 @@ void RecordDecoder::decode_genotypes(const bcf_fmt_t& format, bool gives_dosages
     fail("FORMAT/GT is not stored as genotype integers", "rewrite the file with `bcftools view`");
   }
   call_alleles_.resize(static_cast<std::size_t>(format.n));
-  // Most records store diploid calls in one byte per allele: such samples,
-  // fully called with alleles the record has, need no slot-by-slot reading.
-  const bool byte_pairs = format.type == BCF_BT_INT8 && format.n == 2;
-  for (std::size_t sample_idx = 0; sample_idx < sample_count_; ++sample_idx) {
-    if (byte_pairs) {
-      const std::int8_t first = static_cast<std::int8_t>(format.p[sample_idx * 2]);
-      const std::int8_t second = static_cast<std::int8_t>(format.p[sample_idx * 2 + 1]);
-      // An encoded allele is (index + 1) << 1 | phased, so 2 and up is called.
-      const int first_allele = (first >> 1) - 1, second_allele = (second >> 1) - 1;
-      const bool called = first >= 2 && second >= 2;
-      if (called && allele_count_ == 2 && first_allele < 2 && second_allele < 2) {
-        // What store_hard_call gives for a full diploid call of alleles 0 and 1.
-        const int copies = first_allele + second_allele;
-        columns_.ploidy_of(1, sample_idx) = 2;
-        columns_.diploid_call(1, sample_idx) = static_cast<std::int8_t>(copies);
-        if (gives_dosages) columns_.dosage(1, sample_idx) = copies;
-        continue;
-      }
-      if (called && first_allele < allele_count_ && second_allele < allele_count_) {
-        call_alleles_[0] = first_allele;
-        call_alleles_[1] = second_allele;
-        store_hard_call(columns_, sample_idx, allele_count_, call_alleles_.data(), 2, 2, false,
-                        gives_dosages, origin_.file->haploid_dosage);
-        continue;
-      }
+  // Most records store biallelic diploid calls in one byte per allele: a
+  // chunk of such samples is decoded in one branch-free pass, and only the
+  // samples of a chunk that it cannot take are read slot by slot.
+  const bool plain_pairs = format.type == BCF_BT_INT8 && format.n == 2 && allele_count_ == 2;
+  for (std::size_t chunk = 0; chunk < sample_count_; chunk += kSampleChunk) {
+    const std::size_t chunk_end = std::min(sample_count_, chunk + kSampleChunk);
+    if (plain_pairs && decode_plain_diploid_pairs(format.p, chunk, chunk_end, gives_dosages)) continue;
+    for (std::size_t sample_idx = chunk; sample_idx < chunk_end; ++sample_idx) {
+      if (plain_pairs && is_plain_diploid_pair(format.p + sample_idx * 2)) continue;  // done above
+      decode_one_genotype(format, sample_idx, gives_dosages);
     }
-    int length = 0;
-    int called = 0;
-    bool any_missing = false;
-    for (int value_idx = 0; value_idx < format.n; ++value_idx) {
-      int32_t encoded = 0;
-      Slot slot = read_int_slot(format, sample_idx, value_idx, &encoded);
-      if (slot == Slot::vector_end) break;
-      ++length;
-      if (slot == Slot::missing || bcf_gt_is_missing(encoded)) {
-        any_missing = true;
-        continue;
-      }
-      const int allele = bcf_gt_allele(encoded);
-      if (allele < 0 || allele >= allele_count_) {
-        fail_for_sample(sample_idx,
-                        "GT names allele " + std::to_string(allele) + " but the record has only " +
-                            std::to_string(allele_count_ - 1) + " ALT allele(s)",
-                        "correct the GT value or the ALT column");
-      }
-      call_alleles_[called++] = allele;
-    }
-    store_hard_call(columns_, sample_idx, allele_count_, call_alleles_.data(), called, length,
-                    any_missing, gives_dosages, origin_.file->haploid_dosage);
   }
+}
+
+void RecordDecoder::decode_one_genotype(const bcf_fmt_t& format, std::size_t sample_idx, bool gives_dosages) {
+  if (format.type == BCF_BT_INT8 && format.n == 2) {
+    const std::int8_t first = static_cast<std::int8_t>(format.p[sample_idx * 2]);
+    const std::int8_t second = static_cast<std::int8_t>(format.p[sample_idx * 2 + 1]);
+    // An encoded allele is (index + 1) << 1 | phased, so 2 and up is called.
+    const int first_allele = (first >> 1) - 1, second_allele = (second >> 1) - 1;
+    const bool called = first >= 2 && second >= 2;
+    if (called && first_allele < allele_count_ && second_allele < allele_count_) {
+      call_alleles_[0] = first_allele;
+      call_alleles_[1] = second_allele;
+      store_hard_call(columns_, sample_idx, allele_count_, call_alleles_.data(), 2, 2, false, gives_dosages,
+                      origin_.file->haploid_dosage);
+      return;
+    }
+  }
+  int length = 0;
+  int called = 0;
+  bool any_missing = false;
+  for (int value_idx = 0; value_idx < format.n; ++value_idx) {
+    int32_t encoded = 0;
+    Slot slot = read_int_slot(format, sample_idx, value_idx, &encoded);
+    if (slot == Slot::vector_end) break;
+    ++length;
+    if (slot == Slot::missing || bcf_gt_is_missing(encoded)) {
+      any_missing = true;
+      continue;
+    }
+    const int allele = bcf_gt_allele(encoded);
+    if (allele < 0 || allele >= allele_count_) {
+      fail_for_sample(sample_idx,
+                      "GT names allele " + std::to_string(allele) + " but the record has only " +
+                          std::to_string(allele_count_ - 1) + " ALT allele(s)",
+                      "correct the GT value or the ALT column");
+    }
+    call_alleles_[called++] = allele;
+  }
+  store_hard_call(columns_, sample_idx, allele_count_, call_alleles_.data(), called, length, any_missing,
+                  gives_dosages, origin_.file->haploid_dosage);
 }
 
 void RecordDecoder::check_float_storage(const bcf_fmt_t& format) const {
@@ -262,26 +311,35 @@ void RecordDecoder::decode_values(const bcf_fmt_t& format) {
   check_float_storage(format);
   values_.resize(static_cast<std::size_t>(format.n));
   const bool probabilities = origin_.file->field == DosageField::gp;
-  // One DS value per sample on a biallelic record: a plain in-range value
-  // is stored at once; the rest (missing, padding, rejected) goes below.
+  // One DS value per sample on a biallelic record: the plain in-range values
+  // are stored in one pass; the rest (missing, padding, rejected) goes below.
   const bool single_dosages = !probabilities && format.n == 1 && allele_count_ == 2;
-  for (std::size_t sample_idx = 0; sample_idx < sample_count_; ++sample_idx) {
-    if (single_dosages) {
-      const std::uint8_t* at = format.p + sample_idx * sizeof(float);
-      const std::uint32_t bits = le_to_u32(at);
-      const double value = le_to_float(at);
-      if (bits != bcf_float_missing && bits != bcf_float_vector_end && value >= 0.0 &&
-          value <= diploid_dosage_limit) {
-        columns_.dosage(1, sample_idx) = value;
-        continue;
-      }
+  for (std::size_t chunk = 0; chunk < sample_count_; chunk += kSampleChunk) {
+    const std::size_t chunk_end = std::min(sample_count_, chunk + kSampleChunk);
+    if (single_dosages && decode_plain_dosages(format.p, chunk, chunk_end)) continue;
+    for (std::size_t sample_idx = chunk; sample_idx < chunk_end; ++sample_idx) {
+      if (single_dosages && is_plain_dosage(read_host_float(format.p + sample_idx * sizeof(float)))) continue;
+      const int given = gather_values(format, sample_idx);
+      const SampleOutcome outcome =
+          probabilities ? convert_probabilities(columns_, sample_idx, values_.data(), given, allele_count_)
+                        : convert_dosages(columns_, sample_idx, values_.data(), given, allele_count_);
+      if (outcome.kind != SampleOutcome::ok) report_rejected(sample_idx, outcome, given);
     }
-    const int given = gather_values(format, sample_idx);
-    const SampleOutcome outcome =
-        probabilities ? convert_probabilities(columns_, sample_idx, values_.data(), given, allele_count_)
-                      : convert_dosages(columns_, sample_idx, values_.data(), given, allele_count_);
-    if (outcome.kind != SampleOutcome::ok) report_rejected(sample_idx, outcome, given);
   }
+}
+
+// Stores the single DS value of each sample in [first, last) and returns
+// whether all lie in range; the others must be decoded again by the caller. The BCF missing and end-of-vector
+// values are NaNs, which fail the range test.
+bool RecordDecoder::decode_plain_dosages(const std::uint8_t* values, std::size_t first, std::size_t last) {
+  bool all_plain = true;
+  for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) {
+    const float value = read_host_float(values + sample_idx * sizeof(float));
+    const bool plain = is_plain_dosage(value);
+    all_plain &= plain;
+    columns_.dosage(1, sample_idx) = value;  // the caller overwrites the samples that are not plain
+  }
+  return all_plain;
 }
 
 void RecordDecoder::report_rejected(std::size_t sample_idx, const SampleOutcome& outcome,

@@ -11,11 +11,16 @@
 // with a bisection safeguard.
 #include "tamis/saddlepoint.hpp"
 
+#include <algorithm>
 #include <cassert>
 #include <cmath>
+#include <cstdint>
+#include <cstring>
 #include <limits>
 #include <vector>
 
+#include "common/vector_clones.hpp"
+#include "model/vector_math.hpp"
 #include "tamis/distributions.hpp"
 
 namespace tamis {
@@ -27,6 +32,7 @@ struct AdjustedTerms {
   std::vector<double> genotype;
   std::vector<double> mu;
   std::vector<double> one_minus_mu;
+  std::vector<double> mu_times_one_minus_mu;
   double largest_value = 0.0;   // the largest value U can take
   double smallest_value = 0.0;  // the smallest
   double variance = 0.0;        // K''(0)
@@ -40,6 +46,8 @@ struct AdjustedTerms {
 namespace {
 
 using detail::AdjustedTerms;
+using detail::expm1_nonpositive;
+using detail::log1p_nonpositive;
 
 constexpr double kInfinity = std::numeric_limits<double>::infinity();
 
@@ -52,6 +60,7 @@ void add_term(AdjustedTerms& terms, double g, double m, double m_bar) {
   terms.genotype.push_back(g);
   terms.mu.push_back(m);
   terms.one_minus_mu.push_back(m_bar);
+  terms.mu_times_one_minus_mu.push_back(m * m_bar);
   // U is largest when every Y_i with gt_i > 0 is 1 and every other is 0.
   if (g > 0.0) {
     terms.largest_value += g * m_bar;
@@ -87,37 +96,102 @@ struct Cumulants {
   double k2 = 0.0;  // K''(t)
 };
 
-Cumulants evaluate_cumulants(const AdjustedTerms& terms, double t) {
+// Terms per group in the sums below: each group position keeps its own
+// partial sums, added up in a fixed order at the end, so the loop vectorises
+// without the result depending on the vector width.
+constexpr std::size_t kTermLanes = 8;
+
+// K' and K'' only: all that Newton's method needs, without the logarithm
+// that K takes, which would double the cost of every iteration. With
+// e = expm1(-|s|) and s = t gt_i, the tilted probability
+// pi = mu e^s / (1 - mu + mu e^s) gives, for a = mu (s <= 0) or 1 - mu (s > 0)
+// and D = 1 + a e,
+//   pi - mu = -+ mu (1 - mu) e / D,   pi (1 - pi) = mu (1 - mu) (1 + e) / D^2,
+// a form that neither overflows nor cancels for either sign of s.
+TAMIS_ALWAYS_INLINE void tilted_term(double g, double m, double m_bar, double spread, double t, double& slope,
+                                  double& curvature) {
+  const double s = t * g;
+  const bool below = s <= 0.0;
+  const double e = expm1_nonpositive(below ? s : -s);
+  const double inverse = 1.0 / (1.0 + (below ? m : m_bar) * e);
+  const double signed_slope = spread * e * inverse;
+  slope = g * (below ? signed_slope : -signed_slope);
+  curvature = (g * g) * ((spread * (1.0 + e)) * (inverse * inverse));
+}
+
+TAMIS_VECTOR_CLONES
+void sum_slope_and_curvature(const double* genotype, const double* mu, const double* one_minus_mu,
+                             const double* mu_times_one_minus_mu, std::size_t count, double t,
+                             double* k1, double* k2) {
+  double k1_lanes[kTermLanes] = {};
+  double k2_lanes[kTermLanes] = {};
+  double slopes[kTermLanes], curvatures[kTermLanes];
+  for (std::size_t group = 0; group < count; group += kTermLanes) {
+    const std::size_t lanes = std::min(kTermLanes, count - group);
+    if (lanes == kTermLanes) {
+      for (std::size_t lane = 0; lane < kTermLanes; ++lane) {
+        tilted_term(genotype[group + lane], mu[group + lane], one_minus_mu[group + lane],
+                    mu_times_one_minus_mu[group + lane], t, slopes[lane], curvatures[lane]);
+      }
+    } else {
+      for (std::size_t lane = 0; lane < kTermLanes; ++lane) {
+        slopes[lane] = curvatures[lane] = 0.0;
+        if (lane < lanes) {
+          tilted_term(genotype[group + lane], mu[group + lane], one_minus_mu[group + lane],
+                      mu_times_one_minus_mu[group + lane], t, slopes[lane], curvatures[lane]);
+        }
+      }
+    }
+    for (std::size_t lane = 0; lane < kTermLanes; ++lane) {
+      k1_lanes[lane] += slopes[lane];
+      k2_lanes[lane] += curvatures[lane];
+    }
+  }
+  for (std::size_t lane = 0; lane < kTermLanes; ++lane) {
+    *k1 += k1_lanes[lane];
+    *k2 += k2_lanes[lane];
+  }
+}
+
+Cumulants evaluate_slope_and_curvature(const AdjustedTerms& terms, double t) {
   Cumulants out;
-  out.k = 0.5 * terms.gaussian_variance * t * t;
   out.k1 = terms.gaussian_variance * t;
   out.k2 = terms.gaussian_variance;
-  const std::size_t count = terms.genotype.size();
-  for (std::size_t term_idx = 0; term_idx < count; ++term_idx) {
-    const double g = terms.genotype[term_idx];
-    const double m = terms.mu[term_idx];
-    const double m_bar = terms.one_minus_mu[term_idx];
-    const double s = t * g;
-    double log_mgf, pi_minus_mu, pi, one_minus_pi;
-    if (s <= 0.0) {
-      const double e = std::expm1(s);  // in (-1, 0]
-      const double denominator = 1.0 + m * e;  // 1 - mu + mu e^s
-      log_mgf = std::log1p(m * e);
-      pi = m * (e + 1.0) / denominator;
-      one_minus_pi = m_bar / denominator;
-      pi_minus_mu = m * m_bar * e / denominator;
-    } else {
-      const double e = std::expm1(-s);  // in (-1, 0)
-      const double denominator = 1.0 + m_bar * e;  // mu + (1 - mu) e^-s
-      log_mgf = s + std::log1p(m_bar * e);
-      pi = m / denominator;
-      one_minus_pi = m_bar * (e + 1.0) / denominator;
-      pi_minus_mu = -m * m_bar * e / denominator;
+  sum_slope_and_curvature(terms.genotype.data(), terms.mu.data(), terms.one_minus_mu.data(),
+                          terms.mu_times_one_minus_mu.data(), terms.genotype.size(), t, &out.k1, &out.k2);
+  return out;
+}
+
+// sum_i [ln(1 - mu_i + mu_i e^s) - s mu_i], s = t gt_i: the terms' part of
+// K(t), in fixed partial sums like sum_slope_and_curvature.
+TAMIS_VECTOR_CLONES
+double sum_log_mgf(const double* genotype, const double* mu, const double* one_minus_mu, std::size_t count,
+                   double t) {
+  double lanes[kTermLanes] = {};
+  double terms[kTermLanes];
+  for (std::size_t group = 0; group < count; group += kTermLanes) {
+    const std::size_t used = std::min(kTermLanes, count - group);
+    for (std::size_t lane = 0; lane < kTermLanes; ++lane) {
+      const std::size_t term_idx = group + (lane < used ? lane : 0);
+      const double s = t * genotype[term_idx];
+      const double m = mu[term_idx];
+      const bool below = s <= 0.0;
+      const double e = expm1_nonpositive(below ? s : -s);
+      // ln(1 - mu + mu e^s), written so that it keeps its precision for any s.
+      const double log_mgf = below ? log1p_nonpositive(m * e) : s + log1p_nonpositive(one_minus_mu[term_idx] * e);
+      terms[lane] = lane < used ? log_mgf - s * m : 0.0;
     }
-    out.k += log_mgf - s * m;
-    out.k1 += g * pi_minus_mu;
-    out.k2 += g * g * pi * one_minus_pi;
+    for (std::size_t lane = 0; lane < kTermLanes; ++lane) lanes[lane] += terms[lane];
   }
+  double sum = 0.0;
+  for (std::size_t lane = 0; lane < kTermLanes; ++lane) sum += lanes[lane];
+  return sum;
+}
+
+Cumulants evaluate_cumulants(const AdjustedTerms& terms, double t) {
+  Cumulants out = evaluate_slope_and_curvature(terms, t);
+  out.k = 0.5 * terms.gaussian_variance * t * t +
+          sum_log_mgf(terms.genotype.data(), terms.mu.data(), terms.one_minus_mu.data(), terms.genotype.size(), t);
   return out;
 }
 
@@ -127,9 +201,11 @@ bool find_saddlepoint(const AdjustedTerms& terms, double x, double* zeta) {
   double lo = x > 0.0 ? 0.0 : -kInfinity;
   double hi = x > 0.0 ? kInfinity : 0.0;
   const double scale = std::sqrt(terms.variance);
-  double t = 0.0;
+  // Newton's method from the root of the normal approximation K'(t) ~ t K''(0),
+  // which is close for all but the most skewed variants.
+  double t = x / terms.variance;
   for (int iteration = 0; iteration < 500; ++iteration) {
-    const Cumulants c = evaluate_cumulants(terms, t);
+    const Cumulants c = evaluate_slope_and_curvature(terms, t);
     const double f = c.k1 - x;
     if (!std::isfinite(f)) return false;
     if (std::fabs(f) <= 1e-15 * (scale + std::fabs(x))) {

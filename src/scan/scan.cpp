@@ -10,6 +10,8 @@
 #include <cmath>
 #include <algorithm>
 #include <fstream>
+#include <memory>
+#include <mutex>
 #include <set>
 #include <sstream>
 
@@ -163,6 +165,16 @@ void apply_rank_normalization(const ScanOptions& options, AnalysisSet& set) {
                      std::to_string(set.y.size()) + " analysis samples");
 }
 
+std::vector<std::size_t> samples_outside(const std::vector<std::size_t>& genotype_index, std::size_t sample_count) {
+  std::vector<bool> inside(sample_count, false);
+  for (std::size_t sample : genotype_index) inside[sample] = true;
+  std::vector<std::size_t> outside;
+  for (std::size_t sample = 0; sample < sample_count; ++sample) {
+    if (!inside[sample]) outside.push_back(sample);
+  }
+  return outside;
+}
+
 std::vector<TraitContext> prepare_traits(const ScanOptions& options, const TraitTable& table,
                                          const std::vector<std::string>& samples) {
   std::vector<TraitContext> traits(options.traits.size());
@@ -193,6 +205,7 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
     if (options.selection.active()) trait.selection = &options.selection;
     trait.floors = options.floors;
     trait.haploid_dosage = options.haploid_dosage;
+    trait.excluded_genotype_index = samples_outside(trait.set.genotype_index, samples.size());
   }
   // The kernels hold references to the models, so they are made once the vector is final.
   for (TraitContext& trait : traits) {
@@ -210,6 +223,33 @@ struct BlockWork {
   DosageBlock block;
   std::vector<std::string> chromosomes;
   std::vector<TraitBlockOutput> outputs;
+};
+
+// The pipeline's blocks, owned here rather than by the items in flight: a
+// block is reused with its buffers (decoding then allocates nothing), and
+// when a stage throws and the pipeline is cancelled, nothing TBB still holds
+// is left unfreed. The reader and the writer run concurrently, hence the lock.
+class BlockPool {
+ public:
+  BlockWork* take() {
+    std::lock_guard<std::mutex> lock(mutex_);
+    if (free_.empty()) {
+      owned_.push_back(std::make_unique<BlockWork>());
+      return owned_.back().get();
+    }
+    BlockWork* work = free_.back();
+    free_.pop_back();
+    return work;
+  }
+  void give_back(BlockWork* work) {
+    std::lock_guard<std::mutex> lock(mutex_);
+    free_.push_back(work);
+  }
+
+ private:
+  std::mutex mutex_;
+  std::vector<std::unique_ptr<BlockWork>> owned_;
+  std::vector<BlockWork*> free_;
 };
 
 std::vector<std::string> map_chromosomes(const DosageBlock& block, ChromosomeCodes codes,
@@ -273,38 +313,43 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     }
   }
   struct ThreadScratch {
+    BlockTotals totals;
     std::vector<GatheredBlock> gathered;
     std::vector<TraitScratch> traits;
   };
   tbb::enumerable_thread_specific<ThreadScratch> scratch_per_thread(
-      [&] { return ThreadScratch{std::vector<GatheredBlock>(traits.size()), std::vector<TraitScratch>(traits.size())}; });
+      [&] { return ThreadScratch{BlockTotals{}, std::vector<GatheredBlock>(traits.size()), std::vector<TraitScratch>(traits.size())}; });
   const std::size_t tokens = static_cast<std::size_t>(options.threads) * 3;
   const std::size_t sample_count = reader.sample_ids().size();
   ProgressDisplay display(choose_progress_mode(options.quiet), reader.indexed_record_count());
 
-  auto read_stage = [&](tbb::flow_control& control) -> std::shared_ptr<BlockWork> {
-    auto work = std::make_shared<BlockWork>();
+  BlockPool pool;
+  auto read_stage = [&](tbb::flow_control& control) -> BlockWork* {
+    BlockWork* work = pool.take();
     if (reader.read_batch(work->batch, options.records_per_block) == 0) {
+      pool.give_back(work);
       control.stop();
       return nullptr;
     }
     return work;
   };
-  auto test_stage = [&](std::shared_ptr<BlockWork> work) -> std::shared_ptr<BlockWork> {
+  auto test_stage = [&](BlockWork* work) -> BlockWork* {
+    work->block.clear();
     work->block.sample_count = sample_count;
     work->batch.decode(work->block);
     work->chromosomes = map_chromosomes(work->block, options.chromosome_codes, reader.paths());
     ThreadScratch& scratch = scratch_per_thread.local();
+    total_block(work->block, options.haploid_dosage, scratch.totals);
     work->outputs.resize(traits.size());
     for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
       GatheredBlock& gathered = scratch.gathered[gatherer[trait_idx]];
-      if (gatherer[trait_idx] == trait_idx) gather_block(traits[trait_idx], work->block, gathered);
+      if (gatherer[trait_idx] == trait_idx) gather_block(traits[trait_idx], work->block, scratch.totals, gathered);
       process_trait_block(traits[trait_idx], work->block, gathered, work->chromosomes, scratch.traits[trait_idx],
                           work->outputs[trait_idx]);
     }
     return work;
   };
-  auto write_stage = [&](std::shared_ptr<BlockWork> work) {
+  auto write_stage = [&](BlockWork* work) {
     CheckpointState& state = progress.state;
     state.records += work->batch.size();
     state.alleles += work->block.size();
@@ -317,15 +362,14 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     ++state.blocks;
     if (state.blocks % options.blocks_per_checkpoint == 0) save_progress(options, traits, progress);
     display.update(state.records);
+    pool.give_back(work);
   };
 
   tbb::parallel_pipeline(
       tokens,
-      tbb::make_filter<void, std::shared_ptr<BlockWork>>(tbb::filter_mode::serial_in_order, read_stage) &
-          tbb::make_filter<std::shared_ptr<BlockWork>, std::shared_ptr<BlockWork>>(
-              tbb::filter_mode::parallel, test_stage) &
-          tbb::make_filter<std::shared_ptr<BlockWork>, void>(tbb::filter_mode::serial_in_order,
-                                                              write_stage));
+      tbb::make_filter<void, BlockWork*>(tbb::filter_mode::serial_in_order, read_stage) &
+          tbb::make_filter<BlockWork*, BlockWork*>(tbb::filter_mode::parallel, test_stage) &
+          tbb::make_filter<BlockWork*, void>(tbb::filter_mode::serial_in_order, write_stage));
   display.finish();
 }
 
@@ -459,14 +503,30 @@ std::string result_path(const std::string& out_prefix, const std::string& trait)
   return out_prefix + "." + trait + ".tsv.gz";
 }
 
-ScanSummary run_scan(const ScanOptions& options) {
+// htslib's decompression threads beside the scan's own. On a few cores they
+// only compete with the workers (on 2 cores a BCF scan took 1.6 times as
+// long with one of them), while the serial reader inflating the input itself
+// keeps pace with the statistics; with many workers it would not.
+int decompression_threads_for(int scan_threads) { return scan_threads >= 4 ? scan_threads / 4 : 0; }
+
+// Records per block when the options leave it open: few enough that a
+// block's decoded dosages (and each trait's gathered copy) stay in a core's
+// cache, while the kernel still gets a few register-wide groups of variants.
+std::size_t records_per_block_for(std::size_t sample_count) {
+  constexpr std::size_t kBlockBytes = std::size_t{1} << 20;
+  const std::size_t fitting = kBlockBytes / (sizeof(double) * std::max<std::size_t>(sample_count, 1));
+  return std::clamp<std::size_t>(fitting / 8 * 8, 8, 256);
+}
+
+ScanSummary run_scan(const ScanOptions& requested) {
   const auto start = std::chrono::steady_clock::now();
+  ScanOptions options = requested;
   tbb::global_control thread_limit(tbb::global_control::max_allowed_parallelism,
                                    static_cast<std::size_t>(options.threads));
   GenotypeReaderOptions reader_options;
   reader_options.paths = options.genotype_paths;
   reader_options.field = options.dosage_field;
-  reader_options.io_threads = options.threads > 1 ? 1 : 0;
+  reader_options.io_threads = decompression_threads_for(options.threads);
   reader_options.regions = options.regions;
   reader_options.haploid_dosage = options.haploid_dosage;
   if (options.shard_count > 0) {
@@ -479,6 +539,7 @@ ScanSummary run_scan(const ScanOptions& options) {
     current_log().line("selected " + std::to_string(options.selection.size()) + " variants" + (options.regions.empty() ? " (reading the files whole)" : " (through the index)"));
   }
   GenotypeReader reader(reader_options);
+  if (options.records_per_block == 0) options.records_per_block = records_per_block_for(reader.sample_ids().size());
   const auto provenance = provenance_entries(options, reader_options.regions);
   current_log().detail("run fingerprint: " + provenance.front().second);
   const TraitTable table = TraitTable::load(options.traits_path, options.table);

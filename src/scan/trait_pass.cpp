@@ -2,7 +2,9 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstring>
 
+#include "common/vector_clones.hpp"
 #include "tamis/distributions.hpp"
 #include "tamis/firth.hpp"
 #include "tamis/hardy_weinberg.hpp"
@@ -11,58 +13,214 @@
 namespace tamis {
 namespace {
 
-// Counts the site's alleles over each sample's ploidy, and its diploid hard
-// calls for the Hardy-Weinberg test. A haploid GT dosage scaled to 0/2 still
-// counts as one allele.
-void count_alleles(const std::vector<std::size_t>& sample_index, const DosageBlock& block, std::size_t site_idx,
-                   int haploid_dosage, SiteSummary& summary) {
-  const VariantSite& site = block.sites[site_idx];
-  if (!site.has_hard_calls) {
+// Four lanes of doubles, as GCC and clang vector types: the compiler maps
+// them onto whatever vector unit the machine has, while every lane keeps its
+// own partial sums in the same order, so the totals have the same bits on
+// every machine.
+typedef double Lanes __attribute__((vector_size(4 * sizeof(double))));
+typedef std::int64_t LaneMask __attribute__((vector_size(4 * sizeof(std::int64_t))));
+constexpr std::size_t kLaneCount = 4;
+
+TAMIS_ALWAYS_INLINE Lanes load_lanes(const double* values) {
+  Lanes lanes;
+  std::memcpy(&lanes, values, sizeof lanes);
+  return lanes;
+}
+TAMIS_ALWAYS_INLINE Lanes where(LaneMask mask, Lanes values) { return (Lanes)((LaneMask)values & mask); }
+TAMIS_ALWAYS_INLINE double lane_total(Lanes lanes) { return ((lanes[0] + lanes[1]) + lanes[2]) + lanes[3]; }
+
+// One sample's terms of the site totals, for the samples left over after the
+// four-lane groups and for adding or removing single samples.
+void add_sample_terms(const DosageBlock& block, std::size_t site_idx, std::size_t sample, bool scaled_haploid,
+                      double sign, SiteTotals& totals) {
+  const double value = block.site_dosages(site_idx)[sample];
+  const bool called = !std::isnan(value);
+  const double taken = called ? value : 0.0;
+  totals.called += sign * (called ? 1.0 : 0.0);
+  totals.sum += sign * taken;
+  totals.squares += sign * (taken * taken);
+  if (!block.sites[site_idx].has_hard_calls) return;
+  const int ploidy = block.site_ploidy(site_idx)[sample];
+  const int copies = ploidy > 0 ? ploidy : 2;
+  const int call = block.site_diploid_calls(site_idx)[sample];
+  totals.slots += sign * (called ? static_cast<double>(copies) : 0.0);
+  totals.copies += sign * ((copies == 1 && scaled_haploid) ? taken * 0.5 : taken);
+  totals.hom_ref += sign * (call == 0 ? 1.0 : 0.0);
+  totals.het += sign * (call == 1 ? 1.0 : 0.0);
+  totals.hom_alt += sign * (call == 2 ? 1.0 : 0.0);
+}
+
+// The dosage sums of one site over every genotype sample.
+TAMIS_VECTOR_CLONES
+void total_dosages(const double* dosages, std::size_t samples, SiteTotals& totals) {
+  Lanes called = {}, sum = {}, squares = {};
+  const Lanes ones = {1.0, 1.0, 1.0, 1.0};
+  const std::size_t grouped = samples / kLaneCount * kLaneCount;
+  for (std::size_t sample = 0; sample < grouped; sample += kLaneCount) {
+    const Lanes values = load_lanes(dosages + sample);
+    const LaneMask is_called = values == values;  // false for NaN, a missing dosage
+    const Lanes taken = where(is_called, values);
+    called += where(is_called, ones);
+    sum += taken;
+    squares += taken * taken;
+  }
+  totals.called = lane_total(called);
+  totals.sum = lane_total(sum);
+  totals.squares = lane_total(squares);
+}
+
+// The same with the hard calls: alleles counted over each sample's ploidy (a
+// haploid GT dosage scaled to 0/2 still counts as one allele), and the
+// diploid calls tallied for the Hardy-Weinberg test.
+TAMIS_VECTOR_CLONES
+void total_hard_calls(const double* dosages, const std::uint8_t* ploidy, const std::int8_t* calls,
+                      std::size_t samples, bool scaled_haploid, SiteTotals& totals) {
+  Lanes called = {}, sum = {}, squares = {}, slots = {}, copies_sum = {}, hom_ref = {}, het = {}, hom_alt = {};
+  const Lanes ones = {1.0, 1.0, 1.0, 1.0}, twos = {2.0, 2.0, 2.0, 2.0};
+  const Lanes haploid_weight = scaled_haploid ? Lanes{0.5, 0.5, 0.5, 0.5} : ones;
+  const std::size_t grouped = samples / kLaneCount * kLaneCount;
+  for (std::size_t sample = 0; sample < grouped; sample += kLaneCount) {
+    const Lanes values = load_lanes(dosages + sample);
+    const Lanes sample_ploidy = {static_cast<double>(ploidy[sample]), static_cast<double>(ploidy[sample + 1]),
+                                 static_cast<double>(ploidy[sample + 2]), static_cast<double>(ploidy[sample + 3])};
+    const Lanes call = {static_cast<double>(calls[sample]), static_cast<double>(calls[sample + 1]),
+                        static_cast<double>(calls[sample + 2]), static_cast<double>(calls[sample + 3])};
+    const LaneMask is_called = values == values;
+    const Lanes taken = where(is_called, values);
+    const LaneMask has_ploidy = sample_ploidy > 0.0;
+    const Lanes copies = where(has_ploidy, sample_ploidy) + where(~has_ploidy, twos);
+    const LaneMask haploid = copies == 1.0;
+    const Lanes weight = where(haploid, haploid_weight) + where(~haploid, ones);
+    called += where(is_called, ones);
+    sum += taken;
+    squares += taken * taken;
+    slots += where(is_called, copies);
+    copies_sum += taken * weight;
+    hom_ref += where(call == 0.0, ones);
+    het += where(call == 1.0, ones);
+    hom_alt += where(call == 2.0, ones);
+  }
+  totals.called = lane_total(called);
+  totals.sum = lane_total(sum);
+  totals.squares = lane_total(squares);
+  totals.slots = lane_total(slots);
+  totals.copies = lane_total(copies_sum);
+  totals.hom_ref = lane_total(hom_ref);
+  totals.het = lane_total(het);
+  totals.hom_alt = lane_total(hom_alt);
+}
+
+SiteSummary summary_from_totals(const SiteTotals& totals, bool has_hard_calls) {
+  SiteSummary summary;
+  summary.called = static_cast<std::size_t>(totals.called);
+  summary.sum = totals.sum;
+  summary.sum_squares = totals.squares;
+  if (!has_hard_calls) {
     summary.allele_count = summary.sum;
     summary.allele_slots = 2.0 * static_cast<double>(summary.called);
-    return;
+    return summary;
   }
-  const double* dosages = block.site_dosages(site_idx);
-  const std::uint8_t* ploidy = block.site_ploidy(site_idx);
-  const std::int8_t* calls = block.site_diploid_calls(site_idx);
-  const bool scaled_haploid = site.source == DosageField::gt && haploid_dosage == 2;
-  for (std::size_t sample : sample_index) {
-    if (calls[sample] == 0) ++summary.hom_ref;
-    if (calls[sample] == 1) ++summary.het;
-    if (calls[sample] == 2) ++summary.hom_alt;
-    const double value = dosages[sample];
-    if (std::isnan(value)) continue;
-    const int copies = ploidy[sample] > 0 ? ploidy[sample] : 2;
-    summary.allele_slots += copies;
-    summary.allele_count += (copies == 1 && scaled_haploid) ? value / 2.0 : value;
+  summary.allele_slots = totals.slots;
+  summary.allele_count = totals.copies;
+  summary.hom_ref = static_cast<std::uint64_t>(totals.hom_ref);
+  summary.het = static_cast<std::uint64_t>(totals.het);
+  summary.hom_alt = static_cast<std::uint64_t>(totals.hom_alt);
+  if (summary.hom_ref + summary.het + summary.hom_alt > 0 && summary.varies()) {
+    summary.hwe_log_p = hardy_weinberg_exact_log_p(summary.hom_ref, summary.het, summary.hom_alt);
+  }
+  return summary;
+}
+
+// The site's totals over one sample set: the block's totals less the
+// samples outside the set when those are few (a scan usually drops a handful
+// of samples with a missing trait), else summed over the set directly.
+SiteTotals totals_for_samples(const TraitContext& trait, const DosageBlock& block, const BlockTotals& block_totals,
+                              std::size_t site_idx) {
+  const bool scaled_haploid = block.sites[site_idx].source == DosageField::gt && trait.haploid_dosage == 2;
+  const std::vector<std::size_t>& excluded = trait.excluded_genotype_index;
+  if (excluded.size() <= trait.set.genotype_index.size()) {
+    SiteTotals totals = block_totals.sites[site_idx];
+    for (std::size_t sample : excluded) add_sample_terms(block, site_idx, sample, scaled_haploid, -1.0, totals);
+    return totals;
+  }
+  SiteTotals totals;
+  for (std::size_t sample : trait.set.genotype_index) {
+    add_sample_terms(block, site_idx, sample, scaled_haploid, 1.0, totals);
+  }
+  return totals;
+}
+
+}  // namespace
+
+void total_block(const DosageBlock& block, int haploid_dosage, BlockTotals& totals) {
+  totals.sites.assign(block.size(), SiteTotals{});
+  const std::size_t samples = block.sample_count;
+  const std::size_t grouped = samples / kLaneCount * kLaneCount;
+  for (std::size_t site_idx = 0; site_idx < block.size(); ++site_idx) {
+    const VariantSite& site = block.sites[site_idx];
+    const bool scaled_haploid = site.source == DosageField::gt && haploid_dosage == 2;
+    SiteTotals& site_totals = totals.sites[site_idx];
+    if (site.has_hard_calls) {
+      total_hard_calls(block.site_dosages(site_idx), block.site_ploidy(site_idx), block.site_diploid_calls(site_idx),
+                       samples, scaled_haploid, site_totals);
+    } else {
+      total_dosages(block.site_dosages(site_idx), samples, site_totals);
+    }
+    for (std::size_t sample = grouped; sample < samples; ++sample) {
+      add_sample_terms(block, site_idx, sample, scaled_haploid, 1.0, site_totals);
+    }
+  }
+}
+
+namespace {
+
+// Sites per tile of the sample-major copy: one tile writes each sample's
+// values for this many sites at once, a whole cache line of doubles, instead
+// of one value per line per site.
+constexpr std::size_t kTransposeTile = 8;
+
+// Copies the analysis samples' dosages of sites [first, first + Tile) into
+// the sample-major block, missing values replaced by the site's mean.
+template <std::size_t Tile>
+void copy_tile_sample_major(const std::vector<std::size_t>& sample_index, const DosageBlock& block,
+                            const std::vector<SiteSummary>& summaries, std::size_t first, std::size_t width,
+                            double* out) {
+  const double* sources[Tile];
+  double fills[Tile];
+  for (std::size_t k = 0; k < Tile; ++k) {
+    sources[k] = block.site_dosages(first + k);
+    fills[k] = summaries[first + k].mean();
+  }
+  const std::size_t samples = sample_index.size();
+  for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
+    const std::size_t sample = sample_index[sample_idx];
+    double* row = out + sample_idx * width + first;
+    for (std::size_t k = 0; k < Tile; ++k) {
+      const double value = sources[k][sample];
+      row[k] = std::isnan(value) ? fills[k] : value;
+    }
   }
 }
 
 }  // namespace
 
-void gather_block(const TraitContext& trait, const DosageBlock& block, GatheredBlock& scratch) {
+void gather_block(const TraitContext& trait, const DosageBlock& block, const BlockTotals& totals,
+                  GatheredBlock& scratch) {
   const std::vector<std::size_t>& sample_index = trait.set.genotype_index;
   const std::size_t width = block.size();
-  const std::size_t samples = sample_index.size();
-  scratch.genotypes.resize(samples * width);
-  scratch.summaries.assign(width, SiteSummary{});
+  scratch.genotypes.resize(sample_index.size() * width);
+  scratch.summaries.resize(width);
   for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
-    const double* dosages = block.site_dosages(site_idx);
-    SiteSummary& summary = scratch.summaries[site_idx];
-    for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
-      const double value = dosages[sample_index[sample_idx]];
-      if (std::isnan(value)) continue;
-      ++summary.called;
-      summary.sum += value;
-      summary.sum_squares += value * value;
-    }
-    count_alleles(sample_index, block, site_idx, trait.haploid_dosage, summary);
-    const double fill = summary.mean();
-    double* out = scratch.genotypes.data() + site_idx;
-    for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
-      const double value = dosages[sample_index[sample_idx]];
-      out[sample_idx * width] = std::isnan(value) ? fill : value;
-    }
+    scratch.summaries[site_idx] = summary_from_totals(totals_for_samples(trait, block, totals, site_idx),
+                                                      block.sites[site_idx].has_hard_calls);
+  }
+  std::size_t first = 0;
+  for (; first + kTransposeTile <= width; first += kTransposeTile) {
+    copy_tile_sample_major<kTransposeTile>(sample_index, block, scratch.summaries, first, width,
+                                           scratch.genotypes.data());
+  }
+  for (; first < width; ++first) {
+    copy_tile_sample_major<1>(sample_index, block, scratch.summaries, first, width, scratch.genotypes.data());
   }
 }
 
@@ -118,10 +276,7 @@ void fill_site_columns(const TraitContext& trait, const VariantSite& site,
   }
   row.mac = std::min(summary.allele_count, summary.allele_slots - summary.allele_count);
   row.call_rate = static_cast<double>(summary.called) / static_cast<double>(row.n);
-  row.hwe_log_p.reset();
-  if (summary.hom_ref + summary.het + summary.hom_alt > 0) {
-    row.hwe_log_p = hardy_weinberg_exact_log_p(summary.hom_ref, summary.het, summary.hom_alt);
-  }
+  row.hwe_log_p = summary.hwe_log_p;
   row.n_cases.reset();
   if (trait.set.kind == TraitKind::binary) row.n_cases = trait.set.case_count;
 }

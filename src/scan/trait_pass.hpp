@@ -4,6 +4,7 @@
 #pragma once
 
 #include <memory>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -28,6 +29,8 @@ struct TraitContext {
   const VariantSelection* selection = nullptr;  // null: every variant
   QcFloors floors;
   int haploid_dosage = 1;
+  // The genotype samples outside the analysis set, in genotype order.
+  std::vector<std::size_t> excluded_genotype_index;
 };
 
 // Dosage summary of one site over a trait's analysis samples.
@@ -39,9 +42,26 @@ struct SiteSummary {
   double allele_count = 0.0;
   double allele_slots = 0.0;
   std::uint64_t hom_ref = 0, het = 0, hom_alt = 0;  // diploid hard calls
+  std::optional<double> hwe_log_p;  // from the hard calls, for sites that vary
   double mean() const { return called ? sum / static_cast<double>(called) : 0.0; }
   bool varies() const;
 };
+
+// Sums of one site's dosages and calls over a set of samples. All are kept
+// as doubles (the counts exactly), so that samples can be taken out again.
+struct SiteTotals {
+  double called = 0.0, sum = 0.0, squares = 0.0;
+  double slots = 0.0, copies = 0.0;  // alleles over the actual ploidy, from GT
+  double hom_ref = 0.0, het = 0.0, hom_alt = 0.0;
+};
+
+// Every site's totals over all genotype samples: computed once per block,
+// whatever the number of traits.
+struct BlockTotals {
+  std::vector<SiteTotals> sites;
+};
+
+void total_block(const DosageBlock& block, int haploid_dosage, BlockTotals& totals);
 
 // A block's dosages gathered for one sample set: traits with the same
 // analysis samples share it.
@@ -64,7 +84,9 @@ struct TraitBlockOutput {
 
 // Gathers the block's dosages of the trait's analysis samples, replacing a
 // missing dosage by the mean of the called ones, and summarises each site.
-void gather_block(const TraitContext& trait, const DosageBlock& block, GatheredBlock& gathered);
+// `totals` comes from total_block for this block.
+void gather_block(const TraitContext& trait, const DosageBlock& block, const BlockTotals& totals,
+                  GatheredBlock& gathered);
 
 // `gathered` comes from gather_block for this trait's sample set;
 // `chromosomes[site_idx]` is the contig name as it is to be written.
