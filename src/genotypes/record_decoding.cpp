@@ -20,6 +20,7 @@
 #include <string_view>
 #include <vector>
 
+#include "common/vector_clones.hpp"
 #include "genotypes/dosage_rules.hpp"
 #include "genotypes/fast_vcf.hpp"
 #include "genotypes/record_decoder.hpp"
@@ -46,11 +47,12 @@ constexpr std::size_t kSampleChunk = 16;
 // A full diploid call of alleles 0 and 1: both encoded alleles are 2..5,
 // (index + 1) << 1 | phased.
 inline bool is_plain_diploid_pair(const std::uint8_t* pair) {
-  return static_cast<unsigned>(pair[0]) - 2u < 4u && static_cast<unsigned>(pair[1]) - 2u < 4u;
+  return (static_cast<unsigned>(pair[0]) - 2u < 4u) & (static_cast<unsigned>(pair[1]) - 2u < 4u);
 }
 
 inline bool is_plain_dosage(float value) {
-  return value >= 0.0f && static_cast<double>(value) <= diploid_dosage_limit;
+  // `&`, not `&&`: no branch, so the loops over samples vectorise.
+  return (value >= 0.0f) & (static_cast<double>(value) <= diploid_dosage_limit);
 }
 
 enum class Slot { value, missing, vector_end };
@@ -100,6 +102,44 @@ std::string format_value(double value) {
   return buffer;
 }
 
+// The full diploid calls of alleles 0 and 1 ("0/1", "1|1"...) of samples
+// [first, last), as store_hard_call would give them (dosages only when GT is
+// their source, else null). Every sample is stored, so that the loop
+// vectorises; the function returns whether all were such calls, and the
+// caller decodes the others again.
+TAMIS_VECTOR_CLONES
+bool decode_plain_diploid_pairs(const std::uint8_t* __restrict pairs, std::size_t first, std::size_t last,
+                                std::uint8_t* __restrict ploidy, std::int8_t* __restrict calls,
+                                double* __restrict dosages) {
+  int plain_count = 0;
+  for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) {
+    plain_count += is_plain_diploid_pair(pairs + sample_idx * 2);
+    const int copies = static_cast<int>((pairs[sample_idx * 2] >> 1) + (pairs[sample_idx * 2 + 1] >> 1)) - 2;
+    ploidy[sample_idx] = 2;
+    calls[sample_idx] = static_cast<std::int8_t>(copies);
+  }
+  if (dosages) {
+    for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) dosages[sample_idx] = calls[sample_idx];
+  }
+  return plain_count == static_cast<int>(last - first);
+}
+
+// The single DS value of each sample in [first, last), stored whatever it
+// is; returns whether all lie in range, and the caller decodes the others
+// again. The BCF missing and end-of-vector values are NaNs, which fail the
+// range test.
+TAMIS_VECTOR_CLONES
+bool decode_plain_dosages(const std::uint8_t* __restrict values, std::size_t first, std::size_t last,
+                          double* __restrict dosages) {
+  int plain_count = 0;
+  for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) {
+    const float value = read_host_float(values + sample_idx * sizeof(float));
+    plain_count += is_plain_dosage(value);
+    dosages[sample_idx] = value;
+  }
+  return plain_count == static_cast<int>(last - first);
+}
+
 class RecordDecoder {
  public:
   RecordDecoder(const RecordOrigin& origin, bcf1_t* record, std::size_t sample_count,
@@ -116,9 +156,6 @@ class RecordDecoder {
   void append_sites(DosageBlock& out, bool has_hard_calls) const;
   void decode_genotypes(const bcf_fmt_t& format, bool gives_dosages);
   void decode_one_genotype(const bcf_fmt_t& format, std::size_t sample_idx, bool gives_dosages);
-  bool decode_plain_diploid_pairs(const std::uint8_t* pairs, std::size_t first, std::size_t last,
-                                  bool gives_dosages);
-  bool decode_plain_dosages(const std::uint8_t* values, std::size_t first, std::size_t last);
   void decode_values(const bcf_fmt_t& format);
   void check_float_storage(const bcf_fmt_t& format) const;
   int gather_values(const bcf_fmt_t& format, std::size_t sample_idx);
@@ -206,25 +243,6 @@ void RecordDecoder::append_sites(DosageBlock& out, bool has_hard_calls) const {
   }
 }
 
-// The full diploid calls of alleles 0 and 1 ("0/1", "1|1"...) of samples
-// [first, last), as store_hard_call would give them; the others must be
-// decoded again by the caller. Returns whether every one of those samples had such a call.
-bool RecordDecoder::decode_plain_diploid_pairs(const std::uint8_t* pairs, std::size_t first, std::size_t last,
-                                               bool gives_dosages) {
-  bool all_plain = true;
-  for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) {
-    const bool plain = is_plain_diploid_pair(pairs + sample_idx * 2);
-    all_plain &= plain;
-    const int copies = static_cast<int>((pairs[sample_idx * 2] >> 1) + (pairs[sample_idx * 2 + 1] >> 1)) - 2;
-    // Stored whatever the call, so that the loop vectorises: the caller
-    // overwrites the samples that are not plain.
-    columns_.ploidy_of(1, sample_idx) = 2;
-    columns_.diploid_call(1, sample_idx) = static_cast<std::int8_t>(copies);
-    if (gives_dosages) columns_.dosage(1, sample_idx) = copies;
-  }
-  return all_plain;
-}
-
 // GT: the hard calls, and when they are the dosage source, the dosages. The
 // call's ploidy is its length before htslib's end-of-vector padding, so
 // haploid and diploid calls can share a record.
@@ -239,7 +257,10 @@ void RecordDecoder::decode_genotypes(const bcf_fmt_t& format, bool gives_dosages
   const bool plain_pairs = format.type == BCF_BT_INT8 && format.n == 2 && allele_count_ == 2;
   for (std::size_t chunk = 0; chunk < sample_count_; chunk += kSampleChunk) {
     const std::size_t chunk_end = std::min(sample_count_, chunk + kSampleChunk);
-    if (plain_pairs && decode_plain_diploid_pairs(format.p, chunk, chunk_end, gives_dosages)) continue;
+    if (plain_pairs && decode_plain_diploid_pairs(format.p, chunk, chunk_end, columns_.ploidy, columns_.diploid_calls,
+                                                  gives_dosages ? columns_.dosages : nullptr)) {
+      continue;
+    }
     for (std::size_t sample_idx = chunk; sample_idx < chunk_end; ++sample_idx) {
       if (plain_pairs && is_plain_diploid_pair(format.p + sample_idx * 2)) continue;  // done above
       decode_one_genotype(format, sample_idx, gives_dosages);
@@ -316,7 +337,7 @@ void RecordDecoder::decode_values(const bcf_fmt_t& format) {
   const bool single_dosages = !probabilities && format.n == 1 && allele_count_ == 2;
   for (std::size_t chunk = 0; chunk < sample_count_; chunk += kSampleChunk) {
     const std::size_t chunk_end = std::min(sample_count_, chunk + kSampleChunk);
-    if (single_dosages && decode_plain_dosages(format.p, chunk, chunk_end)) continue;
+    if (single_dosages && decode_plain_dosages(format.p, chunk, chunk_end, columns_.dosages)) continue;
     for (std::size_t sample_idx = chunk; sample_idx < chunk_end; ++sample_idx) {
       if (single_dosages && is_plain_dosage(read_host_float(format.p + sample_idx * sizeof(float)))) continue;
       const int given = gather_values(format, sample_idx);
@@ -326,20 +347,6 @@ void RecordDecoder::decode_values(const bcf_fmt_t& format) {
       if (outcome.kind != SampleOutcome::ok) report_rejected(sample_idx, outcome, given);
     }
   }
-}
-
-// Stores the single DS value of each sample in [first, last) and returns
-// whether all lie in range; the others must be decoded again by the caller. The BCF missing and end-of-vector
-// values are NaNs, which fail the range test.
-bool RecordDecoder::decode_plain_dosages(const std::uint8_t* values, std::size_t first, std::size_t last) {
-  bool all_plain = true;
-  for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) {
-    const float value = read_host_float(values + sample_idx * sizeof(float));
-    const bool plain = is_plain_dosage(value);
-    all_plain &= plain;
-    columns_.dosage(1, sample_idx) = value;  // the caller overwrites the samples that are not plain
-  }
-  return all_plain;
 }
 
 void RecordDecoder::report_rejected(std::size_t sample_idx, const SampleOutcome& outcome,

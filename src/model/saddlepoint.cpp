@@ -162,24 +162,34 @@ Cumulants evaluate_slope_and_curvature(const AdjustedTerms& terms, double t) {
   return out;
 }
 
-// sum_i [ln(1 - mu_i + mu_i e^s) - s mu_i], s = t gt_i: the terms' part of
-// K(t), in fixed partial sums like sum_slope_and_curvature.
+// One term of K(t): ln(1 - mu + mu e^s) - s mu, the logarithm written so
+// that it keeps its precision for any s (as in the file comment).
+TAMIS_ALWAYS_INLINE double log_mgf_term(double g, double m, double m_bar, double t) {
+  const double s = t * g;
+  const bool below = s <= 0.0;
+  const double e = expm1_nonpositive(below ? s : -s);
+  const double log_mgf = log1p_nonpositive((below ? m : m_bar) * e) + (below ? 0.0 : s);
+  return log_mgf - s * m;
+}
+
+// The terms' part of K(t), in fixed partial sums like sum_slope_and_curvature.
 TAMIS_VECTOR_CLONES
 double sum_log_mgf(const double* genotype, const double* mu, const double* one_minus_mu, std::size_t count,
                    double t) {
   double lanes[kTermLanes] = {};
   double terms[kTermLanes];
   for (std::size_t group = 0; group < count; group += kTermLanes) {
-    const std::size_t used = std::min(kTermLanes, count - group);
-    for (std::size_t lane = 0; lane < kTermLanes; ++lane) {
-      const std::size_t term_idx = group + (lane < used ? lane : 0);
-      const double s = t * genotype[term_idx];
-      const double m = mu[term_idx];
-      const bool below = s <= 0.0;
-      const double e = expm1_nonpositive(below ? s : -s);
-      // ln(1 - mu + mu e^s), written so that it keeps its precision for any s.
-      const double log_mgf = below ? log1p_nonpositive(m * e) : s + log1p_nonpositive(one_minus_mu[term_idx] * e);
-      terms[lane] = lane < used ? log_mgf - s * m : 0.0;
+    const std::size_t lanes_used = std::min(kTermLanes, count - group);
+    if (lanes_used == kTermLanes) {
+      for (std::size_t lane = 0; lane < kTermLanes; ++lane) {
+        terms[lane] = log_mgf_term(genotype[group + lane], mu[group + lane], one_minus_mu[group + lane], t);
+      }
+    } else {
+      for (std::size_t lane = 0; lane < kTermLanes; ++lane) {
+        terms[lane] = lane < lanes_used
+                          ? log_mgf_term(genotype[group + lane], mu[group + lane], one_minus_mu[group + lane], t)
+                          : 0.0;
+      }
     }
     for (std::size_t lane = 0; lane < kTermLanes; ++lane) lanes[lane] += terms[lane];
   }

