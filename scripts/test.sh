@@ -19,18 +19,25 @@ cmake -S . -B "$build" -DCMAKE_BUILD_TYPE=Release
 cmake --build "$build" -j "$jobs"
 ctest --test-dir "$build" --output-on-failure -j "$jobs" || failed+=("tests")
 
-# The sanitized suite checks memory errors and undefined behaviour; it leaves
-# out the R reference check and the 2-million-row rendering test, which check
-# numbers and speed that the plain build has already checked. Leak detection
-# is off: the leaks it reports are on error exits (an exception through the
-# TBB pipeline, htslib's thread pool after a failed read), where the process
-# ends at once; they are listed in the issue notes to be fixed.
+# The sanitized suite checks memory errors, undefined behaviour and leaks; it
+# leaves out the R reference check and the 2-million-row rendering test, which
+# check numbers and speed that the plain build has already checked. A few
+# tests reach paths where a library itself loses memory (htslib 1.16 after a
+# failed threaded read or a failed final write, fontconfig's caches behind a
+# report): they run apart, with tests/lsan_suppressions.txt, because those
+# entries cover whole libraries and would hide a leak of ours anywhere else.
 cmake -S . -B "$asan_build" -DTAMIS_SANITIZE=ON -DCMAKE_BUILD_TYPE=RelWithDebInfo \
   -DCMAKE_CXX_FLAGS_RELWITHDEBINFO="-O1 -g1" -DCMAKE_C_FLAGS_RELWITHDEBINFO="-O1 -g1"
 cmake --build "$asan_build" -j "$jobs"
-ASAN_OPTIONS=detect_leaks=0 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
-  ctest --test-dir "$asan_build" --output-on-failure -j "$jobs" -E '^(reference_r_stats|LargeReport\..*)$' ||
+library_leak_tests='InputErrors\.(CorruptBgzfBlockGivesThePositionReached|DamagedBgzfIsReportedAsDamageNotAsABadRecord)|InterruptedScan\.FullDisk.*|workflow_snakemake'
+ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
+  ctest --test-dir "$asan_build" --output-on-failure -j "$jobs" \
+  -E "^(reference_r_stats|LargeReport\..*|$library_leak_tests)\$" ||
   failed+=("sanitizer tests")
+ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
+  LSAN_OPTIONS="suppressions=$PWD/tests/lsan_suppressions.txt:print_suppressions=0" \
+  ctest --test-dir "$asan_build" --output-on-failure -j "$jobs" -R "^($library_leak_tests)\$" ||
+  failed+=("sanitizer tests with library leaks suppressed")
 
 clang_cxx=$(command -v clang++ || command -v clang++-14 || true)
 clang_c=$(command -v clang || command -v clang-14 || true)

@@ -527,6 +527,63 @@ TEST(ResultsReader, CutShortCompressedFileIsAnError) {
   EXPECT_NE(error_text_of(dir + "/cut.trait.tsv.gz").find("damaged or cut short"), std::string::npos);
 }
 
+// A NUL byte once cut a line short unnoticed (the line reader saw a C string);
+// now it is damage, named with the file, the line and the byte.
+TEST(ResultsReader, NulByteInsideALineNamesFileLineAndByte) {
+  const std::string dir = make_temp_dir("report_reader_nul_inside");
+  std::string text = tamis::result_header_line();
+  tamis::append_result_row(make_row("1", 100, -1, 0.5), text);
+  std::string line;
+  tamis::append_result_row(make_row("1", 200, -1, 0.5), line);
+  const std::size_t nul_at = line.find("\t0.125\t") + 4;  // after "\t0.1"
+  line.insert(nul_at, 1, '\0');
+  text += line;
+  tamis::append_result_row(make_row("1", 300, -1, 0.5), text);
+  tamis::testing::write_text_file(dir + "/nul.trait.tsv", text);
+  const std::string message = error_text_of(dir + "/nul.trait.tsv");
+  EXPECT_NE(message.find(dir + "/nul.trait.tsv, line 3, byte " + std::to_string(nul_at + 1) + ":"),
+            std::string::npos)
+      << message;
+  EXPECT_NE(message.find("NUL byte"), std::string::npos) << message;
+  EXPECT_NE(message.find("fix:"), std::string::npos) << message;
+}
+
+// Before the line end of the last line, where a C-string reader lost nothing
+// it could see and took the damaged file as whole; compressed, as a scan writes it.
+TEST(ResultsReader, NulByteEndingTheLastLineIsAnError) {
+  const std::string dir = make_temp_dir("report_reader_nul_last");
+  std::string row;
+  tamis::append_result_row(make_row("1", 100, -1, 0.5), row);
+  const std::size_t nul_at = row.size() - 1;  // where the '\n' is
+  row.insert(nul_at, 1, '\0');
+  const std::string path = dir + "/nul.trait.tsv.gz";
+  tamis::BgzfTextFile file(path);
+  file.write(tamis::result_header_line());
+  file.write(row);
+  file.commit(tamis::IndexKind::none);
+  const std::string message = error_text_of(path);
+  EXPECT_NE(message.find(path + ", line 2, byte " + std::to_string(nul_at + 1) + ":"), std::string::npos)
+      << message;
+}
+
+// Lines longer than one read of decompressed data are still read whole.
+TEST(ResultsReader, LineLongerThanOneReadIsReadWhole) {
+  const std::string dir = make_temp_dir("report_reader_long_line");
+  tamis::ResultRow long_row = make_row("1", 100, -1, 0.5);
+  long_row.other_allele = std::string(200000, 'C');
+  std::string text = tamis::result_header_line();
+  tamis::append_result_row(long_row, text);
+  tamis::append_result_row(make_row("1", 200, -1, 0.5), text);
+  tamis::testing::write_text_file(dir + "/long.trait.tsv", text);
+  tamis::ResultsReader reader(dir + "/long.trait.tsv", {"other_allele", "base_pair_location"});
+  ASSERT_TRUE(reader.next_row());
+  EXPECT_EQ(reader.field(reader.column_index("other_allele")).size(), 200000u);
+  ASSERT_TRUE(reader.next_row());
+  EXPECT_EQ(reader.integer(reader.column_index("base_pair_location")), 200);
+  EXPECT_FALSE(reader.next_row());
+  EXPECT_EQ(reader.line_number(), 3u);
+}
+
 TEST(ResultsReader, TraitFromSidecarElseFileName) {
   const std::string dir = make_temp_dir("report_provenance");
   tamis::testing::write_text_file(dir + "/run.v2.lung.capacity.tsv.gz-meta.yaml",

@@ -27,7 +27,8 @@ class ResultsReader {
   ResultsReader& operator=(const ResultsReader&) = delete;
 
   // Moves to the next data line; false at the end of the file. Throws when a
-  // line has the wrong number of fields or the file is damaged.
+  // line has the wrong number of fields or holds a NUL byte, or the file is
+  // damaged.
   bool next_row();
 
   // Where a column sits in the header; throws (internal) for a column that
@@ -62,6 +63,7 @@ class ResultsReader {
   std::size_t line_number_ = 0;
 
   bool read_line();
+  void check_no_nul_byte() const;
   void split_fields();
   void read_header();
   [[noreturn]] void throw_bad_field(std::size_t column, const std::string& expected) const;

@@ -110,31 +110,25 @@ void throw_missing_index(const std::string& path, htsFile* handle, const std::st
 
 IndexedFile::IndexedFile(const std::string& path, const std::string& purpose) {
   errno = 0;
-  handle = hts_open(path.c_str(), "r");
+  handle.reset(hts_open(path.c_str(), "r"));
   if (!handle) {
     throw Error(ExitCode::genotype_input, path,
                 std::string("cannot open the genotype file") +
                     (errno ? std::string(" (") + std::strerror(errno) + ")" : std::string()),
                 "check the path and that the file is readable");
   }
-  const htsFormat* format = hts_get_format(handle);
+  const htsFormat* format = hts_get_format(handle.get());
   if (format->format != vcf && format->format != bcf) {
     throw Error(ExitCode::genotype_input, path, "not a VCF or BCF file",
                 "give a bgzip-compressed VCF or BCF file with its index");
   }
-  header = bcf_hdr_read(handle);
+  header.reset(bcf_hdr_read(handle.get()));
   if (!header) {
     throw Error(ExitCode::genotype_input, path + ", header", "htslib could not parse the VCF header",
                 "check the ## lines and the #CHROM line, e.g. with `bcftools view -h`");
   }
-  index = FileIndex::load(path, handle, header);
-  if (!index) throw_missing_index(path, handle, purpose);
-}
-
-IndexedFile::~IndexedFile() {
-  index.reset();
-  if (header) bcf_hdr_destroy(header);
-  if (handle) hts_close(handle);
+  index = FileIndex::load(path, handle.get(), header.get());
+  if (!index) throw_missing_index(path, handle.get(), purpose);
 }
 
 std::vector<GenomicRegion> merge_regions(const std::vector<GenomicRegion>& regions) {

@@ -29,6 +29,16 @@ struct IteratorDeleter {
 };
 using IteratorPtr = std::unique_ptr<hts_itr_t, IteratorDeleter>;
 
+struct HtsFileCloser {
+  void operator()(htsFile* handle) const { hts_close(handle); }
+};
+using HtsFilePtr = std::unique_ptr<htsFile, HtsFileCloser>;
+
+struct VcfHeaderDeleter {
+  void operator()(bcf_hdr_t* header) const { bcf_hdr_destroy(header); }
+};
+using VcfHeaderPtr = std::unique_ptr<bcf_hdr_t, VcfHeaderDeleter>;
+
 // Queries end here at the latest: far beyond any contig (17 Tb), and safe
 // for htslib's bin arithmetic.
 constexpr std::int64_t largest_query_end = std::int64_t(1) << 44;
@@ -72,15 +82,15 @@ class FileIndex {
                                       const std::string& purpose);
 
 // Opens `path` only to load its index (and header); used by the shard planner.
+// The members own what they hold, so a constructor that throws half way (no
+// index, a bad header) still closes the file: no destructor runs then.
+// Declared in the order they are made, so they are freed index first, file last.
 struct IndexedFile {
-  htsFile* handle = nullptr;
-  bcf_hdr_t* header = nullptr;
+  HtsFilePtr handle;
+  VcfHeaderPtr header;
   std::unique_ptr<FileIndex> index;
 
   explicit IndexedFile(const std::string& path, const std::string& purpose);
-  ~IndexedFile();
-  IndexedFile(const IndexedFile&) = delete;
-  IndexedFile& operator=(const IndexedFile&) = delete;
 };
 
 // Overlapping or touching regions of one contig become one; contigs keep the

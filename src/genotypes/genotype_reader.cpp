@@ -65,9 +65,12 @@ std::vector<std::string> split_on(const std::string& text, char separator) {
 
 // The raw header text, read without htslib's header parser, which refuses
 // some headers (duplicate sample names) without saying where the problem is.
+// The handle is owned so that a throw on the way (an allocation for a damaged
+// length) still closes the file.
 std::string read_raw_header_text(const std::string& path) {
-  htsFile* file = hts_open(path.c_str(), "r");
-  if (!file) return "";
+  const genotype_detail::HtsFilePtr owned(hts_open(path.c_str(), "r"));
+  if (!owned) return "";
+  htsFile* file = owned.get();
   std::string text;
   const htsFormat* format = hts_get_format(file);
   if (format->format == vcf) {
@@ -82,13 +85,16 @@ std::string read_raw_header_text(const std::string& path) {
     uint8_t prefix[9];
     if (bgzf_read(file->fp.bgzf, prefix, sizeof prefix) == sizeof prefix) {
       uint32_t length = le_to_u32(prefix + 5);
+      // A damaged length would have us allocate up to 4 GiB; no real header
+      // comes near 256 MiB, and htslib's own parser then reports the damage.
+      constexpr uint32_t kLongestHeader = uint32_t{1} << 28;
+      if (length > kLongestHeader) return "";
       std::string buffer(length, '\0');
       if (bgzf_read(file->fp.bgzf, buffer.data(), length) == static_cast<ssize_t>(length)) {
         text = buffer.c_str();
       }
     }
   }
-  hts_close(file);
   return text;
 }
 

@@ -174,7 +174,8 @@ std::vector<ContigPlan> profile_genome(const std::vector<std::string>& paths) {
   for (const std::string& path : paths) {
     IndexedFile file(path, "planning shards");
     const FileIndex& index = *file.index;
-    const ContigProfiler profiler(index, file.header, estimate_compression_ratio(file.handle));
+    const ContigProfiler profiler(index, file.header.get(),
+                                  estimate_compression_ratio(file.handle.get()));
     // Contigs in the order their data lies in the file, not in id order.
     std::vector<std::pair<std::uint64_t, const genotype_detail::IndexedContig*>> present;
     for (const genotype_detail::IndexedContig& contig : index.contigs()) {

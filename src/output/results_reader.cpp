@@ -41,10 +41,47 @@ std::string joined(const std::vector<std::string>& names) {
 struct ResultsReader::Impl {
   gzFile file = nullptr;
   std::string line;
+  // Decompressed bytes not yet handed out as lines: chunk[chunk_next, chunk_end).
+  // Lines are cut here rather than by gzgets, whose C string cannot tell a
+  // NUL byte inside a line from the end of the text read.
   std::vector<char> chunk = std::vector<char>(read_chunk_bytes);
+  std::size_t chunk_next = 0;
+  std::size_t chunk_end = 0;
 
   ~Impl() {
     if (file) gzclose(file);
+  }
+
+  // Decompresses the next bytes into the chunk; false at the end of the data.
+  bool refill_chunk(const std::string& path, std::size_t lines_read) {
+    const int got = gzread(file, chunk.data(), static_cast<unsigned>(chunk.size()));
+    throw_if_damaged(path, lines_read);
+    chunk_next = 0;
+    chunk_end = got > 0 ? static_cast<std::size_t>(got) : 0;
+    return chunk_end > 0;
+  }
+
+  // Moves the chunk's bytes up to and including the next line end onto
+  // `line`; true when the line end was among them.
+  bool take_line_piece() {
+    const char* start = chunk.data() + chunk_next;
+    const std::size_t available = chunk_end - chunk_next;
+    const char* line_end = static_cast<const char*>(std::memchr(start, '\n', available));
+    const std::size_t taken = line_end ? static_cast<std::size_t>(line_end - start) + 1 : available;
+    line.append(start, taken);
+    chunk_next += taken;
+    return line_end != nullptr;
+  }
+
+  // zlib reports a cut-short stream (Z_BUF_ERROR) like damaged data; both
+  // mean the file cannot be trusted past the lines already read.
+  void throw_if_damaged(const std::string& path, std::size_t lines_read) const {
+    int error_number = Z_OK;
+    const char* message = gzerror(file, &error_number);
+    if (error_number == Z_OK || error_number == Z_STREAM_END) return;
+    throw Error(ExitCode::results_input, path + ", after line " + std::to_string(lines_read),
+                std::string("the compressed data is damaged or cut short (") + message + ")",
+                "the file may be incomplete; rerun the scan that wrote it or copy it again");
   }
 };
 
@@ -70,29 +107,32 @@ std::string ResultsReader::place() const {
 
 // Reads one line into impl_->line without its line ending; false at the end.
 bool ResultsReader::read_line() {
-  std::string& line = impl_->line;
-  line.clear();
+  Impl& impl = *impl_;
+  impl.line.clear();
   bool read_any = false;
   while (true) {
-    char* got = gzgets(impl_->file, impl_->chunk.data(), static_cast<int>(impl_->chunk.size()));
-    if (!got) break;
+    if (impl.chunk_next == impl.chunk_end && !impl.refill_chunk(path_, line_number_)) break;
     read_any = true;
-    std::size_t length = std::strlen(got);
-    line.append(got, length);
-    if (length > 0 && got[length - 1] == '\n') break;
-  }
-  int error_number = Z_OK;
-  const char* message = gzerror(impl_->file, &error_number);
-  if (error_number != Z_OK && error_number != Z_STREAM_END) {
-    throw Error(ExitCode::results_input, path_ + ", after line " + std::to_string(line_number_),
-                std::string("the compressed data is damaged or cut short (") + message + ")",
-                "the file may be incomplete; rerun the scan that wrote it or copy it again");
+    if (impl.take_line_piece()) break;
   }
   if (!read_any) return false;
   ++line_number_;
+  std::string& line = impl.line;
   if (!line.empty() && line.back() == '\n') line.pop_back();
   if (!line.empty() && line.back() == '\r') line.pop_back();
+  check_no_nul_byte();
   return true;
+}
+
+// A results file is text: a NUL byte means damage (a crash that left
+// zero-filled blocks, a bad copy), and a field handed on as a C string would
+// be cut short at it without a word.
+void ResultsReader::check_no_nul_byte() const {
+  const std::size_t nul = impl_->line.find('\0');
+  if (nul == std::string::npos) return;
+  throw Error(ExitCode::results_input, place() + ", byte " + std::to_string(nul + 1),
+              "found a NUL byte where a results file holds only text",
+              "the file is damaged; rerun the scan that wrote it or copy it again");
 }
 
 void ResultsReader::split_fields() {
