@@ -102,42 +102,68 @@ std::string format_value(double value) {
   return buffer;
 }
 
-// The full diploid calls of alleles 0 and 1 ("0/1", "1|1"...) of samples
-// [first, last), as store_hard_call would give them (dosages only when GT is
-// their source, else null). Every sample is stored, so that the loop
-// vectorises; the function returns whether all were such calls, and the
-// caller decodes the others again.
+// The full diploid calls of alleles 0 and 1 ("0/1", "1|1"...) of every
+// sample, as store_hard_call would give them (dosages only when GT is their
+// source, else null). Every sample is stored, so that the loop vectorises;
+// chunk_plain[c] says whether all samples of chunk c had such a call, and the
+// caller decodes the others of a chunk that did not again.
 TAMIS_VECTOR_CLONES
-bool decode_plain_diploid_pairs(const std::uint8_t* __restrict pairs, std::size_t first, std::size_t last,
+void decode_plain_diploid_pairs(const std::uint8_t* __restrict pairs, std::size_t samples,
                                 std::uint8_t* __restrict ploidy, std::int8_t* __restrict calls,
-                                double* __restrict dosages) {
-  int plain_count = 0;
-  for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) {
-    plain_count += is_plain_diploid_pair(pairs + sample_idx * 2);
-    const int copies = static_cast<int>((pairs[sample_idx * 2] >> 1) + (pairs[sample_idx * 2 + 1] >> 1)) - 2;
-    ploidy[sample_idx] = 2;
-    calls[sample_idx] = static_cast<std::int8_t>(copies);
+                                double* __restrict dosages, std::uint8_t* __restrict chunk_plain) {
+  static_assert(kSampleChunk == 16, "a chunk is 16 allele pairs, one 32-byte vector");
+  typedef std::uint8_t PairBytes __attribute__((vector_size(32)));
+  typedef std::uint8_t SampleBytes __attribute__((vector_size(16)));
+  const std::size_t full_chunks = samples / kSampleChunk;
+  for (std::size_t chunk = 0; chunk < full_chunks; ++chunk) {
+    const std::size_t first = chunk * kSampleChunk;
+    PairBytes raw;
+    std::memcpy(&raw, pairs + first * 2, sizeof raw);
+    const SampleBytes first_alleles =
+        __builtin_shufflevector(raw, raw, 0, 2, 4, 6, 8, 10, 12, 14, 16, 18, 20, 22, 24, 26, 28, 30);
+    const SampleBytes second_alleles =
+        __builtin_shufflevector(raw, raw, 1, 3, 5, 7, 9, 11, 13, 15, 17, 19, 21, 23, 25, 27, 29, 31);
+    // Encoded alleles 0 and 1 are 2..5; the unsigned difference wraps below 2.
+    const auto plain = ((first_alleles - 2) < 4) & ((second_alleles - 2) < 4);
+    const SampleBytes copies = (first_alleles >> 1) + (second_alleles >> 1) - 2;
+    std::memcpy(calls + first, &copies, sizeof copies);
+    std::memset(ploidy + first, 2, kSampleChunk);
+    std::uint64_t plain_words[2];
+    std::memcpy(plain_words, &plain, sizeof plain_words);
+    chunk_plain[chunk] = (plain_words[0] & plain_words[1]) == ~std::uint64_t{0};
+  }
+  if (full_chunks * kSampleChunk < samples) {  // the last, shorter chunk
+    std::size_t plain_count = 0;
+    for (std::size_t sample_idx = full_chunks * kSampleChunk; sample_idx < samples; ++sample_idx) {
+      plain_count += is_plain_diploid_pair(pairs + sample_idx * 2);
+      ploidy[sample_idx] = 2;
+      calls[sample_idx] =
+          static_cast<std::int8_t>(static_cast<int>((pairs[sample_idx * 2] >> 1) + (pairs[sample_idx * 2 + 1] >> 1)) - 2);
+    }
+    chunk_plain[full_chunks] = plain_count == samples - full_chunks * kSampleChunk;
   }
   if (dosages) {
-    for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) dosages[sample_idx] = calls[sample_idx];
+    for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) dosages[sample_idx] = calls[sample_idx];
   }
-  return plain_count == static_cast<int>(last - first);
 }
 
-// The single DS value of each sample in [first, last), stored whatever it
-// is; returns whether all lie in range, and the caller decodes the others
-// again. The BCF missing and end-of-vector values are NaNs, which fail the
-// range test.
+// The single DS value of every sample, stored whatever it is; chunk_plain[c]
+// says whether all of chunk c lie in range, and the caller decodes the others
+// of a chunk that did not again. The BCF missing and end-of-vector values are
+// NaNs, which fail the range test.
 TAMIS_VECTOR_CLONES
-bool decode_plain_dosages(const std::uint8_t* __restrict values, std::size_t first, std::size_t last,
-                          double* __restrict dosages) {
-  int plain_count = 0;
-  for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) {
-    const float value = read_host_float(values + sample_idx * sizeof(float));
-    plain_count += is_plain_dosage(value);
-    dosages[sample_idx] = value;
+void decode_plain_dosages(const std::uint8_t* __restrict values, std::size_t samples, double* __restrict dosages,
+                          std::uint8_t* __restrict chunk_plain) {
+  for (std::size_t chunk = 0; chunk * kSampleChunk < samples; ++chunk) {
+    const std::size_t first = chunk * kSampleChunk, last = std::min(samples, first + kSampleChunk);
+    std::size_t plain_count = 0;
+    for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) {
+      const float value = read_host_float(values + sample_idx * sizeof(float));
+      plain_count += is_plain_dosage(value);
+      dosages[sample_idx] = value;
+    }
+    chunk_plain[chunk] = plain_count == last - first;
   }
-  return plain_count == static_cast<int>(last - first);
 }
 
 class RecordDecoder {
@@ -174,6 +200,7 @@ class RecordDecoder {
   SiteColumns columns_;
   std::vector<int> call_alleles_;  // one sample's called alleles, reused
   std::vector<double> values_;     // one sample's DS or GP values, NaN when missing
+  std::vector<std::uint8_t> chunk_plain_;  // per chunk of samples: all decoded by the fast pass
 };
 
 void RecordDecoder::fail(const std::string& what, const std::string& fix) const {
@@ -255,13 +282,15 @@ void RecordDecoder::decode_genotypes(const bcf_fmt_t& format, bool gives_dosages
   // chunk of such samples is decoded in one branch-free pass, and only the
   // samples of a chunk that it cannot take are read slot by slot.
   const bool plain_pairs = format.type == BCF_BT_INT8 && format.n == 2 && allele_count_ == 2;
-  for (std::size_t chunk = 0; chunk < sample_count_; chunk += kSampleChunk) {
-    const std::size_t chunk_end = std::min(sample_count_, chunk + kSampleChunk);
-    if (plain_pairs && decode_plain_diploid_pairs(format.p, chunk, chunk_end, columns_.ploidy, columns_.diploid_calls,
-                                                  gives_dosages ? columns_.dosages : nullptr)) {
-      continue;
-    }
-    for (std::size_t sample_idx = chunk; sample_idx < chunk_end; ++sample_idx) {
+  chunk_plain_.assign((sample_count_ + kSampleChunk - 1) / kSampleChunk, 0);
+  if (plain_pairs) {
+    decode_plain_diploid_pairs(format.p, sample_count_, columns_.ploidy, columns_.diploid_calls,
+                               gives_dosages ? columns_.dosages : nullptr, chunk_plain_.data());
+  }
+  for (std::size_t chunk = 0; chunk < chunk_plain_.size(); ++chunk) {
+    if (chunk_plain_[chunk]) continue;
+    const std::size_t chunk_end = std::min(sample_count_, (chunk + 1) * kSampleChunk);
+    for (std::size_t sample_idx = chunk * kSampleChunk; sample_idx < chunk_end; ++sample_idx) {
       if (plain_pairs && is_plain_diploid_pair(format.p + sample_idx * 2)) continue;  // done above
       decode_one_genotype(format, sample_idx, gives_dosages);
     }
@@ -335,10 +364,12 @@ void RecordDecoder::decode_values(const bcf_fmt_t& format) {
   // One DS value per sample on a biallelic record: the plain in-range values
   // are stored in one pass; the rest (missing, padding, rejected) goes below.
   const bool single_dosages = !probabilities && format.n == 1 && allele_count_ == 2;
-  for (std::size_t chunk = 0; chunk < sample_count_; chunk += kSampleChunk) {
-    const std::size_t chunk_end = std::min(sample_count_, chunk + kSampleChunk);
-    if (single_dosages && decode_plain_dosages(format.p, chunk, chunk_end, columns_.dosages)) continue;
-    for (std::size_t sample_idx = chunk; sample_idx < chunk_end; ++sample_idx) {
+  chunk_plain_.assign((sample_count_ + kSampleChunk - 1) / kSampleChunk, 0);
+  if (single_dosages) decode_plain_dosages(format.p, sample_count_, columns_.dosages, chunk_plain_.data());
+  for (std::size_t chunk = 0; chunk < chunk_plain_.size(); ++chunk) {
+    if (chunk_plain_[chunk]) continue;
+    const std::size_t chunk_end = std::min(sample_count_, (chunk + 1) * kSampleChunk);
+    for (std::size_t sample_idx = chunk * kSampleChunk; sample_idx < chunk_end; ++sample_idx) {
       if (single_dosages && is_plain_dosage(read_host_float(format.p + sample_idx * sizeof(float)))) continue;
       const int given = gather_values(format, sample_idx);
       const SampleOutcome outcome =

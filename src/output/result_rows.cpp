@@ -1,4 +1,5 @@
 // GWAS-SSF result rows: column order, number formatting, chromosome codes.
+#include <charconv>
 #include <cmath>
 #include <cstdio>
 #include <string>
@@ -20,15 +21,23 @@ void append_text(std::string& out, const std::string& text) {
   out += text.empty() ? missing_text : text;
 }
 
+// Nine significant digits, exactly as printf's "%.9g" writes them (the
+// standard defines std::to_chars by it), at a fraction of its cost: a scan
+// formats a dozen numbers for every variant.
+void append_nine_digits(std::string& out, double value) {
+  char buffer[40];
+  const std::to_chars_result written =
+      std::to_chars(buffer, buffer + sizeof buffer, value, std::chars_format::general, 9);
+  out.append(buffer, written.ptr);
+}
+
 // GWAS-SSF writes any value that is not a finite number as "#NA".
 void append_number(std::string& out, double value) {
   if (!std::isfinite(value)) {
     out += missing_text;
     return;
   }
-  char buffer[40];
-  std::snprintf(buffer, sizeof buffer, "%.9g", value);
-  out += buffer;
+  append_nine_digits(out, value);
 }
 
 void append_optional_number(std::string& out, const std::optional<double>& value) {
@@ -95,8 +104,9 @@ std::string format_p_value(double log_p) {
   if (log_p >= 0.0) return "1";
   char buffer[48];
   if (log_p > smallest_direct_log_p) {
-    std::snprintf(buffer, sizeof buffer, "%.9g", std::exp(log_p));
-    return buffer;
+    std::string text;
+    append_nine_digits(text, std::exp(log_p));
+    return text;
   }
   const double log10_p = log_p / std::log(10.0);
   double exponent = std::floor(log10_p);

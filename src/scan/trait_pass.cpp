@@ -26,6 +26,16 @@ TAMIS_ALWAYS_INLINE Lanes load_lanes(const double* values) {
   std::memcpy(&lanes, values, sizeof lanes);
   return lanes;
 }
+// Four bytes (unsigned or signed) as four doubles, through 32-bit integers,
+// which every vector unit converts in one step.
+template <typename Byte>
+TAMIS_ALWAYS_INLINE Lanes bytes_to_lanes(const Byte* bytes) {
+  typedef Byte FourBytes __attribute__((vector_size(4 * sizeof(Byte))));
+  typedef std::int32_t FourInts __attribute__((vector_size(4 * sizeof(std::int32_t))));
+  FourBytes packed;
+  std::memcpy(&packed, bytes, sizeof packed);
+  return __builtin_convertvector(__builtin_convertvector(packed, FourInts), Lanes);
+}
 TAMIS_ALWAYS_INLINE Lanes where(LaneMask mask, Lanes values) { return (Lanes)((LaneMask)values & mask); }
 TAMIS_ALWAYS_INLINE double lane_total(Lanes lanes) { return ((lanes[0] + lanes[1]) + lanes[2]) + lanes[3]; }
 
@@ -75,39 +85,41 @@ void total_dosages(const double* dosages, std::size_t samples, SiteTotals& total
 TAMIS_VECTOR_CLONES
 void total_hard_calls(const double* dosages, const std::uint8_t* ploidy, const std::int8_t* calls,
                       std::size_t samples, bool scaled_haploid, SiteTotals& totals) {
-  Lanes called = {}, sum = {}, squares = {}, slots = {}, copies_sum = {}, hom_ref = {}, het = {}, hom_alt = {};
-  const Lanes ones = {1.0, 1.0, 1.0, 1.0}, twos = {2.0, 2.0, 2.0, 2.0};
-  const Lanes haploid_weight = scaled_haploid ? Lanes{0.5, 0.5, 0.5, 0.5} : ones;
+  Lanes called = {}, sum = {}, squares = {}, slots = {}, copies_sum = {};
+  const Lanes ones = {1.0, 1.0, 1.0, 1.0}, twos = {2.0, 2.0, 2.0, 2.0}, halves = {0.5, 0.5, 0.5, 0.5};
   const std::size_t grouped = samples / kLaneCount * kLaneCount;
   for (std::size_t sample = 0; sample < grouped; sample += kLaneCount) {
     const Lanes values = load_lanes(dosages + sample);
-    const Lanes sample_ploidy = {static_cast<double>(ploidy[sample]), static_cast<double>(ploidy[sample + 1]),
-                                 static_cast<double>(ploidy[sample + 2]), static_cast<double>(ploidy[sample + 3])};
-    const Lanes call = {static_cast<double>(calls[sample]), static_cast<double>(calls[sample + 1]),
-                        static_cast<double>(calls[sample + 2]), static_cast<double>(calls[sample + 3])};
+    const Lanes sample_ploidy = bytes_to_lanes(ploidy + sample);
     const LaneMask is_called = values == values;
     const Lanes taken = where(is_called, values);
     const LaneMask has_ploidy = sample_ploidy > 0.0;
     const Lanes copies = where(has_ploidy, sample_ploidy) + where(~has_ploidy, twos);
-    const LaneMask haploid = copies == 1.0;
-    const Lanes weight = where(haploid, haploid_weight) + where(~haploid, ones);
     called += where(is_called, ones);
     sum += taken;
     squares += taken * taken;
     slots += where(is_called, copies);
-    copies_sum += taken * weight;
-    hom_ref += where(call == 0.0, ones);
-    het += where(call == 1.0, ones);
-    hom_alt += where(call == 2.0, ones);
+    if (scaled_haploid) {
+      const LaneMask haploid = copies == 1.0;
+      copies_sum += taken * (where(haploid, halves) + where(~haploid, ones));
+    }
+  }
+  // The diploid calls are integers: counted apart, in any order.
+  std::uint32_t call_counts[3] = {0, 0, 0};
+  for (std::size_t sample = 0; sample < grouped; ++sample) {
+    call_counts[0] += calls[sample] == 0;
+    call_counts[1] += calls[sample] == 1;
+    call_counts[2] += calls[sample] == 2;
   }
   totals.called = lane_total(called);
   totals.sum = lane_total(sum);
   totals.squares = lane_total(squares);
   totals.slots = lane_total(slots);
-  totals.copies = lane_total(copies_sum);
-  totals.hom_ref = lane_total(hom_ref);
-  totals.het = lane_total(het);
-  totals.hom_alt = lane_total(hom_alt);
+  // Unscaled, every dosage counts its own value of alleles: the same sums.
+  totals.copies = scaled_haploid ? lane_total(copies_sum) : totals.sum;
+  totals.hom_ref = call_counts[0];
+  totals.het = call_counts[1];
+  totals.hom_alt = call_counts[2];
 }
 
 SiteSummary summary_from_totals(const SiteTotals& totals, bool has_hard_calls) {
@@ -179,26 +191,36 @@ namespace {
 // of one value per line per site.
 constexpr std::size_t kTransposeTile = 8;
 
-// Copies the analysis samples' dosages of sites [first, first + Tile) into
-// the sample-major block, missing values replaced by the site's mean.
-template <std::size_t Tile>
-void copy_tile_sample_major(const std::vector<std::size_t>& sample_index, const DosageBlock& block,
-                            const std::vector<SiteSummary>& summaries, std::size_t first, std::size_t width,
-                            double* out) {
-  const double* sources[Tile];
-  double fills[Tile];
-  for (std::size_t k = 0; k < Tile; ++k) {
-    sources[k] = block.site_dosages(first + k);
-    fills[k] = summaries[first + k].mean();
-  }
-  const std::size_t samples = sample_index.size();
+// Copies the analysis samples' dosages of eight sites into the sample-major
+// block (row stride `width`), missing values replaced by each site's mean
+// `fills`: each sample's eight values are gathered into one vector, filled
+// and stored at once.
+TAMIS_VECTOR_CLONES
+void copy_eight_sites_sample_major(const std::size_t* __restrict sample_index, std::size_t samples,
+                                   const double* const* sources, const double* fills, std::size_t width,
+                                   double* __restrict out) {
+  typedef double Eight __attribute__((vector_size(8 * sizeof(double))));
+  typedef std::int64_t EightMask __attribute__((vector_size(8 * sizeof(std::int64_t))));
+  const double *s0 = sources[0], *s1 = sources[1], *s2 = sources[2], *s3 = sources[3];
+  const double *s4 = sources[4], *s5 = sources[5], *s6 = sources[6], *s7 = sources[7];
+  Eight fill;
+  std::memcpy(&fill, fills, sizeof fill);
   for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
     const std::size_t sample = sample_index[sample_idx];
-    double* row = out + sample_idx * width + first;
-    for (std::size_t k = 0; k < Tile; ++k) {
-      const double value = sources[k][sample];
-      row[k] = std::isnan(value) ? fills[k] : value;
-    }
+    const Eight values = {s0[sample], s1[sample], s2[sample], s3[sample],
+                          s4[sample], s5[sample], s6[sample], s7[sample]};
+    const EightMask called = values == values;  // false for NaN, a missing dosage
+    const Eight filled = (Eight)(((EightMask)values & called) | ((EightMask)fill & ~called));
+    std::memcpy(out + sample_idx * width, &filled, sizeof filled);
+  }
+}
+
+// The same for one site.
+void copy_site_sample_major(const std::vector<std::size_t>& sample_index, const double* source, double fill,
+                            std::size_t width, double* out) {
+  for (std::size_t sample_idx = 0; sample_idx < sample_index.size(); ++sample_idx) {
+    const double value = source[sample_index[sample_idx]];
+    out[sample_idx * width] = std::isnan(value) ? fill : value;
   }
 }
 
@@ -216,11 +238,18 @@ void gather_block(const TraitContext& trait, const DosageBlock& block, const Blo
   }
   std::size_t first = 0;
   for (; first + kTransposeTile <= width; first += kTransposeTile) {
-    copy_tile_sample_major<kTransposeTile>(sample_index, block, scratch.summaries, first, width,
-                                           scratch.genotypes.data());
+    const double* sources[kTransposeTile];
+    double fills[kTransposeTile];
+    for (std::size_t k = 0; k < kTransposeTile; ++k) {
+      sources[k] = block.site_dosages(first + k);
+      fills[k] = scratch.summaries[first + k].mean();
+    }
+    copy_eight_sites_sample_major(sample_index.data(), sample_index.size(), sources, fills, width,
+                                  scratch.genotypes.data() + first);
   }
   for (; first < width; ++first) {
-    copy_tile_sample_major<1>(sample_index, block, scratch.summaries, first, width, scratch.genotypes.data());
+    copy_site_sample_major(sample_index, block.site_dosages(first), scratch.summaries[first].mean(), width,
+                           scratch.genotypes.data() + first);
   }
 }
 
