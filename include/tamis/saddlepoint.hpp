@@ -55,8 +55,10 @@ class SaddlepointContext {
 
   Eigen::VectorXd mu_;
   Eigen::VectorXd one_minus_mu_;  // from the weights, w / mu, so it keeps precision near mu = 1
-  Eigen::MatrixXd weighted_basis_;  // W^1/2 Q
-  Eigen::MatrixXd unweighted_basis_;  // W^-1/2 Q (= X R^-1 for W^1/2 X = QR)
+  // Row-major: each variant's carriers are visited sample by sample.
+  using RowMajorMatrix = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
+  RowMajorMatrix weighted_basis_;  // W^1/2 Q
+  RowMajorMatrix unweighted_basis_;  // W^-1/2 Q (= X R^-1 for W^1/2 X = QR)
 };
 
 // Two-sided p-value of the observed score `score_u` with null variance

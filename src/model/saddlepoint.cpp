@@ -198,15 +198,16 @@ double sum_log_mgf(const double* genotype, const double* mu, const double* one_m
   return sum;
 }
 
-Cumulants evaluate_cumulants(const AdjustedTerms& terms, double t) {
-  Cumulants out = evaluate_slope_and_curvature(terms, t);
-  out.k = 0.5 * terms.gaussian_variance * t * t +
-          sum_log_mgf(terms.genotype.data(), terms.mu.data(), terms.one_minus_mu.data(), terms.genotype.size(), t);
-  return out;
+// K(t).
+double log_mgf_sum(const AdjustedTerms& terms, double t) {
+  return 0.5 * terms.gaussian_variance * t * t +
+         sum_log_mgf(terms.genotype.data(), terms.mu.data(), terms.one_minus_mu.data(), terms.genotype.size(), t);
 }
 
 // Solves K'(zeta) = x for x strictly inside (smallest, largest value of U).
-bool find_saddlepoint(const AdjustedTerms& terms, double x, double* zeta) {
+// `at_zeta` receives K' and K'' there (from the last iteration when it ends
+// on the root, which saves evaluating them again).
+bool find_saddlepoint(const AdjustedTerms& terms, double x, double* zeta, Cumulants* at_zeta) {
   // K'(0) = 0, so the root lies on the side of x's sign.
   double lo = x > 0.0 ? 0.0 : -kInfinity;
   double hi = x > 0.0 ? kInfinity : 0.0;
@@ -220,6 +221,7 @@ bool find_saddlepoint(const AdjustedTerms& terms, double x, double* zeta) {
     if (!std::isfinite(f)) return false;
     if (std::fabs(f) <= 1e-15 * (scale + std::fabs(x))) {
       *zeta = t;
+      *at_zeta = c;
       return true;
     }
     if (f < 0.0) lo = t; else hi = t;
@@ -236,6 +238,7 @@ bool find_saddlepoint(const AdjustedTerms& terms, double x, double* zeta) {
     }
     if (std::fabs(next - t) <= 1e-14 * std::fabs(t)) {
       *zeta = next;
+      *at_zeta = evaluate_slope_and_curvature(terms, next);
       return true;
     }
     t = next;
@@ -284,8 +287,9 @@ bool log_tail_of_terms(const AdjustedTerms& terms, double x, double* log_tail) {
     return true;
   }
   double zeta = 0.0;
-  if (!find_saddlepoint(terms, x, &zeta)) return false;
-  const Cumulants c = evaluate_cumulants(terms, zeta);
+  Cumulants c;
+  if (!find_saddlepoint(terms, x, &zeta, &c)) return false;
+  c.k = log_mgf_sum(terms, zeta);
   const double exponent = zeta * x - c.k;  // >= 0: the convex conjugate of K at x
   if (!(exponent > 0.0) || !(c.k2 > 0.0)) return false;
   const double w = (upper ? 1.0 : -1.0) * std::sqrt(2.0 * exponent);
