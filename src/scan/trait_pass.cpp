@@ -190,6 +190,7 @@ namespace {
 // values for this many sites at once, a whole cache line of doubles, instead
 // of one value per line per site.
 constexpr std::size_t kTransposeTile = 8;
+static_assert(kTransposeTile == 8, "copy_eight_sites_sample_major copies eight sites at a time");
 
 // Copies the analysis samples' dosages of eight sites into the sample-major
 // block (row stride `width`), missing values replaced by each site's mean
