@@ -108,14 +108,28 @@ constexpr std::size_t kTermLanes = 8;
 // and D = 1 + a e,
 //   pi - mu = -+ mu (1 - mu) e / D,   pi (1 - pi) = mu (1 - mu) (1 + e) / D^2,
 // a form that neither overflows nor cancels for either sign of s.
+// `below ? a : b` as a bitwise blend, so that the compiler does not
+// if-convert the whole expressions that follow into both of their branches
+// (it computed every division twice).
+TAMIS_ALWAYS_INLINE double pick(bool below, double a, double b) {
+  std::int64_t a_bits, b_bits;
+  std::memcpy(&a_bits, &a, sizeof a_bits);
+  std::memcpy(&b_bits, &b, sizeof b_bits);
+  const std::int64_t mask = -static_cast<std::int64_t>(below);
+  const std::int64_t bits = (a_bits & mask) | (b_bits & ~mask);
+  double picked;
+  std::memcpy(&picked, &bits, sizeof picked);
+  return picked;
+}
+
 TAMIS_ALWAYS_INLINE void tilted_term(double g, double m, double m_bar, double spread, double t, double& slope,
-                                  double& curvature) {
+                                     double& curvature) {
   const double s = t * g;
   const bool below = s <= 0.0;
-  const double e = expm1_nonpositive(below ? s : -s);
-  const double inverse = 1.0 / (1.0 + (below ? m : m_bar) * e);
+  const double e = expm1_nonpositive(-std::fabs(s));
+  const double inverse = 1.0 / (1.0 + pick(below, m, m_bar) * e);
   const double signed_slope = spread * e * inverse;
-  slope = g * (below ? signed_slope : -signed_slope);
+  slope = g * (signed_slope * pick(below, 1.0, -1.0));
   curvature = (g * g) * ((spread * (1.0 + e)) * (inverse * inverse));
 }
 
@@ -167,8 +181,8 @@ Cumulants evaluate_slope_and_curvature(const AdjustedTerms& terms, double t) {
 TAMIS_ALWAYS_INLINE double log_mgf_term(double g, double m, double m_bar, double t) {
   const double s = t * g;
   const bool below = s <= 0.0;
-  const double e = expm1_nonpositive(below ? s : -s);
-  const double log_mgf = log1p_nonpositive((below ? m : m_bar) * e) + (below ? 0.0 : s);
+  const double e = expm1_nonpositive(-std::fabs(s));
+  const double log_mgf = log1p_nonpositive(pick(below, m, m_bar) * e) + pick(below, 0.0, s);
   return log_mgf - s * m;
 }
 
