@@ -50,6 +50,24 @@ inline bool is_plain_diploid_pair(const std::uint8_t* pair) {
   return (static_cast<unsigned>(pair[0]) - 2u < 4u) & (static_cast<unsigned>(pair[1]) - 2u < 4u);
 }
 
+// "./." (or ".|."): both alleles encoded as missing, 0 or 1.
+inline bool is_missing_diploid_pair(const std::uint8_t* pair) { return (pair[0] < 2u) & (pair[1] < 2u); }
+
+// The pairs the branch-free GT pass decodes by itself.
+inline bool is_fast_diploid_pair(const std::uint8_t* pair) {
+  return is_plain_diploid_pair(pair) || is_missing_diploid_pair(pair);
+}
+
+// A DS value written as missing (".") or absent (end of vector): either way
+// the sample has no dosage.
+inline bool is_missing_dosage(const std::uint8_t* at) {
+  std::uint32_t bits;
+  std::memcpy(&bits, at, sizeof bits);
+  // htslib's bcf_float_missing and bcf_float_vector_end (BCF 2.2, hts-specs
+  // VCFv4.3 section 6.3.3), as constants so that the loops vectorise.
+  return (bits == 0x7F800001u) | (bits == 0x7F800002u);
+}
+
 inline bool is_plain_dosage(float value) {
   // `&`, not `&&`: no branch, so the loops over samples vectorise.
   return (value >= 0.0f) & (static_cast<double>(value) <= diploid_dosage_limit);
@@ -102,11 +120,12 @@ std::string format_value(double value) {
   return buffer;
 }
 
-// The full diploid calls of alleles 0 and 1 ("0/1", "1|1"...) of every
-// sample, as store_hard_call would give them (dosages only when GT is their
-// source, else null). Every sample is stored, so that the loop vectorises;
-// chunk_plain[c] says whether all samples of chunk c had such a call, and the
-// caller decodes the others of a chunk that did not again.
+// The full diploid calls of alleles 0 and 1 ("0/1", "1|1"...) and the fully
+// missing ones ("./.") of every sample, as store_hard_call would give them
+// (dosages only when GT is their source, else null). Every sample is stored,
+// so that the loop vectorises; chunk_plain[c] says whether all samples of
+// chunk c had such a call, and the caller decodes the others of a chunk that
+// did not again.
 TAMIS_VECTOR_CLONES
 void decode_plain_diploid_pairs(const std::uint8_t* __restrict pairs, std::size_t samples,
                                 std::uint8_t* __restrict ploidy, std::int8_t* __restrict calls,
@@ -123,46 +142,55 @@ void decode_plain_diploid_pairs(const std::uint8_t* __restrict pairs, std::size_
         __builtin_shufflevector(raw, raw, 0, 2, 4, 6, 8, 10, 12, 14, 16, 18, 20, 22, 24, 26, 28, 30);
     const SampleBytes second_alleles =
         __builtin_shufflevector(raw, raw, 1, 3, 5, 7, 9, 11, 13, 15, 17, 19, 21, 23, 25, 27, 29, 31);
-    // Encoded alleles 0 and 1 are 2..5; the unsigned difference wraps below 2.
-    const auto plain = ((first_alleles - 2) < 4) & ((second_alleles - 2) < 4);
+    // Encoded alleles 0 and 1 are 2..5 (the unsigned difference wraps below
+    // 2); a missing allele is 0 or 1. Masks are all ones where true.
+    const SampleBytes called = (SampleBytes)(((first_alleles - 2) < 4) & ((second_alleles - 2) < 4));
+    const SampleBytes missing = (SampleBytes)((first_alleles < 2) & (second_alleles < 2));
     const SampleBytes copies = (first_alleles >> 1) + (second_alleles >> 1) - 2;
-    std::memcpy(calls + first, &copies, sizeof copies);
-    std::memset(ploidy + first, 2, kSampleChunk);
-    std::uint64_t plain_words[2];
-    std::memcpy(plain_words, &plain, sizeof plain_words);
-    chunk_plain[chunk] = (plain_words[0] & plain_words[1]) == ~std::uint64_t{0};
+    // A missing call: no call (-1, all bits set) and ploidy 0.
+    const SampleBytes call = (copies & ~missing) | missing;
+    const SampleBytes call_ploidy = (SampleBytes)(~missing) & 2;
+    std::memcpy(calls + first, &call, sizeof call);
+    std::memcpy(ploidy + first, &call_ploidy, sizeof call_ploidy);
+    const SampleBytes fast = called | missing;
+    std::uint64_t fast_words[2];
+    std::memcpy(fast_words, &fast, sizeof fast_words);
+    chunk_plain[chunk] = (fast_words[0] & fast_words[1]) == ~std::uint64_t{0};
   }
   if (full_chunks * kSampleChunk < samples) {  // the last, shorter chunk
-    std::size_t plain_count = 0;
+    std::size_t fast_count = 0;
     for (std::size_t sample_idx = full_chunks * kSampleChunk; sample_idx < samples; ++sample_idx) {
-      plain_count += is_plain_diploid_pair(pairs + sample_idx * 2);
-      ploidy[sample_idx] = 2;
-      calls[sample_idx] =
-          static_cast<std::int8_t>(static_cast<int>((pairs[sample_idx * 2] >> 1) + (pairs[sample_idx * 2 + 1] >> 1)) - 2);
+      const std::uint8_t* pair = pairs + sample_idx * 2;
+      fast_count += is_fast_diploid_pair(pair);
+      const bool missing = is_missing_diploid_pair(pair);
+      ploidy[sample_idx] = missing ? 0 : 2;
+      calls[sample_idx] = missing ? -1 : static_cast<std::int8_t>(static_cast<int>((pair[0] >> 1) + (pair[1] >> 1)) - 2);
     }
-    chunk_plain[full_chunks] = plain_count == samples - full_chunks * kSampleChunk;
+    chunk_plain[full_chunks] = fast_count == samples - full_chunks * kSampleChunk;
   }
   if (dosages) {
-    for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) dosages[sample_idx] = calls[sample_idx];
+    for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
+      dosages[sample_idx] = calls[sample_idx] < 0 ? missing_dosage : calls[sample_idx];
+    }
   }
 }
 
-// The single DS value of every sample, stored whatever it is; chunk_plain[c]
-// says whether all of chunk c lie in range, and the caller decodes the others
-// of a chunk that did not again. The BCF missing and end-of-vector values are
-// NaNs, which fail the range test.
+// The single DS value of every sample, stored whatever it is (missing as
+// NaN); chunk_plain[c] says whether all of chunk c lie in range or are
+// missing, and the caller decodes the others of a chunk that did not again.
 TAMIS_VECTOR_CLONES
 void decode_plain_dosages(const std::uint8_t* __restrict values, std::size_t samples, double* __restrict dosages,
                           std::uint8_t* __restrict chunk_plain) {
   for (std::size_t chunk = 0; chunk * kSampleChunk < samples; ++chunk) {
     const std::size_t first = chunk * kSampleChunk, last = std::min(samples, first + kSampleChunk);
-    std::size_t plain_count = 0;
+    std::size_t fast_count = 0;
     for (std::size_t sample_idx = first; sample_idx < last; ++sample_idx) {
       const float value = read_host_float(values + sample_idx * sizeof(float));
-      plain_count += is_plain_dosage(value);
-      dosages[sample_idx] = value;
+      const bool missing = is_missing_dosage(values + sample_idx * sizeof(float));
+      fast_count += is_plain_dosage(value) | missing;
+      dosages[sample_idx] = missing ? missing_dosage : value;
     }
-    chunk_plain[chunk] = plain_count == last - first;
+    chunk_plain[chunk] = fast_count == last - first;
   }
 }
 
@@ -291,7 +319,7 @@ void RecordDecoder::decode_genotypes(const bcf_fmt_t& format, bool gives_dosages
     if (chunk_plain_[chunk]) continue;
     const std::size_t chunk_end = std::min(sample_count_, (chunk + 1) * kSampleChunk);
     for (std::size_t sample_idx = chunk * kSampleChunk; sample_idx < chunk_end; ++sample_idx) {
-      if (plain_pairs && is_plain_diploid_pair(format.p + sample_idx * 2)) continue;  // done above
+      if (plain_pairs && is_fast_diploid_pair(format.p + sample_idx * 2)) continue;  // done above
       decode_one_genotype(format, sample_idx, gives_dosages);
     }
   }
@@ -370,7 +398,8 @@ void RecordDecoder::decode_values(const bcf_fmt_t& format) {
     if (chunk_plain_[chunk]) continue;
     const std::size_t chunk_end = std::min(sample_count_, (chunk + 1) * kSampleChunk);
     for (std::size_t sample_idx = chunk * kSampleChunk; sample_idx < chunk_end; ++sample_idx) {
-      if (single_dosages && is_plain_dosage(read_host_float(format.p + sample_idx * sizeof(float)))) continue;
+      const std::uint8_t* value = format.p + sample_idx * sizeof(float);
+      if (single_dosages && (is_plain_dosage(read_host_float(value)) || is_missing_dosage(value))) continue;
       const int given = gather_values(format, sample_idx);
       const SampleOutcome outcome =
           probabilities ? convert_probabilities(columns_, sample_idx, values_.data(), given, allele_count_)
