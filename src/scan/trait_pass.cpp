@@ -192,27 +192,72 @@ namespace {
 constexpr std::size_t kTransposeTile = 8;
 static_assert(kTransposeTile == 8, "copy_eight_sites_sample_major copies eight sites at a time");
 
+typedef double Eight __attribute__((vector_size(8 * sizeof(double))));
+typedef std::int64_t EightMask __attribute__((vector_size(8 * sizeof(std::int64_t))));
+
+TAMIS_ALWAYS_INLINE Eight filled_where_missing(Eight values, Eight fill) {
+  const EightMask called = values == values;  // false for NaN, a missing dosage
+  return (Eight)(((EightMask)values & called) | ((EightMask)fill & ~called));
+}
+
+// rows[k] holds site k's values for eight consecutive samples; afterwards
+// rows[s] holds sample s's values for the eight sites. Pure data movement,
+// in three rounds of pairwise shuffles.
+TAMIS_ALWAYS_INLINE void transpose_eight(Eight (&rows)[8]) {
+  Eight pairs[8], quads[8];
+  for (int k = 0; k < 8; k += 2) {
+    pairs[k] = __builtin_shufflevector(rows[k], rows[k + 1], 0, 8, 2, 10, 4, 12, 6, 14);
+    pairs[k + 1] = __builtin_shufflevector(rows[k], rows[k + 1], 1, 9, 3, 11, 5, 13, 7, 15);
+  }
+  for (int k = 0; k < 8; k += 4) {
+    quads[k] = __builtin_shufflevector(pairs[k], pairs[k + 2], 0, 1, 8, 9, 4, 5, 12, 13);      // samples 0, 4
+    quads[k + 1] = __builtin_shufflevector(pairs[k], pairs[k + 2], 2, 3, 10, 11, 6, 7, 14, 15);  // 2, 6
+    quads[k + 2] = __builtin_shufflevector(pairs[k + 1], pairs[k + 3], 0, 1, 8, 9, 4, 5, 12, 13);  // 1, 5
+    quads[k + 3] = __builtin_shufflevector(pairs[k + 1], pairs[k + 3], 2, 3, 10, 11, 6, 7, 14, 15);  // 3, 7
+  }
+  rows[0] = __builtin_shufflevector(quads[0], quads[4], 0, 1, 2, 3, 8, 9, 10, 11);
+  rows[4] = __builtin_shufflevector(quads[0], quads[4], 4, 5, 6, 7, 12, 13, 14, 15);
+  rows[2] = __builtin_shufflevector(quads[1], quads[5], 0, 1, 2, 3, 8, 9, 10, 11);
+  rows[6] = __builtin_shufflevector(quads[1], quads[5], 4, 5, 6, 7, 12, 13, 14, 15);
+  rows[1] = __builtin_shufflevector(quads[2], quads[6], 0, 1, 2, 3, 8, 9, 10, 11);
+  rows[5] = __builtin_shufflevector(quads[2], quads[6], 4, 5, 6, 7, 12, 13, 14, 15);
+  rows[3] = __builtin_shufflevector(quads[3], quads[7], 0, 1, 2, 3, 8, 9, 10, 11);
+  rows[7] = __builtin_shufflevector(quads[3], quads[7], 4, 5, 6, 7, 12, 13, 14, 15);
+}
+
 // Copies the analysis samples' dosages of eight sites into the sample-major
 // block (row stride `width`), missing values replaced by each site's mean
-// `fills`: each sample's eight values are gathered into one vector, filled
-// and stored at once.
+// `fills`. Analysis samples mostly run consecutively through the genotype
+// samples (few samples lack a trait): eight such
+// samples are loaded as one vector per site and transposed; elsewhere each
+// sample's eight values are gathered one by one.
 TAMIS_VECTOR_CLONES
 void copy_eight_sites_sample_major(const std::size_t* __restrict sample_index, std::size_t samples,
                                    const double* const* sources, const double* fills, std::size_t width,
                                    double* __restrict out) {
-  typedef double Eight __attribute__((vector_size(8 * sizeof(double))));
-  typedef std::int64_t EightMask __attribute__((vector_size(8 * sizeof(std::int64_t))));
-  const double *s0 = sources[0], *s1 = sources[1], *s2 = sources[2], *s3 = sources[3];
-  const double *s4 = sources[4], *s5 = sources[5], *s6 = sources[6], *s7 = sources[7];
   Eight fill;
   std::memcpy(&fill, fills, sizeof fill);
-  for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
+  std::size_t sample_idx = 0;
+  while (sample_idx < samples) {
     const std::size_t sample = sample_index[sample_idx];
-    const Eight values = {s0[sample], s1[sample], s2[sample], s3[sample],
-                          s4[sample], s5[sample], s6[sample], s7[sample]};
-    const EightMask called = values == values;  // false for NaN, a missing dosage
-    const Eight filled = (Eight)(((EightMask)values & called) | ((EightMask)fill & ~called));
+    bool run_of_eight = sample_idx + 8 <= samples;
+    for (std::size_t k = 1; run_of_eight && k < 8; ++k) run_of_eight = sample_index[sample_idx + k] == sample + k;
+    if (run_of_eight) {
+      Eight rows[8];
+      for (int k = 0; k < 8; ++k) std::memcpy(&rows[k], sources[k] + sample, sizeof rows[k]);
+      transpose_eight(rows);
+      for (int k = 0; k < 8; ++k) {
+        const Eight filled = filled_where_missing(rows[k], fill);
+        std::memcpy(out + (sample_idx + k) * width, &filled, sizeof filled);
+      }
+      sample_idx += 8;
+      continue;
+    }
+    const Eight values = {sources[0][sample], sources[1][sample], sources[2][sample], sources[3][sample],
+                          sources[4][sample], sources[5][sample], sources[6][sample], sources[7][sample]};
+    const Eight filled = filled_where_missing(values, fill);
     std::memcpy(out + sample_idx * width, &filled, sizeof filled);
+    ++sample_idx;
   }
 }
 
