@@ -25,23 +25,6 @@ constexpr int kOutput = 6;
 
 using Rows = std::vector<std::vector<std::string>>;
 
-std::vector<std::string> split(const std::string& line, char separator) {
-  std::vector<std::string> fields;
-  std::string field;
-  std::istringstream stream(line);
-  while (std::getline(stream, field, separator)) fields.push_back(field);
-  if (!line.empty() && line.back() == separator) fields.push_back("");
-  return fields;
-}
-
-std::vector<std::string> lines_of(const std::string& text) {
-  std::vector<std::string> lines;
-  std::istringstream stream(text);
-  std::string line;
-  while (std::getline(stream, line)) lines.push_back(line);
-  return lines;
-}
-
 std::string join(const std::vector<std::string>& parts, const std::string& separator) {
   std::string text;
   for (std::size_t part_idx = 0; part_idx < parts.size(); ++part_idx) {
@@ -59,7 +42,7 @@ std::string join_rows(const Rows& rows) {
 
 Rows parse_rows(const std::string& text) {
   Rows rows;
-  for (const std::string& line : lines_of(text)) rows.push_back(split(line, '\t'));
+  for (const std::string& line : lines_of(text)) rows.push_back(split_fields(line, '\t'));
   return rows;
 }
 
@@ -143,7 +126,7 @@ class InputErrors : public ::testing::Test {
     const std::vector<std::string> lines = vcf_lines();
     std::vector<std::string> places;
     for (std::size_t line_idx = first_record_line(lines); line_idx < lines.size(); ++line_idx) {
-      const std::vector<std::string> fields = split(lines[line_idx], '\t');
+      const std::vector<std::string> fields = split_fields(lines[line_idx], '\t');
       places.push_back(fields[0] + ":" + fields[1]);
     }
     return places;
@@ -155,7 +138,7 @@ class InputErrors : public ::testing::Test {
                                    const std::string& value, std::string* place) const {
     std::vector<std::string> lines = vcf_lines();
     std::string& line = lines[first_record_line(lines) + record_number - 1];
-    std::vector<std::string> fields = split(line, '\t');
+    std::vector<std::string> fields = split_fields(line, '\t');
     fields[9 + sample_idx] = value;
     line = join(fields, "\t");
     *place = fields[0] + ":" + fields[1];
@@ -252,7 +235,7 @@ TEST_F(InputErrors, DuplicateSampleInTableNamesBothLines) {
 TEST_F(InputErrors, DuplicateSampleInGenotypeFileNamesBothPositions) {
   std::vector<std::string> lines = vcf_lines();
   std::string& header = lines[first_record_line(lines) - 1];
-  std::vector<std::string> columns = split(header, '\t');
+  std::vector<std::string> columns = split_fields(header, '\t');
   const std::string duplicated = columns[9];
   columns[11] = duplicated;  // the third sample takes the first one's ID
   header = join(columns, "\t");
@@ -271,7 +254,7 @@ TEST_F(InputErrors, NoSharedSamplesShowsIdsFromBothSides) {
   const Outcome outcome = run_tamis(scan_arguments(vcf_gz_, path, "fev1_litres", dir_ + "/s"));
   EXPECT_EQ(outcome.code, kTableInput) << outcome.message;
   const std::string first_table_id = table_rows_[1][0];
-  const std::string first_genotype_id = split(vcf_lines()[first_record_line(vcf_lines()) - 1], '\t')[9];
+  const std::string first_genotype_id = split_fields(vcf_lines()[first_record_line(vcf_lines()) - 1], '\t')[9];
   expect_message_names(outcome, {path + ": ", "\"participant\"", "\"X_" + first_table_id + "\"",
                                  "\"" + first_genotype_id + "\""});
   expect_no_final_results(dir_ + "/s", {"fev1_litres"});
@@ -544,7 +527,7 @@ TEST_F(InputErrors, GpCountForVeryManyAllelesIsComputedWithoutOverflow) {
 TEST_F(InputErrors, RecordWithTooFewSampleColumnsNamesChromPos) {
   std::vector<std::string> lines = vcf_lines();
   std::string& line = lines[first_record_line(lines) + 6];  // record 7
-  std::vector<std::string> fields = split(line, '\t');
+  std::vector<std::string> fields = split_fields(line, '\t');
   const std::string place = fields[0] + ":" + fields[1];
   fields.resize(fields.size() - 3);
   line = join(fields, "\t");
