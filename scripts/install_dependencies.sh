@@ -5,7 +5,7 @@
 set -euo pipefail
 packages=(
   build-essential cmake pkg-config
-  libhts-dev libeigen3-dev libtbb-dev libcli11-dev zlib1g-dev
+  libhts-dev libdeflate-dev libeigen3-dev libtbb-dev libcli11-dev zlib1g-dev
   libgtest-dev libbenchmark-dev
   r-base-core bcftools tabix snakemake
   libcairo2-dev python3-pandas python3-matplotlib

@@ -171,6 +171,12 @@ class GenotypeReader {
   // few blocks ahead, so the record named can come a little before it).
   std::size_t read_batch(RecordBatch& batch, std::size_t max_records);
 
+  // Thread-safe, also while read_batch runs: inflates a piece of the input
+  // that read_batch will soon reach (BCF files read whole), so that worker
+  // threads take that work off the serial reader; true when there was some.
+  // Without such calls read_batch inflates as it goes.
+  bool inflate_ahead();
+
  private:
   struct Impl;
   std::unique_ptr<Impl> impl_;

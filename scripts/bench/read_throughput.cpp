@@ -100,6 +100,7 @@ int main(int argc, char** argv) {
           double local = 0.0;
           try {
             while (queue.pop(batch)) {
+              reader.inflate_ahead();  // as the scan's workers do
               block.clear();
               batch.decode(block);
               sites += block.size();

@@ -15,10 +15,13 @@
 #include <algorithm>
 #include <cerrno>
 #include <cstring>
+#include <mutex>
 #include <string_view>
 #include <unordered_map>
 #include <utility>
 
+#include "genotypes/bcf_records.hpp"
+#include "genotypes/bgzf_prefetch.hpp"
 #include "genotypes/fast_vcf.hpp"
 #include "genotypes/genotype_index.hpp"
 #include "genotypes/record_batch_impl.hpp"
@@ -204,6 +207,11 @@ struct InputFile {
   const GenomicRegion* current_region = nullptr;
   genotype_detail::IteratorPtr iterator;
   kstring_t line = {0, 0, nullptr};
+  // A BCF file read whole is read through a prefetched stream (opened when
+  // reading reaches the file), from the records' start after the header.
+  bool prefetches = false;
+  std::int64_t records_start = 0;
+  std::shared_ptr<genotype_detail::PrefetchedBgzf> stream;
 
   InputFile() = default;
   InputFile(const InputFile&) = delete;
@@ -268,6 +276,9 @@ struct GenotypeReader::Impl {
   std::size_t current_input = 0;
   bool reads_regions = false;
   std::vector<GenomicRegion> regions;  // merged; may be empty even when reads_regions
+  // The stream being read, shared with threads that inflate ahead of it.
+  std::mutex active_mutex;
+  std::shared_ptr<genotype_detail::PrefetchedBgzf> active_stream;
 
   std::unique_ptr<InputFile> open_input(const std::string& path, const GenotypeReaderOptions& options);
   void read_header(InputFile& input);
@@ -276,6 +287,8 @@ struct GenotypeReader::Impl {
   int read_record_in_regions(InputFile& input, bcf1_t* record);
   int read_line_in_regions(InputFile& input, kstring_t& line);
   int read_line(InputFile& input, kstring_t& line);
+  int read_prefetched_record(InputFile& input, bcf1_t* record);
+  void set_active_stream(std::shared_ptr<genotype_detail::PrefetchedBgzf> stream);
   bool read_next(InputFile& input, RecordBatch::Impl& records);
 };
 
@@ -380,7 +393,10 @@ std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& p
     throw_input_error(path, "the BGZF end-of-file marker is missing, so the file is incomplete",
                       damaged_file_fix);
   }
-  if (options.io_threads > 0 && hts_set_threads(input->handle, options.io_threads) != 0) {
+  // BCF read whole is inflated by the scan's own threads (inflate_ahead);
+  // htslib's threads serve compressed VCF and reading through an index.
+  input->prefetches = format->format == bcf && format->compression == bgzf && options.regions.empty();
+  if (options.io_threads > 0 && !input->prefetches && hts_set_threads(input->handle, options.io_threads) != 0) {
     throw_input_error(path, "could not start " + std::to_string(options.io_threads) +
                                 " decompression threads",
                       "use fewer input/output threads");
@@ -391,6 +407,7 @@ std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& p
   info->sample_ids = sample_ids;
   input->info = info;
   read_header(*input);
+  if (input->prefetches) input->records_start = bgzf_tell(input->handle->fp.bgzf);
   info->field = resolve_field(path, input->header, options.field);
   info->tag_id = format_tag_id(input->header, dosage_field_name(info->field));
   check_field_type(path, input->header, info->field, info->tag_id);
@@ -470,6 +487,40 @@ std::optional<std::uint64_t> GenotypeReader::indexed_record_count() const {
   return total;
 }
 
+void GenotypeReader::Impl::set_active_stream(std::shared_ptr<genotype_detail::PrefetchedBgzf> stream) {
+  const std::lock_guard<std::mutex> lock(active_mutex);
+  active_stream = std::move(stream);
+}
+
+// Like bcf_read. The stream is opened at the file's first record and let go
+// at its end, so that only one file's chunks are held at a time.
+int GenotypeReader::Impl::read_prefetched_record(InputFile& input, bcf1_t* record) {
+  if (!input.stream) {
+    errno = 0;
+    input.stream = genotype_detail::PrefetchedBgzf::open(input.info->path, input.records_start);
+    if (!input.stream) {
+      throw_input_error(input.info->path, "cannot open the genotype file again to read its records" + system_reason(),
+                        "check that the file is still readable");
+    }
+    set_active_stream(input.stream);
+  }
+  const int status = genotype_detail::read_bcf_record(*input.stream, input.header, record);
+  if (status == -1) {
+    set_active_stream(nullptr);
+    input.stream.reset();
+  }
+  return status;
+}
+
+bool GenotypeReader::inflate_ahead() {
+  std::shared_ptr<genotype_detail::PrefetchedBgzf> stream;
+  {
+    const std::lock_guard<std::mutex> lock(impl_->active_mutex);
+    stream = impl_->active_stream;
+  }
+  return stream && stream->help();
+}
+
 // Reads the input's next record into slot records.count; false at its end.
 bool GenotypeReader::Impl::read_next(InputFile& input, RecordBatch::Impl& records) {
   const std::size_t slot = records.count;
@@ -486,8 +537,9 @@ bool GenotypeReader::Impl::read_next(InputFile& input, RecordBatch::Impl& record
     if (columns.size() > 1) position_text.assign(columns[1].data(), columns[1].size());
   } else {
     bcf1_t* record = records.record_at(slot);
-    const int status = reads_regions ? read_record_in_regions(input, record)
-                                     : bcf_read(input.handle, input.header, record);
+    const int status = input.prefetches ? read_prefetched_record(input, record)
+                       : reads_regions  ? read_record_in_regions(input, record)
+                                        : bcf_read(input.handle, input.header, record);
     if (status == -1) return false;
     // Undefined contigs and tags are only warnings: htslib adds them to the header.
     const int fatal_errors = record->errcode & ~(BCF_ERR_CTG_UNDEF | BCF_ERR_TAG_UNDEF);

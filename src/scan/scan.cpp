@@ -334,6 +334,9 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     return work;
   };
   auto test_stage = [&](BlockWork* work) -> BlockWork* {
+    // Inflating input ahead of the serial reader keeps it from holding up
+    // the pipeline: it then only splits records.
+    reader.inflate_ahead();
     work->block.clear();
     work->block.sample_count = sample_count;
     work->batch.decode(work->block);
