@@ -233,6 +233,84 @@ TEST(BgzfFiles, CommittedFileIsIndexedAndQueryable) {
   EXPECT_EQ(testing::run_command("bgzip -t '" + path + "'"), 0);
 }
 
+// Rows over three chromosomes, enough for many BGZF blocks.
+std::string make_long_table() {
+  std::string text = result_header_line();
+  for (const char* chromosome : {"1", "2", "X"}) {
+    for (std::int64_t position = 1000; position < 1000 + 4000 * 37; position += 37) {
+      ResultRow row = make_score_only_row();
+      row.chromosome = chromosome;
+      row.position = position;
+      std::string line;
+      append_result_row(row, line);
+      text += line;
+    }
+  }
+  return text;
+}
+
+// The index built while rows are written against the one htslib 1.16 builds
+// from the finished file (tbx_index_build3, which commit uses when text came
+// through write()): the same bytes once inflated.
+TEST(BgzfFiles, IndexBuiltWhileWritingEqualsTheOneBuiltFromTheFile) {
+  const std::string dir = make_temp_dir("output_row_index");
+  const std::string table = make_long_table();
+  const std::size_t header_end = table.find('\n') + 1;
+  const std::string as_rows = dir + "/rows.tsv.gz", as_text = dir + "/text.tsv.gz";
+  {
+    BgzfTextFile file(as_rows);
+    file.write(table.substr(0, header_end));
+    // Uneven pieces, as blocks of a scan arrive.
+    for (std::size_t start = header_end, piece = 1; start < table.size(); piece = piece * 7 % 97 + 1) {
+      std::size_t end = start;
+      for (std::size_t line = 0; line < piece && end < table.size(); ++line) end = table.find('\n', end) + 1;
+      file.write_rows(std::string_view(table).substr(start, end - start));
+      start = end;
+    }
+    ASSERT_TRUE(file.indexes_rows());
+    file.commit(IndexKind::tabix_results);
+  }
+  {
+    BgzfTextFile file(as_text);
+    file.write(table);
+    ASSERT_FALSE(file.indexes_rows());
+    file.commit(IndexKind::tabix_results);
+  }
+  EXPECT_EQ(read_gzip_file(as_rows), table);
+  EXPECT_EQ(read_text_file(as_rows), read_text_file(as_text));
+  const std::string built_while_writing = read_gzip_file(as_rows + ".tbi");
+  EXPECT_GT(built_while_writing.size(), 100u);
+  EXPECT_EQ(built_while_writing, read_gzip_file(as_text + ".tbi"));
+  // tabix 1.16 (Debian) answers a query through it.
+  int status = -1;
+  const std::string hits = capture_command("tabix '" + as_rows + "' X:2000-2100 | cut -f1,2", &status);
+  EXPECT_EQ(status, 0);
+  EXPECT_EQ(hits, "X\t2036\nX\t2073\n");
+}
+
+// Text after rows, or rows that cannot be indexed, leave the index to commit.
+TEST(BgzfFiles, RowsIndexOnlyWhileEveryRowIndexes) {
+  const std::string dir = make_temp_dir("output_row_index_dropped");
+  const std::string table = make_long_table();
+  const std::size_t header_end = table.find('\n') + 1;
+  BgzfTextFile text_after_rows(dir + "/a.tsv.gz");
+  text_after_rows.write(table.substr(0, header_end));
+  text_after_rows.write_rows(table.substr(header_end, 200000));
+  EXPECT_TRUE(text_after_rows.indexes_rows());
+  text_after_rows.write("# a note\n");
+  EXPECT_FALSE(text_after_rows.indexes_rows());
+  text_after_rows.write_rows("2\t5\tmore\n");
+  EXPECT_FALSE(text_after_rows.indexes_rows());
+
+  BgzfTextFile out_of_order(dir + "/b.tsv.gz");
+  out_of_order.write_rows("1\t200\tx\n");
+  out_of_order.write_rows("1\t100\tx\n1\t300\tx\n");  // a row goes in once the next one begins
+  EXPECT_FALSE(out_of_order.indexes_rows());
+  BgzfTextFile no_position(dir + "/c.tsv.gz");
+  no_position.write_rows("1\tNA\tx\n");
+  EXPECT_FALSE(no_position.indexes_rows());
+}
+
 TEST(BgzfFiles, VcfPresetIndexWorks) {
   const std::string dir = make_temp_dir("output_vcf_index");
   const std::string path = dir + "/sites.vcf.gz";

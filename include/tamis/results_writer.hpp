@@ -72,6 +72,13 @@ class BgzfTextFile {
   static std::unique_ptr<BgzfTextFile> resume(std::string final_path, std::uint64_t compressed_bytes);
 
   void write(std::string_view text);  // throws tamis::Error (output) on a write failure
+  // Writes whole results rows ("CHROM\tPOS\t...\n"), indexing them as they
+  // go, so that commit(IndexKind::tabix_results) need not read the file back.
+  // Text written with write() after rows, or rows that do not index (out of
+  // order, no position), leave the index to commit as before.
+  void write_rows(std::string_view rows);
+  // Whether commit(IndexKind::tabix_results) will use the index built so far.
+  bool indexes_rows() const;
   // Ends the current BGZF block and flushes it to disk; returns the compressed
   // size so far, a point from which resume() can continue.
   std::uint64_t checkpoint();
@@ -86,6 +93,7 @@ class BgzfTextFile {
   const std::string& temporary_path() const { return temporary_path_; }
 
  private:
+  void write_bytes(std::string_view text);
   struct Impl;
   std::unique_ptr<Impl> impl_;
   std::string final_path_;

@@ -8,10 +8,13 @@
 #include <unistd.h>
 
 #include <cerrno>
+#include <cstdint>
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
 #include <string>
+#include <unordered_map>
+#include <vector>
 
 #include "output/temporary_registry.hpp"
 #include "tamis/errors.hpp"
@@ -96,6 +99,86 @@ void build_index(const std::string& data_path, const std::string& index_path,
   }
 }
 
+// The tabix index of a results file, built while its rows are written, as
+// tbx_index_build3 would build it from the finished file (results_index_conf:
+// one interval per row, from its position to the next base), so that
+// committing need not read the file back. Contigs get ids in the order they
+// first appear.
+class RowIndex {
+ public:
+  explicit RowIndex(std::uint64_t data_start) : index_(hts_idx_init(0, HTS_FMT_TBI, data_start, 14, 5)) {}
+  ~RowIndex() {
+    if (index_) hts_idx_destroy(index_);
+  }
+  RowIndex(const RowIndex&) = delete;
+  RowIndex& operator=(const RowIndex&) = delete;
+
+  // The next row, `line` (without its newline), which starts at virtual
+  // offset `start`. False for a row without a position, or out of order.
+  // A row's end is taken as the next one's start (or the file's end): when
+  // a block is flushed right after a row, that is where tabix, reading the
+  // file, finds the row to end.
+  bool add(std::string_view line, std::uint64_t start) {
+    const std::size_t first_tab = line.find('\t');
+    if (!index_ || first_tab == std::string_view::npos || !push_pending(start)) return false;
+    const std::size_t second_tab = std::min(line.find('\t', first_tab + 1), line.size());
+    std::int64_t position = 0;
+    for (std::size_t at = first_tab + 1; at < second_tab; ++at) {
+      if (line[at] < '0' || line[at] > '9') return false;
+      position = position * 10 + (line[at] - '0');
+    }
+    if (position < 1) return false;
+    const auto [found, added] = contig_ids_.emplace(std::string(line.substr(0, first_tab)), contig_ids_.size());
+    if (added) contig_names_.push_back(found->first);
+    pending_ = Row{static_cast<int>(found->second), position - 1};
+    return true;
+  }
+
+  bool save(const std::string& data_path, const std::string& index_path, std::uint64_t end) {
+    if (!index_ || !push_pending(end) || hts_idx_finish(index_, end) != 0) return false;
+    std::vector<std::uint8_t> meta = tabix_meta();
+    if (hts_idx_set_meta(index_, static_cast<std::uint32_t>(meta.size()), meta.data(), 1) != 0) return false;
+    return hts_idx_save_as(index_, data_path.c_str(), index_path.c_str(), HTS_FMT_TBI) == 0;
+  }
+
+ private:
+  // The .tbi header after its magic (SAMv1 tabix specification, 5.2): the
+  // six configuration integers, the length of the names, then the contig
+  // names, each ending in a NUL.
+  std::vector<std::uint8_t> tabix_meta() const {
+    const tbx_conf_t conf = results_index_conf();
+    std::string names;
+    for (const std::string& name : contig_names_) names.append(name).push_back('\0');
+    const std::int32_t fields[7] = {conf.preset, conf.sc, conf.bc, conf.ec, conf.meta_char, conf.line_skip,
+                                    static_cast<std::int32_t>(names.size())};
+    std::vector<std::uint8_t> meta(sizeof fields + names.size());
+    for (std::size_t field = 0; field < 7; ++field) {
+      for (std::size_t byte = 0; byte < 4; ++byte) {
+        meta[field * 4 + byte] = static_cast<std::uint8_t>(static_cast<std::uint32_t>(fields[field]) >> (8 * byte));
+      }
+    }
+    std::memcpy(meta.data() + sizeof fields, names.data(), names.size());
+    return meta;
+  }
+
+  struct Row {
+    int contig = -1;
+    std::int64_t begin = 0;  // 0-based; the interval is one base
+  };
+
+  bool push_pending(std::uint64_t end) {
+    if (pending_.contig < 0) return true;
+    const bool pushed = hts_idx_push(index_, pending_.contig, pending_.begin, pending_.begin + 1, end, 1) == 0;
+    pending_ = Row{};
+    return pushed;
+  }
+
+  hts_idx_t* index_;
+  Row pending_;
+  std::unordered_map<std::string, std::size_t> contig_ids_;
+  std::vector<std::string> contig_names_;
+};
+
 }  // namespace
 
 // ---- BgzfTextFile ----------------------------------------------------------
@@ -105,6 +188,11 @@ struct BgzfTextFile::Impl {
   TemporaryName data;
   BGZF* handle = nullptr;
   bool committed = false;
+  // Rows written through write_rows into a file this run began: their index
+  // so far. Null once anything else is written after them, or for a resumed
+  // file, whose earlier rows were never seen; commit then reads the file.
+  std::unique_ptr<RowIndex> row_index;
+  bool rows_indexable = true;
 
   void close_quietly() {
     if (handle) bgzf_close(handle);
@@ -143,6 +231,7 @@ BgzfTextFile::BgzfTextFile(std::string final_path, std::uint64_t compressed_byte
     throw_output_error(final_path_, "could not cut the partial results back to the checkpoint" + system_reason());
   }
   impl_ = std::make_unique<Impl>(temporary_path_);
+  impl_->rows_indexable = false;
   impl_->handle = bgzf_open(temporary_path_.c_str(), kBgzfAppendMode);
   if (!impl_->handle) {
     throw_output_error(final_path_, "could not reopen the temporary file " + temporary_path_ + system_reason());
@@ -172,6 +261,35 @@ BgzfTextFile::~BgzfTextFile() {
 
 void BgzfTextFile::write(std::string_view text) {
   if (!impl_->handle) throw_output_error(final_path_, "write after the file was closed");
+  if (impl_->row_index) {
+    impl_->row_index.reset();
+    impl_->rows_indexable = false;
+  }
+  write_bytes(text);
+}
+
+void BgzfTextFile::write_rows(std::string_view rows) {
+  if (!impl_->handle) throw_output_error(final_path_, "write after the file was closed");
+  if (impl_->rows_indexable && !impl_->row_index) {
+    impl_->row_index = std::make_unique<RowIndex>(static_cast<std::uint64_t>(bgzf_tell(impl_->handle)));
+  }
+  std::size_t start = 0;
+  while (start < rows.size()) {
+    const std::size_t end = std::min(rows.find('\n', start), rows.size() - 1) + 1;
+    const std::string_view line = rows.substr(start, end - start);
+    if (impl_->row_index && !impl_->row_index->add(line.substr(0, line.size() - (line.back() == '\n')),
+                                                  static_cast<std::uint64_t>(bgzf_tell(impl_->handle)))) {
+      impl_->row_index.reset();
+      impl_->rows_indexable = false;
+    }
+    write_bytes(line);
+    start = end;
+  }
+}
+
+bool BgzfTextFile::indexes_rows() const { return impl_->row_index != nullptr; }
+
+void BgzfTextFile::write_bytes(std::string_view text) {
   errno = 0;
   ssize_t written = bgzf_write(impl_->handle, text.data(), text.size());
   if (written < 0 || static_cast<std::size_t>(written) < text.size()) {
@@ -185,6 +303,14 @@ void BgzfTextFile::write(std::string_view text) {
 void BgzfTextFile::commit(IndexKind index) {
   if (!impl_->handle) throw_output_error(final_path_, "commit after the file was closed");
   errno = 0;
+  // The index ends where the end-of-file block will begin, as it does when
+  // tabix reads the finished file.
+  std::unique_ptr<RowIndex> row_index = index == IndexKind::tabix_results ? std::move(impl_->row_index) : nullptr;
+  std::uint64_t data_end = 0;
+  if (row_index) {
+    if (bgzf_flush(impl_->handle) != 0) row_index.reset();
+    data_end = static_cast<std::uint64_t>(bgzf_tell(impl_->handle));
+  }
   int close_status = bgzf_close(impl_->handle);
   impl_->handle = nullptr;
   if (close_status != 0) {
@@ -198,7 +324,9 @@ void BgzfTextFile::commit(IndexKind index) {
     unlink(final_index.c_str());
   } else {
     TemporaryName index_file(temporary_path_ + ".tbi");
-    build_index(temporary_path_, index_file.path(), final_path_, index);
+    if (!row_index || !row_index->save(final_path_, index_file.path(), data_end)) {
+      build_index(temporary_path_, index_file.path(), final_path_, index);
+    }
     rename_or_throw(index_file.path(), final_index);
     index_file.release();
   }

@@ -358,7 +358,7 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     state.alleles += work->block.size();
     for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
       const TraitBlockOutput& output = work->outputs[trait_idx];
-      progress.files[trait_idx]->write(output.rows);
+      progress.files[trait_idx]->write_rows(output.rows);
       add_tally(output.tally, state.tallies[traits[trait_idx].set.trait]);
       for (const std::string& note : output.discordant_notes) current_log().detail(note);
     }
