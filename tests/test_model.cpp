@@ -443,6 +443,61 @@ TEST(ScoreKernel, BlockedResultEqualsSingleColumnBitwise) {
   }
 }
 
+// The kernel over every genotype sample, the analysis samples placed among
+// others that weigh nothing, with missing dosages held as 0 and imputed
+// through the list, gives the results of the kernel over the analysis
+// samples alone with the same values imputed in place (to rounding: the
+// imputed terms are summed last).
+TEST(ScoreKernel, RowsAmongOthersWithImputationByListMatchTheAnalysisSamplesAlone) {
+  for (TraitKind kind : {TraitKind::quantitative, TraitKind::binary}) {
+    Random rng(kind == TraitKind::binary ? 23 : 29);
+    const int n = 240;
+    const Cohort cohort = simulate_cohort(n, kind, rng);
+    const NullModel model = fit_null_model("sim", kind, cohort.y, cohort.design, cohort.names);
+    // 300 genotype samples; every fifth is outside the analysis set.
+    const std::size_t genotype_samples = 300;
+    std::vector<std::size_t> row_of_sample;
+    for (std::size_t row = 0; row < genotype_samples && row_of_sample.size() < static_cast<std::size_t>(n); ++row) {
+      if (row % 5 != 4) row_of_sample.push_back(row);
+    }
+    ASSERT_EQ(row_of_sample.size(), static_cast<std::size_t>(n));
+    const std::size_t width = 19;
+    std::vector<double> all_rows(genotype_samples * width), analysis_rows(static_cast<std::size_t>(n) * width);
+    std::vector<std::uint32_t> missing_rows;
+    std::vector<std::size_t> starts(width + 1, 0);
+    std::vector<double> fills(width);
+    for (std::size_t j = 0; j < width; ++j) {
+      fills[j] = 0.1 + 0.05 * static_cast<double>(j);
+      for (std::size_t row = 0; row < genotype_samples; ++row) {
+        const bool missing = (row * 7 + j * 3) % 11 == 0;
+        const double value = missing ? 0.0 : static_cast<double>(rng.binomial2(0.3));
+        all_rows[row * width + j] = value;
+        if (missing) missing_rows.push_back(static_cast<std::uint32_t>(row));
+      }
+      starts[j + 1] = missing_rows.size();
+    }
+    for (std::size_t s = 0; s < row_of_sample.size(); ++s) {
+      for (std::size_t j = 0; j < width; ++j) {
+        const std::size_t row = row_of_sample[s];
+        const bool missing = (row * 7 + j * 3) % 11 == 0;
+        analysis_rows[s * width + j] = missing ? fills[j] : all_rows[row * width + j];
+      }
+    }
+    const ScoreKernel alone(model), among_others(model, row_of_sample, genotype_samples);
+    EXPECT_EQ(among_others.row_count(), genotype_samples);
+    ScoreScratch scratch;
+    std::vector<ScoreResult> expected(width), got(width);
+    alone.compute(analysis_rows.data(), width, scratch, expected.data());
+    const ImputedDosages imputed{missing_rows.data(), starts.data(), fills.data()};
+    among_others.compute(all_rows.data(), width, scratch, got.data(), &imputed);
+    for (std::size_t j = 0; j < width; ++j) {
+      EXPECT_NEAR(got[j].u, expected[j].u, 1e-10 * (1.0 + std::abs(expected[j].u))) << j;
+      EXPECT_NEAR(got[j].v, expected[j].v, 1e-10 * expected[j].v) << j;
+      EXPECT_NEAR(got[j].chisq, expected[j].chisq, 1e-9 * (1.0 + expected[j].chisq)) << j;
+    }
+  }
+}
+
 TEST(ScoreKernel, MatchesTheFormulaOnSimulatedData) {
   // Formula: U = G'r, V = G'WG - G'WX (X'WX)^-1 X'WG (times sigma2 for linear models).
   for (TraitKind kind : {TraitKind::quantitative, TraitKind::binary}) {

@@ -3,6 +3,7 @@
 #pragma once
 
 #include <cstddef>
+#include <cstdint>
 #include <vector>
 
 #include "tamis/null_model.hpp"
@@ -26,23 +27,44 @@ struct ScoreScratch {
   std::vector<double> weighted_squares;
 };
 
+// Dosages that the genotype block holds as 0 but that stand for missing
+// values, and the value each variant imputes for them: variant j's are the
+// rows rows[starts[j]] .. rows[starts[j + 1] - 1], imputed as fills[j].
+struct ImputedDosages {
+  const std::uint32_t* rows = nullptr;
+  const std::size_t* starts = nullptr;
+  const double* fills = nullptr;
+};
+
 class ScoreKernel {
  public:
+  // One row per analysis sample, in the null model's order.
   explicit ScoreKernel(const NullModel& model);
+  // `row_count` rows, analysis sample s in row row_of_sample[s]; the other
+  // rows weigh nothing, so a block gathered once for all genotype samples
+  // serves every trait whose analysis samples are among them.
+  ScoreKernel(const NullModel& model, const std::vector<std::size_t>& row_of_sample, std::size_t row_count);
 
-  // `genotypes` is sample-major: value for analysis sample s and variant j is
-  // genotypes[s * width + j], samples in the null model's order, missing
-  // values already imputed. Writes `width` results.
+  std::size_t row_count() const { return row_count_; }
+
+  // `genotypes` is sample-major: the value of row s for variant j is
+  // genotypes[s * width + j]. Missing values are either imputed already or
+  // held as 0 and listed in `imputed`, which adds each one's imputed value
+  // after the block's sums. Writes `width` results.
   //
   // Each variant's result depends only on its own column, never on the other
   // columns or the block width, so outputs are identical for any blocking.
-  void compute(const double* genotypes, std::size_t width, ScoreScratch& scratch,
-               ScoreResult* results) const;
+  void compute(const double* genotypes, std::size_t width, ScoreScratch& scratch, ScoreResult* results,
+               const ImputedDosages* imputed = nullptr) const;
 
  private:
+  void add_imputed(const ImputedDosages& imputed, std::size_t width, double* proj, double* squares) const;
+
   const NullModel& model_;
-  // Columns: W^1/2 Q (p columns) and r; n x (p + 1), row-major for the kernel loop.
+  std::size_t row_count_ = 0;
+  // Columns: W^1/2 Q (p columns) and r; row_count x (p + 1), row-major for the kernel loop.
   std::vector<double> projection_rows_;
+  std::vector<double> weights_;  // W, per row
   std::size_t projection_width_ = 0;
 };
 

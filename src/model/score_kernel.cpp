@@ -198,28 +198,62 @@ const AccumulateFunction accumulate_for_this_machine = choose_accumulate();
 
 }  // namespace
 
-ScoreKernel::ScoreKernel(const NullModel& model) : model_(model) {
+namespace {
+
+std::vector<std::size_t> rows_in_order(std::size_t count) {
+  std::vector<std::size_t> rows(count);
+  for (std::size_t row = 0; row < count; ++row) rows[row] = row;
+  return rows;
+}
+
+}  // namespace
+
+ScoreKernel::ScoreKernel(const NullModel& model)
+    : ScoreKernel(model, rows_in_order(static_cast<std::size_t>(model.sample_count())),
+                  static_cast<std::size_t>(model.sample_count())) {}
+
+ScoreKernel::ScoreKernel(const NullModel& model, const std::vector<std::size_t>& row_of_sample, std::size_t row_count)
+    : model_(model), row_count_(row_count) {
   const std::size_t n = static_cast<std::size_t>(model.sample_count());
   const std::size_t p = static_cast<std::size_t>(model.basis.cols());
   projection_width_ = p + 1;
-  projection_rows_.assign(n * projection_width_, 0.0);
+  projection_rows_.assign(row_count * projection_width_, 0.0);
+  weights_.assign(row_count, 0.0);
   for (std::size_t s = 0; s < n; ++s) {
-    const double root_w = std::sqrt(model.weights[static_cast<Eigen::Index>(s)]);
-    double* row = projection_rows_.data() + s * projection_width_;
+    const double weight = model.weights[static_cast<Eigen::Index>(s)];
+    const double root_w = std::sqrt(weight);
+    double* row = projection_rows_.data() + row_of_sample[s] * projection_width_;
     for (std::size_t c = 0; c < p; ++c) {
       row[c] = root_w * model.basis(static_cast<Eigen::Index>(s), static_cast<Eigen::Index>(c));
     }
     row[p] = model.residuals[static_cast<Eigen::Index>(s)];
+    weights_[row_of_sample[s]] = weight;
+  }
+}
+
+// Each listed dosage counts as if the block held its imputed value: its
+// row's terms, times that value, join the sums.
+void ScoreKernel::add_imputed(const ImputedDosages& imputed, std::size_t width, double* proj,
+                              double* squares) const {
+  const std::size_t rows = projection_width_;
+  for (std::size_t variant_idx = 0; variant_idx < width; ++variant_idx) {
+    const double fill = imputed.fills[variant_idx];
+    for (std::size_t at = imputed.starts[variant_idx]; at < imputed.starts[variant_idx + 1]; ++at) {
+      const std::size_t row = imputed.rows[at];
+      const double* a = projection_rows_.data() + row * rows;
+      for (std::size_t c = 0; c < rows; ++c) proj[c * width + variant_idx] += a[c] * fill;
+      squares[variant_idx] += (weights_[row] * fill) * fill;
+    }
   }
 }
 
 void ScoreKernel::compute(const double* genotypes, std::size_t width, ScoreScratch& scratch,
-                          ScoreResult* results) const {
+                          ScoreResult* results, const ImputedDosages* imputed) const {
   if (width == 0) return;
-  const std::size_t n = static_cast<std::size_t>(model_.sample_count());
+  const std::size_t n = row_count_;
   const std::size_t rows = projection_width_;  // p + 1
   const std::size_t p = rows - 1;
-  const double* weights = model_.weights.data();
+  const double* weights = weights_.data();
   const bool linear = model_.kind == TraitKind::quantitative;
   const double sigma2 = model_.sigma2;
 
@@ -231,6 +265,7 @@ void ScoreKernel::compute(const double* genotypes, std::size_t width, ScoreScrat
   std::fill(squares, squares + width, 0.0);
 
   accumulate_for_this_machine(projection_rows_.data(), rows, weights, genotypes, n, width, proj, squares);
+  if (imputed) add_imputed(*imputed, width, proj, squares);
 
   for (std::size_t variant_idx = 0; variant_idx < width; ++variant_idx) {
     ScoreResult& out = results[variant_idx];

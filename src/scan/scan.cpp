@@ -206,10 +206,12 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
     trait.floors = options.floors;
     trait.haploid_dosage = options.haploid_dosage;
     trait.excluded_genotype_index = samples_outside(trait.set.genotype_index, samples.size());
+    trait.kernel_row_samples =
+        choose_kernel_rows(trait.set, samples.size(), trait.excluded_genotype_index.size());
   }
   // The kernels hold references to the models, so they are made once the vector is final.
   for (TraitContext& trait : traits) {
-    trait.kernel = std::make_unique<ScoreKernel>(trait.model);
+    trait.kernel = make_kernel(trait);
     if (trait.set.kind == TraitKind::binary && options.binary_score == BinaryScore::saddlepoint) {
       trait.saddlepoint = std::make_unique<SaddlepointContext>(trait.model);
     }
@@ -300,13 +302,13 @@ void add_tally(const TraitTally& block, TraitTally& total) {
 
 void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
                   const std::vector<TraitContext>& traits, ScanProgress& progress) {
-  // Traits with the same analysis samples share one gathered block: the first
-  // of them gathers it.
+  // Traits with the same kernel rows share one gathered block: the first of
+  // them gathers it.
   std::vector<std::size_t> gatherer(traits.size());
   for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
     gatherer[trait_idx] = trait_idx;
     for (std::size_t earlier = 0; earlier < trait_idx; ++earlier) {
-      if (traits[earlier].set.genotype_index == traits[trait_idx].set.genotype_index) {
+      if (traits[earlier].kernel_row_samples == traits[trait_idx].kernel_row_samples) {
         gatherer[trait_idx] = gatherer[earlier];
         break;
       }
@@ -346,9 +348,9 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     work->outputs.resize(traits.size());
     for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
       GatheredBlock& gathered = scratch.gathered[gatherer[trait_idx]];
-      if (gatherer[trait_idx] == trait_idx) gather_block(traits[trait_idx], work->block, scratch.totals, gathered);
-      process_trait_block(traits[trait_idx], work->block, gathered, work->chromosomes, scratch.traits[trait_idx],
-                          work->outputs[trait_idx]);
+      if (gatherer[trait_idx] == trait_idx) gather_block(traits[trait_idx].kernel_row_samples, work->block, gathered);
+      process_trait_block(traits[trait_idx], work->block, scratch.totals, gathered, work->chromosomes,
+                          scratch.traits[trait_idx], work->outputs[trait_idx]);
     }
     return work;
   };

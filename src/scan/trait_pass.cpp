@@ -195,9 +195,28 @@ static_assert(kTransposeTile == 8, "copy_eight_sites_sample_major copies eight s
 typedef double Eight __attribute__((vector_size(8 * sizeof(double))));
 typedef std::int64_t EightMask __attribute__((vector_size(8 * sizeof(std::int64_t))));
 
-TAMIS_ALWAYS_INLINE Eight filled_where_missing(Eight values, Eight fill) {
-  const EightMask called = values == values;  // false for NaN, a missing dosage
-  return (Eight)(((EightMask)values & called) | ((EightMask)fill & ~called));
+// A missing dosage (NaN) becomes 0; the mask says which lanes were called.
+TAMIS_ALWAYS_INLINE Eight zero_where_missing(Eight values, EightMask& called) {
+  called = values == values;
+  return (Eight)((EightMask)values & called);
+}
+
+TAMIS_ALWAYS_INLINE bool all_lanes(EightMask mask) {
+  std::int64_t all = mask[0];
+  for (int lane = 1; lane < 8; ++lane) all &= mask[lane];
+  return all == -1;
+}
+
+// A (site, row) pair of a missing dosage, as the copy finds them.
+struct MissingDosage {
+  std::uint32_t site;
+  std::uint32_t row;
+};
+
+void note_missing(EightMask called, std::size_t first_site, std::size_t row, std::vector<MissingDosage>& missing) {
+  for (int lane = 0; lane < 8; ++lane) {
+    if (called[lane] == 0) missing.push_back({static_cast<std::uint32_t>(first_site + lane), static_cast<std::uint32_t>(row)});
+  }
 }
 
 // rows[k] holds site k's values for eight consecutive samples; afterwards
@@ -225,88 +244,113 @@ TAMIS_ALWAYS_INLINE void transpose_eight(Eight (&rows)[8]) {
   rows[7] = __builtin_shufflevector(quads[3], quads[7], 4, 5, 6, 7, 12, 13, 14, 15);
 }
 
-// Copies the analysis samples' dosages of eight sites into the sample-major
-// block (row stride `width`), missing values replaced by each site's mean
-// `fills`. Analysis samples mostly run consecutively through the genotype
-// samples (few samples lack a trait): eight such
-// samples are loaded as one vector per site and transposed; elsewhere each
-// sample's eight values are gathered one by one.
+// Copies eight sites' dosages of the samples `row_samples` into the
+// sample-major block (row stride `width`), a missing value as 0, noting
+// where those were. Rows mostly take consecutive genotype samples (all of
+// them, or all but the few without the trait): eight such samples are
+// loaded as one vector per site and transposed; elsewhere each sample's
+// eight values are gathered one by one.
 TAMIS_VECTOR_CLONES
-void copy_eight_sites_sample_major(const std::size_t* __restrict sample_index, std::size_t samples,
-                                   const double* const* sources, const double* fills, std::size_t width,
-                                   double* __restrict out) {
-  Eight fill;
-  std::memcpy(&fill, fills, sizeof fill);
-  std::size_t sample_idx = 0;
-  while (sample_idx < samples) {
-    const std::size_t sample = sample_index[sample_idx];
-    bool run_of_eight = sample_idx + 8 <= samples;
-    for (std::size_t k = 1; run_of_eight && k < 8; ++k) run_of_eight = sample_index[sample_idx + k] == sample + k;
+void copy_eight_sites_sample_major(const std::size_t* __restrict row_samples, std::size_t rows,
+                                   const double* const* sources, std::size_t first_site, std::size_t width,
+                                   double* __restrict out, std::vector<MissingDosage>& missing) {
+  std::size_t row = 0;
+  EightMask called;
+  while (row < rows) {
+    const std::size_t sample = row_samples[row];
+    bool run_of_eight = row + 8 <= rows;
+    for (std::size_t k = 1; run_of_eight && k < 8; ++k) run_of_eight = row_samples[row + k] == sample + k;
     if (run_of_eight) {
-      Eight rows[8];
-      for (int k = 0; k < 8; ++k) std::memcpy(&rows[k], sources[k] + sample, sizeof rows[k]);
-      transpose_eight(rows);
+      Eight values[8];
+      for (int k = 0; k < 8; ++k) std::memcpy(&values[k], sources[k] + sample, sizeof values[k]);
+      transpose_eight(values);
       for (int k = 0; k < 8; ++k) {
-        const Eight filled = filled_where_missing(rows[k], fill);
-        std::memcpy(out + (sample_idx + k) * width, &filled, sizeof filled);
+        const Eight zeroed = zero_where_missing(values[k], called);
+        if (!all_lanes(called)) note_missing(called, first_site, row + k, missing);
+        std::memcpy(out + (row + k) * width, &zeroed, sizeof zeroed);
       }
-      sample_idx += 8;
+      row += 8;
       continue;
     }
     const Eight values = {sources[0][sample], sources[1][sample], sources[2][sample], sources[3][sample],
                           sources[4][sample], sources[5][sample], sources[6][sample], sources[7][sample]};
-    const Eight filled = filled_where_missing(values, fill);
-    std::memcpy(out + sample_idx * width, &filled, sizeof filled);
-    ++sample_idx;
+    const Eight zeroed = zero_where_missing(values, called);
+    if (!all_lanes(called)) note_missing(called, first_site, row, missing);
+    std::memcpy(out + row * width, &zeroed, sizeof zeroed);
+    ++row;
   }
 }
 
 // The same for one site.
-void copy_site_sample_major(const std::vector<std::size_t>& sample_index, const double* source, double fill,
-                            std::size_t width, double* out) {
-  for (std::size_t sample_idx = 0; sample_idx < sample_index.size(); ++sample_idx) {
-    const double value = source[sample_index[sample_idx]];
-    out[sample_idx * width] = std::isnan(value) ? fill : value;
+void copy_site_sample_major(const std::vector<std::size_t>& row_samples, const double* source, std::size_t site,
+                            std::size_t width, double* out, std::vector<MissingDosage>& missing) {
+  for (std::size_t row = 0; row < row_samples.size(); ++row) {
+    const double value = source[row_samples[row]];
+    const bool called = !std::isnan(value);
+    if (!called) missing.push_back({static_cast<std::uint32_t>(site), static_cast<std::uint32_t>(row)});
+    out[row * width] = called ? value : 0.0;
   }
+}
+
+// The missing dosages grouped by site, each site's rows in ascending order
+// (the copy finds them in row order within a tile of sites).
+void group_missing_by_site(const std::vector<MissingDosage>& missing, std::size_t width, GatheredBlock& gathered) {
+  gathered.missing_starts.assign(width + 1, 0);
+  for (const MissingDosage& dosage : missing) ++gathered.missing_starts[dosage.site + 1];
+  for (std::size_t site = 0; site < width; ++site) gathered.missing_starts[site + 1] += gathered.missing_starts[site];
+  gathered.missing_rows.resize(missing.size());
+  std::vector<std::size_t> next(gathered.missing_starts.begin(), gathered.missing_starts.end() - 1);
+  for (const MissingDosage& dosage : missing) gathered.missing_rows[next[dosage.site]++] = dosage.row;
 }
 
 }  // namespace
 
-void gather_block(const TraitContext& trait, const DosageBlock& block, const BlockTotals& totals,
-                  GatheredBlock& scratch) {
-  const std::vector<std::size_t>& sample_index = trait.set.genotype_index;
+std::vector<std::size_t> choose_kernel_rows(const AnalysisSet& set, std::size_t genotype_sample_count,
+                                            std::size_t excluded_count) {
+  // Rows outside the analysis set cost the kernel as much as the others: all
+  // genotype samples serve as rows while at most a quarter of them are idle.
+  if (excluded_count * 4 > genotype_sample_count) return set.genotype_index;
+  std::vector<std::size_t> rows(genotype_sample_count);
+  for (std::size_t row = 0; row < rows.size(); ++row) rows[row] = row;
+  return rows;
+}
+
+std::unique_ptr<ScoreKernel> make_kernel(const TraitContext& trait) {
+  const std::vector<std::size_t>& samples = trait.set.genotype_index;
+  if (trait.kernel_row_samples == samples) return std::make_unique<ScoreKernel>(trait.model);
+  // Every genotype sample is a row: the analysis sample's row is its genotype index.
+  return std::make_unique<ScoreKernel>(trait.model, samples, trait.kernel_row_samples.size());
+}
+
+void gather_block(const std::vector<std::size_t>& row_samples, const DosageBlock& block, GatheredBlock& gathered) {
   const std::size_t width = block.size();
-  scratch.genotypes.resize(sample_index.size() * width);
-  scratch.summaries.resize(width);
-  for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
-    scratch.summaries[site_idx] = summary_from_totals(totals_for_samples(trait, block, totals, site_idx),
-                                                      block.sites[site_idx].has_hard_calls);
-  }
+  gathered.genotypes.resize(row_samples.size() * width);
+  std::vector<MissingDosage> missing;
   std::size_t first = 0;
   for (; first + kTransposeTile <= width; first += kTransposeTile) {
     const double* sources[kTransposeTile];
-    double fills[kTransposeTile];
-    for (std::size_t k = 0; k < kTransposeTile; ++k) {
-      sources[k] = block.site_dosages(first + k);
-      fills[k] = scratch.summaries[first + k].mean();
-    }
-    copy_eight_sites_sample_major(sample_index.data(), sample_index.size(), sources, fills, width,
-                                  scratch.genotypes.data() + first);
+    for (std::size_t k = 0; k < kTransposeTile; ++k) sources[k] = block.site_dosages(first + k);
+    copy_eight_sites_sample_major(row_samples.data(), row_samples.size(), sources, first, width,
+                                  gathered.genotypes.data() + first, missing);
   }
   for (; first < width; ++first) {
-    copy_site_sample_major(sample_index, block.site_dosages(first), scratch.summaries[first].mean(), width,
-                           scratch.genotypes.data() + first);
+    copy_site_sample_major(row_samples, block.site_dosages(first), first, width, gathered.genotypes.data() + first,
+                           missing);
   }
+  group_missing_by_site(missing, width, gathered);
 }
 
 namespace {
 
-void copy_column(const GatheredBlock& scratch, std::size_t width, std::size_t site_idx,
+// One site's dosages over the analysis samples, a missing one imputed.
+void copy_column(const TraitContext& trait, const DosageBlock& block, std::size_t site_idx, double fill,
                  Eigen::VectorXd& column) {
-  const std::size_t samples = scratch.genotypes.size() / width;
-  column.resize(static_cast<Eigen::Index>(samples));
-  for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
-    column[static_cast<Eigen::Index>(sample_idx)] = scratch.genotypes[sample_idx * width + site_idx];
+  const std::vector<std::size_t>& samples = trait.set.genotype_index;
+  const double* dosages = block.site_dosages(site_idx);
+  column.resize(static_cast<Eigen::Index>(samples.size()));
+  for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) {
+    const double value = dosages[samples[sample_idx]];
+    column[static_cast<Eigen::Index>(sample_idx)] = std::isnan(value) ? fill : value;
   }
 }
 
@@ -450,11 +494,11 @@ void confirm_row(const TraitContext& trait, const Eigen::VectorXd& column, Resul
 
 // The saddlepoint tail replaces the normal one beyond its cut-off; below it
 // the two agree, so the plain p-value stands and null variants stay cheap.
-void calibrate_score(const TraitContext& trait, const GatheredBlock& gathered, TraitScratch& scratch,
-                     std::size_t width, std::size_t site_idx, ScoreResult& score) {
+void calibrate_score(const TraitContext& trait, const DosageBlock& block, TraitScratch& scratch,
+                     std::size_t site_idx, ScoreResult& score) {
   constexpr double kNormalCutoff = 2.0;
   if (!trait.saddlepoint || score.chisq < kNormalCutoff * kNormalCutoff) return;
-  copy_column(gathered, width, site_idx, scratch.column);
+  copy_column(trait, block, site_idx, scratch.fills[site_idx], scratch.column);
   score.log_p = saddlepoint_score_log_p(*trait.saddlepoint, scratch.column, score.u, score.v, kNormalCutoff).log_p;
 }
 
@@ -478,17 +522,25 @@ bool SiteSummary::varies() const {
   return sum_squares - mean * sum > 1e-12 * static_cast<double>(called);
 }
 
-void process_trait_block(const TraitContext& trait, const DosageBlock& block, const GatheredBlock& gathered,
-                         const std::vector<std::string>& chromosomes, TraitScratch& scratch,
-                         TraitBlockOutput& output) {
+void process_trait_block(const TraitContext& trait, const DosageBlock& block, const BlockTotals& totals,
+                         const GatheredBlock& gathered, const std::vector<std::string>& chromosomes,
+                         TraitScratch& scratch, TraitBlockOutput& output) {
   output.rows.clear();
   output.tally = TraitTally{};
   output.discordant_notes.clear();
   const std::size_t width = block.size();
   if (width == 0) return;
 
+  scratch.summaries.resize(width);
+  scratch.fills.resize(width);
+  for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
+    scratch.summaries[site_idx] = summary_from_totals(totals_for_samples(trait, block, totals, site_idx),
+                                                      block.sites[site_idx].has_hard_calls);
+    scratch.fills[site_idx] = scratch.summaries[site_idx].mean();
+  }
   scratch.scores.resize(width);
-  trait.kernel->compute(gathered.genotypes.data(), width, scratch.score_scratch, scratch.scores.data());
+  const ImputedDosages imputed{gathered.missing_rows.data(), gathered.missing_starts.data(), scratch.fills.data()};
+  trait.kernel->compute(gathered.genotypes.data(), width, scratch.score_scratch, scratch.scores.data(), &imputed);
 
   ResultRow row;
   for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
@@ -496,7 +548,7 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block, co
         !is_selected(*trait.selection, trait.set.trait, block.sites[site_idx], chromosomes[site_idx])) {
       continue;
     }
-    const SiteSummary& summary = gathered.summaries[site_idx];
+    const SiteSummary& summary = scratch.summaries[site_idx];
     if (!summary.varies()) {
       ++output.tally.monomorphic;
       continue;
@@ -512,10 +564,10 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block, co
       ++output.tally.filtered[floor];
       continue;
     }
-    calibrate_score(trait, gathered, scratch, width, site_idx, score);
+    calibrate_score(trait, block, scratch, site_idx, score);
     fill_score_columns(trait, score, row);
     if (should_confirm(trait, score.log_p)) {
-      copy_column(gathered, width, site_idx, scratch.column);
+      copy_column(trait, block, site_idx, scratch.fills[site_idx], scratch.column);
       confirm_row(trait, scratch.column, row, output.tally);
       if (*row.log10p_spread > trait.spread_flag) {
         ++output.tally.discordant;

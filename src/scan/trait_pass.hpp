@@ -31,7 +31,17 @@ struct TraitContext {
   int haploid_dosage = 1;
   // The genotype samples outside the analysis set, in genotype order.
   std::vector<std::size_t> excluded_genotype_index;
+  // The genotype sample of each row of the kernel's blocks: every genotype
+  // sample when few are outside the analysis set (a block gathered once then
+  // serves all such traits), else the analysis samples alone.
+  std::vector<std::size_t> kernel_row_samples;
 };
+
+// Rows for a trait's kernel blocks (TraitContext::kernel_row_samples), and
+// the kernel with its analysis samples placed in them.
+std::vector<std::size_t> choose_kernel_rows(const AnalysisSet& set, std::size_t genotype_sample_count,
+                                            std::size_t excluded_count);
+std::unique_ptr<ScoreKernel> make_kernel(const TraitContext& trait);
 
 // Dosage summary of one site over a trait's analysis samples.
 struct SiteSummary {
@@ -63,14 +73,18 @@ struct BlockTotals {
 
 void total_block(const DosageBlock& block, int haploid_dosage, BlockTotals& totals);
 
-// A block's dosages gathered for one sample set: traits with the same
-// analysis samples share it.
+// A block's dosages gathered for one list of kernel rows: traits with the
+// same rows share it. Imputation is left to each trait's kernel, through the
+// list of missing dosages, since each trait imputes its own mean.
 struct GatheredBlock {
-  std::vector<double> genotypes;  // sample-major, missing values imputed, for the kernel
-  std::vector<SiteSummary> summaries;
+  std::vector<double> genotypes;  // sample-major, a missing dosage as 0
+  std::vector<std::uint32_t> missing_rows;  // per site, the rows whose dosage is missing
+  std::vector<std::size_t> missing_starts;  // site j's are missing_rows[starts[j] .. starts[j + 1])
 };
 
 struct TraitScratch {
+  std::vector<SiteSummary> summaries;
+  std::vector<double> fills;  // each site's imputed value: the mean over the analysis samples
   std::vector<ScoreResult> scores;
   ScoreScratch score_scratch;
   Eigen::VectorXd column;
@@ -82,16 +96,15 @@ struct TraitBlockOutput {
   std::vector<std::string> discordant_notes;  // one line per flagged hit
 };
 
-// Gathers the block's dosages of the trait's analysis samples, replacing a
-// missing dosage by the mean of the called ones, and summarises each site.
-// `totals` comes from total_block for this block.
-void gather_block(const TraitContext& trait, const DosageBlock& block, const BlockTotals& totals,
-                  GatheredBlock& gathered);
+// Gathers the block's dosages of the samples `row_samples` (a trait's
+// kernel_row_samples), sample-major.
+void gather_block(const std::vector<std::size_t>& row_samples, const DosageBlock& block, GatheredBlock& gathered);
 
-// `gathered` comes from gather_block for this trait's sample set;
-// `chromosomes[site_idx]` is the contig name as it is to be written.
-void process_trait_block(const TraitContext& trait, const DosageBlock& block, const GatheredBlock& gathered,
-                         const std::vector<std::string>& chromosomes, TraitScratch& scratch,
-                         TraitBlockOutput& output);
+// `gathered` comes from gather_block for this trait's kernel rows, `totals`
+// from total_block for this block; `chromosomes[site_idx]` is the contig
+// name as it is to be written.
+void process_trait_block(const TraitContext& trait, const DosageBlock& block, const BlockTotals& totals,
+                         const GatheredBlock& gathered, const std::vector<std::string>& chromosomes,
+                         TraitScratch& scratch, TraitBlockOutput& output);
 
 }  // namespace tamis
