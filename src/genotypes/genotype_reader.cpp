@@ -11,6 +11,7 @@
 #include <htslib/kseq.h>
 #include <htslib/tbx.h>
 #include <htslib/vcf.h>
+#include <sys/stat.h>
 
 #include <algorithm>
 #include <cerrno>
@@ -52,6 +53,13 @@ constexpr const char* damaged_file_fix =
 
 std::string system_reason() {
   return errno != 0 ? std::string(" (") + std::strerror(errno) + ")" : std::string();
+}
+
+// Only a regular file can be opened a second time at the records' start; a
+// pipe, a device or a URL is read through the one htslib handle.
+bool is_regular_file(const std::string& path) {
+  struct stat info;
+  return stat(path.c_str(), &info) == 0 && S_ISREG(info.st_mode);
 }
 
 std::vector<std::string> split_on(const std::string& text, char separator) {
@@ -395,7 +403,8 @@ std::unique_ptr<InputFile> GenotypeReader::Impl::open_input(const std::string& p
   }
   // BCF read whole is inflated by the scan's own threads (inflate_ahead);
   // htslib's threads serve compressed VCF and reading through an index.
-  input->prefetches = format->format == bcf && format->compression == bgzf && options.regions.empty();
+  input->prefetches = format->format == bcf && format->compression == bgzf && options.regions.empty() &&
+                      is_regular_file(path);
   if (options.io_threads > 0 && !input->prefetches && hts_set_threads(input->handle, options.io_threads) != 0) {
     throw_input_error(path, "could not start " + std::to_string(options.io_threads) +
                                 " decompression threads",

@@ -40,24 +40,24 @@ TAMIS_ALWAYS_INLINE Lanes where(LaneMask mask, Lanes values) { return (Lanes)((L
 TAMIS_ALWAYS_INLINE double lane_total(Lanes lanes) { return ((lanes[0] + lanes[1]) + lanes[2]) + lanes[3]; }
 
 // One sample's terms of the site totals, for the samples left over after the
-// four-lane groups and for adding or removing single samples.
+// four-lane groups.
 void add_sample_terms(const DosageBlock& block, std::size_t site_idx, std::size_t sample, bool scaled_haploid,
-                      double sign, SiteTotals& totals) {
+                      SiteTotals& totals) {
   const double value = block.site_dosages(site_idx)[sample];
   const bool called = !std::isnan(value);
   const double taken = called ? value : 0.0;
-  totals.called += sign * (called ? 1.0 : 0.0);
-  totals.sum += sign * taken;
-  totals.squares += sign * (taken * taken);
+  totals.called += called ? 1.0 : 0.0;
+  totals.sum += taken;
+  totals.squares += taken * taken;
   if (!block.sites[site_idx].has_hard_calls) return;
   const int ploidy = block.site_ploidy(site_idx)[sample];
   const int copies = ploidy > 0 ? ploidy : 2;
   const int call = block.site_diploid_calls(site_idx)[sample];
-  totals.slots += sign * (called ? static_cast<double>(copies) : 0.0);
-  totals.copies += sign * ((copies == 1 && scaled_haploid) ? taken * 0.5 : taken);
-  totals.hom_ref += sign * (call == 0 ? 1.0 : 0.0);
-  totals.het += sign * (call == 1 ? 1.0 : 0.0);
-  totals.hom_alt += sign * (call == 2 ? 1.0 : 0.0);
+  totals.slots += called ? static_cast<double>(copies) : 0.0;
+  totals.copies += (copies == 1 && scaled_haploid) ? taken * 0.5 : taken;
+  totals.hom_ref += call == 0 ? 1.0 : 0.0;
+  totals.het += call == 1 ? 1.0 : 0.0;
+  totals.hom_alt += call == 2 ? 1.0 : 0.0;
 }
 
 // The dosage sums of one site over every genotype sample.
@@ -143,6 +143,50 @@ SiteSummary summary_from_totals(const SiteTotals& totals, bool has_hard_calls) {
   return summary;
 }
 
+// One site's totals over a list of samples, in one pass without branches:
+// the few samples a trait leaves out, or the samples of a small set.
+SiteTotals totals_over(const DosageBlock& block, std::size_t site_idx, const std::vector<std::size_t>& samples,
+                       bool scaled_haploid) {
+  const double* dosages = block.site_dosages(site_idx);
+  SiteTotals totals;
+  for (std::size_t sample : samples) {
+    const double value = dosages[sample];
+    const bool called = value == value;
+    const double taken = called ? value : 0.0;
+    totals.called += called ? 1.0 : 0.0;
+    totals.sum += taken;
+    totals.squares += taken * taken;
+  }
+  if (!block.sites[site_idx].has_hard_calls) return totals;
+  const std::uint8_t* ploidy = block.site_ploidy(site_idx);
+  const std::int8_t* calls = block.site_diploid_calls(site_idx);
+  double copies = 0.0;
+  for (std::size_t sample : samples) {
+    const double value = dosages[sample];
+    const bool called = value == value;
+    const int sample_ploidy = ploidy[sample];
+    const double slots = sample_ploidy > 0 ? sample_ploidy : 2;
+    totals.slots += called ? slots : 0.0;
+    copies += called ? (slots == 1.0 && scaled_haploid ? value * 0.5 : value) : 0.0;
+    totals.hom_ref += calls[sample] == 0 ? 1.0 : 0.0;
+    totals.het += calls[sample] == 1 ? 1.0 : 0.0;
+    totals.hom_alt += calls[sample] == 2 ? 1.0 : 0.0;
+  }
+  totals.copies = copies;
+  return totals;
+}
+
+void subtract_totals(const SiteTotals& part, SiteTotals& totals) {
+  totals.called -= part.called;
+  totals.sum -= part.sum;
+  totals.squares -= part.squares;
+  totals.slots -= part.slots;
+  totals.copies -= part.copies;
+  totals.hom_ref -= part.hom_ref;
+  totals.het -= part.het;
+  totals.hom_alt -= part.hom_alt;
+}
+
 // The site's totals over one sample set: the block's totals less the
 // samples outside the set when those are few (a scan usually drops a handful
 // of samples with a missing trait), else summed over the set directly.
@@ -150,15 +194,11 @@ SiteTotals totals_for_samples(const TraitContext& trait, const DosageBlock& bloc
                               std::size_t site_idx) {
   const bool scaled_haploid = block.sites[site_idx].source == DosageField::gt && trait.haploid_dosage == 2;
   const std::vector<std::size_t>& excluded = trait.excluded_genotype_index;
-  if (excluded.size() <= trait.set.genotype_index.size()) {
-    SiteTotals totals = block_totals.sites[site_idx];
-    for (std::size_t sample : excluded) add_sample_terms(block, site_idx, sample, scaled_haploid, -1.0, totals);
-    return totals;
+  if (excluded.size() > trait.set.genotype_index.size()) {
+    return totals_over(block, site_idx, trait.set.genotype_index, scaled_haploid);
   }
-  SiteTotals totals;
-  for (std::size_t sample : trait.set.genotype_index) {
-    add_sample_terms(block, site_idx, sample, scaled_haploid, 1.0, totals);
-  }
+  SiteTotals totals = block_totals.sites[site_idx];
+  if (!excluded.empty()) subtract_totals(totals_over(block, site_idx, excluded, scaled_haploid), totals);
   return totals;
 }
 
@@ -179,7 +219,7 @@ void total_block(const DosageBlock& block, int haploid_dosage, BlockTotals& tota
       total_dosages(block.site_dosages(site_idx), samples, site_totals);
     }
     for (std::size_t sample = grouped; sample < samples; ++sample) {
-      add_sample_terms(block, site_idx, sample, scaled_haploid, 1.0, site_totals);
+      add_sample_terms(block, site_idx, sample, scaled_haploid, site_totals);
     }
   }
 }
