@@ -9,6 +9,7 @@
 #include <functional>
 #include <sstream>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "support/test_support.hpp"
@@ -115,6 +116,21 @@ class InputErrors : public ::testing::Test {
 
   std::vector<std::string> vcf_lines() const { return lines_of(read_gzip_file(vcf_gz_)); }
 
+  // The cohort as BCF (bcftools 1.16 view -Ob): the same records in the same
+  // order, read through tamis's own BGZF stream rather than htslib's.
+  std::string bcf_copy() const {
+    const std::string path = dir_ + "/c.bcf";
+    if (!file_exists(path)) {
+      EXPECT_EQ(run_command("bcftools view -Ob -o '" + path + "' '" + vcf_gz_ + "' 2>/dev/null"), 0);
+    }
+    return path;
+  }
+
+  // The compressed copies whose damage the tests below make: {suffix, path}.
+  std::vector<std::pair<std::string, std::string>> compressed_copies() const {
+    return {{".vcf.gz", vcf_gz_}, {".bcf", bcf_copy()}};
+  }
+
   static std::size_t first_record_line(const std::vector<std::string>& lines) {
     std::size_t line_idx = 0;
     while (line_idx < lines.size() && lines[line_idx].rfind("#", 0) == 0) ++line_idx;
@@ -131,6 +147,11 @@ class InputErrors : public ::testing::Test {
     }
     return places;
   }
+
+  // Each compressed copy damaged by `damage` fails at --threads 1 and 4 with
+  // the position reached, and leaves no results.
+  void expect_damaged_copies_give_the_position_reached(const std::string& name,
+                                                       std::string (*damage)(const std::string&));
 
   // A plain-text copy of the cohort VCF with one sample's FORMAT value of
   // record `record_number` (1-based) replaced.
@@ -331,17 +352,19 @@ TEST_F(InputErrors, ResidualDegreesOfFreedomErrorNamesTheTable) {
 constexpr std::size_t kBgzfEofBytes = 28;
 
 TEST_F(InputErrors, TruncatedBgzfIsRefusedBeforeAnyResult) {
-  const std::string data = read_text_file(vcf_gz_);
-  const std::string path = dir_ + "/truncated.vcf.gz";
-  write_text_file(path, data.substr(0, data.size() / 2));
-  for (int threads : {1, 4}) {
-    const std::string prefix = dir_ + "/s" + std::to_string(threads);
-    const Outcome outcome = run_tamis(scan_arguments(path, table_, "fev1_litres", prefix, threads));
-    EXPECT_EQ(outcome.code, kGenotypeInput) << outcome.message;
-    // The missing end-of-file block is found when the file is opened, so the
-    // place is the file itself.
-    expect_message_names(outcome, {path + ": ", "end-of-file marker is missing"});
-    expect_no_final_results(prefix, {"fev1_litres"});
+  for (const auto& [suffix, source] : compressed_copies()) {
+    const std::string data = read_text_file(source);
+    const std::string path = dir_ + "/truncated" + suffix;
+    write_text_file(path, data.substr(0, data.size() / 2));
+    for (int threads : {1, 4}) {
+      const std::string prefix = dir_ + "/s" + std::to_string(threads);
+      const Outcome outcome = run_tamis(scan_arguments(path, table_, "fev1_litres", prefix, threads));
+      EXPECT_EQ(outcome.code, kGenotypeInput) << outcome.message;
+      // The missing end-of-file block is found when the file is opened, so the
+      // place is the file itself.
+      expect_message_names(outcome, {path + ": ", "end-of-file marker is missing"});
+      expect_no_final_results(prefix, {"fev1_litres"});
+    }
   }
 }
 
@@ -372,48 +395,56 @@ std::string cut_with_end_marker(const std::string& data) {
   return data.substr(0, data.size() / 2) + data.substr(data.size() - kBgzfEofBytes);
 }
 
-std::string with_flipped_bytes(std::string data) {
+std::string with_flipped_bytes(const std::string& original) {
+  std::string data = original;
   for (std::size_t byte_idx = data.size() / 2; byte_idx < data.size() / 2 + 16; ++byte_idx) data[byte_idx] ^= 0x5A;
   return data;
 }
 
-TEST_F(InputErrors, TruncatedBgzfWithEndMarkerGivesThePositionReached) {
-  const std::string path = dir_ + "/cut_with_marker.vcf.gz";
-  write_text_file(path, cut_with_end_marker(read_text_file(vcf_gz_)));
-  for (int threads : {1, 4}) {
-    const std::string prefix = dir_ + "/s" + std::to_string(threads);
-    const Outcome outcome = run_tamis(scan_arguments(path, table_, "fev1_litres", prefix, threads));
-    EXPECT_EQ(outcome.code, kGenotypeInput) << outcome.message;
-    expect_position_reached(outcome, path, record_places());
-    expect_no_final_results(prefix, {"fev1_litres"});
+// The BCF copy holds the same records as the VCF.gz, so record N names the
+// same chrom:pos in both.
+// The BCF copy holds the same records as the VCF.gz, so record N names the
+// same chrom:pos in both.
+void InputErrors::expect_damaged_copies_give_the_position_reached(const std::string& name,
+                                                                   std::string (*damage)(const std::string&)) {
+  const std::vector<std::string> places = record_places();
+  for (const auto& [suffix, source] : compressed_copies()) {
+    const std::string path = dir_ + "/" + name + suffix;
+    write_text_file(path, damage(read_text_file(source)));
+    for (int threads : {1, 4}) {
+      SCOPED_TRACE(path + " at --threads " + std::to_string(threads));
+      const std::string prefix = dir_ + "/s" + std::to_string(threads);
+      const Outcome outcome = run_tamis(scan_arguments(path, table_, "fev1_litres", prefix, threads));
+      EXPECT_EQ(outcome.code, kGenotypeInput) << outcome.message;
+      expect_position_reached(outcome, path, places);
+      expect_no_final_results(prefix, {"fev1_litres"});
+    }
   }
 }
 
+TEST_F(InputErrors, TruncatedBgzfWithEndMarkerGivesThePositionReached) {
+  expect_damaged_copies_give_the_position_reached("cut_with_marker", cut_with_end_marker);
+}
+
 TEST_F(InputErrors, CorruptBgzfBlockGivesThePositionReached) {
-  const std::string path = dir_ + "/flipped.vcf.gz";
-  write_text_file(path, with_flipped_bytes(read_text_file(vcf_gz_)));
-  for (int threads : {1, 4}) {
-    const std::string prefix = dir_ + "/s" + std::to_string(threads);
-    const Outcome outcome = run_tamis(scan_arguments(path, table_, "fev1_litres", prefix, threads));
-    EXPECT_EQ(outcome.code, kGenotypeInput) << outcome.message;
-    expect_position_reached(outcome, path, record_places());
-    expect_no_final_results(prefix, {"fev1_litres"});
-  }
+  expect_damaged_copies_give_the_position_reached("flipped", with_flipped_bytes);
 }
 
 // A CRC failure or a cut block is damage to the file, and the fix is a fresh
 // copy, not an edit of the record that happened to be cut.
 TEST_F(InputErrors, DamagedBgzfIsReportedAsDamageNotAsABadRecord) {
-  const std::string data = read_text_file(vcf_gz_);
-  const std::string cut = dir_ + "/cut_with_marker.vcf.gz";
-  const std::string flipped = dir_ + "/flipped.vcf.gz";
-  write_text_file(cut, cut_with_end_marker(data));
-  write_text_file(flipped, with_flipped_bytes(data));
-  for (const std::string& path : {cut, flipped}) {
-    for (int threads : {1, 4}) {
-      const Outcome outcome = run_tamis(scan_arguments(path, table_, "fev1_litres", dir_ + "/s", threads));
-      EXPECT_EQ(outcome.code, kGenotypeInput) << outcome.message;
-      expect_message_names(outcome, {path + ", record ", "damaged or cut short", "bgzip -t"});
+  for (const auto& [suffix, source] : compressed_copies()) {
+    const std::string data = read_text_file(source);
+    const std::string cut = dir_ + "/cut_with_marker" + suffix;
+    const std::string flipped = dir_ + "/flipped" + suffix;
+    write_text_file(cut, cut_with_end_marker(data));
+    write_text_file(flipped, with_flipped_bytes(data));
+    for (const std::string& path : {cut, flipped}) {
+      for (int threads : {1, 4}) {
+        const Outcome outcome = run_tamis(scan_arguments(path, table_, "fev1_litres", dir_ + "/s", threads));
+        EXPECT_EQ(outcome.code, kGenotypeInput) << outcome.message;
+        expect_message_names(outcome, {path + ", record ", "damaged or cut short", "bgzip -t"});
+      }
     }
   }
 }

@@ -9,6 +9,7 @@
 
 #include <algorithm>
 #include <cstring>
+#include <new>
 
 namespace tamis::genotype_detail {
 
@@ -62,6 +63,7 @@ struct PrefetchedBgzf::Chunk {
   std::vector<Block> blocks;
   bool raw_damaged = false;       // the file is damaged right after `blocks`
   bool inflate_failed = false;    // a block failed; `size` covers those before it
+  bool out_of_memory = false;     // no room for the inflated data: read() throws
   std::unique_ptr<std::uint8_t[]> data;
   std::size_t capacity = 0;
   std::size_t size = 0;
@@ -161,7 +163,15 @@ void PrefetchedBgzf::fill(Chunk& chunk) {
 bool PrefetchedBgzf::claim_and_inflate(Chunk& chunk) {
   int expected = Chunk::waiting;
   if (!chunk.state.compare_exchange_strong(expected, Chunk::inflating, std::memory_order_acq_rel)) return false;
-  chunk.inflate();
+  // A helper must not leave the chunk claimed: the reader would wait for it
+  // for ever. The failure goes to the reader, which meets it in order.
+  try {
+    chunk.out_of_memory = false;
+    chunk.inflate();
+  } catch (const std::bad_alloc&) {
+    chunk.out_of_memory = true;
+    chunk.size = 0;
+  }
   chunk.state.store(Chunk::inflated, std::memory_order_release);
   { const std::lock_guard<std::mutex> lock(done_mutex_); }  // no waiter misses the notice
   done_.notify_all();
@@ -201,6 +211,7 @@ std::int64_t PrefetchedBgzf::read(void* out, std::size_t length) {
   std::size_t copied = 0;
   while (copied < length && !damaged_) {
     const Chunk& chunk = wait_for(*ring_[current_]);
+    if (chunk.out_of_memory) throw std::bad_alloc();
     if (offset_ < chunk.size) {
       const std::size_t count = std::min(length - copied, chunk.size - offset_);
       std::memcpy(target + copied, chunk.data.get() + offset_, count);

@@ -32,6 +32,7 @@ class PrefetchedBgzf {
   // Serial: copies up to `length` bytes to `out`; returns how many, fewer
   // only at the end of the data. Returns -1 once the data is damaged: a block
   // that is not BGZF, fails to inflate or fails its CRC, or a cut-short file.
+  // Throws std::bad_alloc when a chunk found no memory, whoever inflated it.
   std::int64_t read(void* out, std::size_t length);
 
   // Thread-safe, and safe while read() runs: inflates the next chunk still

@@ -13,34 +13,36 @@
 namespace tamis {
 namespace {
 
-// Four lanes of doubles, as GCC and clang vector types: the compiler maps
+// Eight lanes of doubles, as GCC and clang vector types: the compiler maps
 // them onto whatever vector unit the machine has, while every lane keeps its
 // own partial sums in the same order, so the totals have the same bits on
 // every machine.
-typedef double Lanes __attribute__((vector_size(4 * sizeof(double))));
-typedef std::int64_t LaneMask __attribute__((vector_size(4 * sizeof(std::int64_t))));
-constexpr std::size_t kLaneCount = 4;
+constexpr std::size_t kLaneCount = 8;
+typedef double Lanes __attribute__((vector_size(kLaneCount * sizeof(double))));
+typedef std::int64_t LaneMask __attribute__((vector_size(kLaneCount * sizeof(std::int64_t))));
 
 TAMIS_ALWAYS_INLINE Lanes load_lanes(const double* values) {
   Lanes lanes;
   std::memcpy(&lanes, values, sizeof lanes);
   return lanes;
 }
-// Four bytes (unsigned or signed) as four doubles, through 32-bit integers,
-// which every vector unit converts in one step.
+// Eight bytes (unsigned or signed) as eight doubles, through 32-bit
+// integers, which every vector unit converts in one step.
 template <typename Byte>
 TAMIS_ALWAYS_INLINE Lanes bytes_to_lanes(const Byte* bytes) {
-  typedef Byte FourBytes __attribute__((vector_size(4 * sizeof(Byte))));
-  typedef std::int32_t FourInts __attribute__((vector_size(4 * sizeof(std::int32_t))));
-  FourBytes packed;
+  typedef Byte LaneBytes __attribute__((vector_size(kLaneCount * sizeof(Byte))));
+  typedef std::int32_t LaneInts __attribute__((vector_size(kLaneCount * sizeof(std::int32_t))));
+  LaneBytes packed;
   std::memcpy(&packed, bytes, sizeof packed);
-  return __builtin_convertvector(__builtin_convertvector(packed, FourInts), Lanes);
+  return __builtin_convertvector(__builtin_convertvector(packed, LaneInts), Lanes);
 }
 TAMIS_ALWAYS_INLINE Lanes where(LaneMask mask, Lanes values) { return (Lanes)((LaneMask)values & mask); }
-TAMIS_ALWAYS_INLINE double lane_total(Lanes lanes) { return ((lanes[0] + lanes[1]) + lanes[2]) + lanes[3]; }
+TAMIS_ALWAYS_INLINE double lane_total(Lanes lanes) {
+  return ((lanes[0] + lanes[1]) + (lanes[2] + lanes[3])) + ((lanes[4] + lanes[5]) + (lanes[6] + lanes[7]));
+}
 
 // One sample's terms of the site totals, for the samples left over after the
-// four-lane groups.
+// eight-lane groups.
 void add_sample_terms(const DosageBlock& block, std::size_t site_idx, std::size_t sample, bool scaled_haploid,
                       SiteTotals& totals) {
   const double value = block.site_dosages(site_idx)[sample];
@@ -64,7 +66,7 @@ void add_sample_terms(const DosageBlock& block, std::size_t site_idx, std::size_
 TAMIS_VECTOR_CLONES
 void total_dosages(const double* dosages, std::size_t samples, SiteTotals& totals) {
   Lanes called = {}, sum = {}, squares = {};
-  const Lanes ones = {1.0, 1.0, 1.0, 1.0};
+  const Lanes ones = Lanes{} + 1.0;
   const std::size_t grouped = samples / kLaneCount * kLaneCount;
   for (std::size_t sample = 0; sample < grouped; sample += kLaneCount) {
     const Lanes values = load_lanes(dosages + sample);
@@ -86,7 +88,7 @@ TAMIS_VECTOR_CLONES
 void total_hard_calls(const double* dosages, const std::uint8_t* ploidy, const std::int8_t* calls,
                       std::size_t samples, bool scaled_haploid, SiteTotals& totals) {
   Lanes called = {}, sum = {}, squares = {}, slots = {}, copies_sum = {};
-  const Lanes ones = {1.0, 1.0, 1.0, 1.0}, twos = {2.0, 2.0, 2.0, 2.0}, halves = {0.5, 0.5, 0.5, 0.5};
+  const Lanes ones = Lanes{} + 1.0, twos = Lanes{} + 2.0, halves = Lanes{} + 0.5;
   const std::size_t grouped = samples / kLaneCount * kLaneCount;
   for (std::size_t sample = 0; sample < grouped; sample += kLaneCount) {
     const Lanes values = load_lanes(dosages + sample);

@@ -5,11 +5,14 @@
 
 #include <unistd.h>
 
+#include <cmath>
 #include <cstddef>
 #include <cstdint>
 #include <cstdio>
 #include <cstdlib>
 #include <string>
+
+#include "tamis/genotype_reader.hpp"
 
 namespace tamis::fuzzing {
 
@@ -49,6 +52,28 @@ class FuzzInputFile {
 [[noreturn]] inline void report_broken_invariant(const char* what) {
   std::fprintf(stderr, "tamis fuzz: broken invariant: %s\n", what);
   std::abort();
+}
+
+// Values a diploid dosage may take after rounding (the decoder's own tolerance).
+constexpr double kLargestDosage = 2.0 + 1e-4;
+
+// Every dosage of the site is missing or in the range the decoder promises.
+inline void check_site_dosages(const DosageBlock& block, std::size_t site_idx) {
+  const VariantSite& site = block.sites[site_idx];
+  if (site.allele_index < 1 || site.allele_index > site.alt_count) {
+    report_broken_invariant("a site describes its record wrongly");
+  }
+  const double* dosages = block.site_dosages(site_idx);
+  for (std::size_t sample_idx = 0; sample_idx < block.sample_count; ++sample_idx) {
+    const double dosage = dosages[sample_idx];
+    if (dosage != dosage) continue;  // missing
+    // GT counts copies, so a polyploid call may exceed 2; DS and GP are
+    // checked against the diploid range by the decoder.
+    const bool above_range = site.source != DosageField::gt && dosage > kLargestDosage;
+    if (dosage < 0.0 || std::isinf(dosage) || above_range) {
+      report_broken_invariant("a dosage outside the range the decoder promises");
+    }
+  }
 }
 
 }  // namespace tamis::fuzzing

@@ -18,8 +18,6 @@ namespace {
 
 constexpr std::size_t kRecordsPerBatch = 3;
 constexpr std::size_t kSampleCount = 3;
-// Values a diploid dosage may take after rounding (the decoder's own tolerance).
-constexpr double kLargestDosage = 2.0 + 1e-4;
 
 const char kHeader[] =
     "##fileformat=VCFv4.3\n"
@@ -48,21 +46,7 @@ void check_block(const DosageBlock& block) {
     report_broken_invariant("the block does not hold one dosage per sample and site");
   }
   for (std::size_t site_idx = 0; site_idx < block.size(); ++site_idx) {
-    const VariantSite& site = block.sites[site_idx];
-    if (site.allele_index < 1 || site.allele_index > site.alt_count) {
-      report_broken_invariant("a site describes its record wrongly");
-    }
-    const double* dosages = block.site_dosages(site_idx);
-    for (std::size_t sample_idx = 0; sample_idx < kSampleCount; ++sample_idx) {
-      const double dosage = dosages[sample_idx];
-      if (std::isnan(dosage)) continue;
-      // GT counts copies, so a polyploid call may exceed 2; DS and GP are
-      // checked against the diploid range by the decoder.
-      const bool above_range = site.source != DosageField::gt && dosage > kLargestDosage;
-      if (dosage < 0.0 || std::isinf(dosage) || above_range) {
-        report_broken_invariant("a dosage outside the range the decoder promises");
-      }
-    }
+    check_site_dosages(block, site_idx);
   }
 }
 
