@@ -26,15 +26,18 @@ TAMIS_ALWAYS_INLINE Lanes load_lanes(const double* values) {
   std::memcpy(&lanes, values, sizeof lanes);
   return lanes;
 }
-// Eight bytes (unsigned or signed) as eight doubles, through 32-bit
-// integers, which every vector unit converts in one step.
-template <typename Byte>
-TAMIS_ALWAYS_INLINE Lanes bytes_to_lanes(const Byte* bytes) {
-  typedef Byte LaneBytes __attribute__((vector_size(kLaneCount * sizeof(Byte))));
-  typedef std::int32_t LaneInts __attribute__((vector_size(kLaneCount * sizeof(std::int32_t))));
-  LaneBytes packed;
+// Eight unsigned bytes as eight doubles: each lane shifts its own byte
+// down, and the 2^52 exponent trick turns the small integer into a double,
+// all in whole-vector steps (a plain conversion came out as one scalar
+// insert per byte).
+TAMIS_ALWAYS_INLINE Lanes bytes_to_lanes(const std::uint8_t* bytes) {
+  typedef std::uint64_t LaneWords __attribute__((vector_size(kLaneCount * sizeof(std::uint64_t))));
+  std::uint64_t packed;
   std::memcpy(&packed, bytes, sizeof packed);
-  return __builtin_convertvector(__builtin_convertvector(packed, LaneInts), Lanes);
+  const LaneWords shifts = {0, 8, 16, 24, 32, 40, 48, 56};
+  const LaneWords lane_bytes = ((LaneWords{} + packed) >> shifts) & 0xFF;
+  constexpr double kTwoTo52 = 4503599627370496.0;
+  return (Lanes)(lane_bytes | 0x4330000000000000ull) - kTwoTo52;
 }
 TAMIS_ALWAYS_INLINE Lanes where(LaneMask mask, Lanes values) { return (Lanes)((LaneMask)values & mask); }
 TAMIS_ALWAYS_INLINE double lane_total(Lanes lanes) {
@@ -81,6 +84,33 @@ void total_dosages(const double* dosages, std::size_t samples, SiteTotals& total
   totals.squares = lane_total(squares);
 }
 
+// How many of the diploid calls are 0, 1 and 2. Byte lanes count up to 255
+// chunks at a time (a comparison is -1 where true), then go into the totals:
+// a byte per sample read, and no widening in the loop.
+TAMIS_ALWAYS_INLINE void count_calls(const std::int8_t* calls, std::size_t samples, std::uint64_t counts[3]) {
+  typedef std::int8_t CallBytes __attribute__((vector_size(32)));
+  constexpr std::size_t kChunk = sizeof(CallBytes), kChunksPerCount = 255;
+  std::size_t sample = 0;
+  while (sample + kChunk <= samples) {
+    CallBytes tallies[3] = {};
+    for (std::size_t chunk = 0; chunk < kChunksPerCount && sample + kChunk <= samples; ++chunk, sample += kChunk) {
+      CallBytes chunk_calls;
+      std::memcpy(&chunk_calls, calls + sample, sizeof chunk_calls);
+      for (int value = 0; value < 3; ++value) {
+        tallies[value] -= (CallBytes)(chunk_calls == static_cast<std::int8_t>(value));
+      }
+    }
+    for (int value = 0; value < 3; ++value) {
+      for (std::size_t lane = 0; lane < kChunk; ++lane) counts[value] += static_cast<std::uint8_t>(tallies[value][lane]);
+    }
+  }
+  for (; sample < samples; ++sample) {
+    counts[0] += calls[sample] == 0;
+    counts[1] += calls[sample] == 1;
+    counts[2] += calls[sample] == 2;
+  }
+}
+
 // The same with the hard calls: alleles counted over each sample's ploidy (a
 // haploid GT dosage scaled to 0/2 still counts as one allele), and the
 // diploid calls tallied for the Hardy-Weinberg test.
@@ -107,12 +137,8 @@ void total_hard_calls(const double* dosages, const std::uint8_t* ploidy, const s
     }
   }
   // The diploid calls are integers: counted apart, in any order.
-  std::uint32_t call_counts[3] = {0, 0, 0};
-  for (std::size_t sample = 0; sample < grouped; ++sample) {
-    call_counts[0] += calls[sample] == 0;
-    call_counts[1] += calls[sample] == 1;
-    call_counts[2] += calls[sample] == 2;
-  }
+  std::uint64_t call_counts[3] = {0, 0, 0};
+  count_calls(calls, grouped, call_counts);
   totals.called = lane_total(called);
   totals.sum = lane_total(sum);
   totals.squares = lane_total(squares);
@@ -256,6 +282,7 @@ struct MissingDosage {
 };
 
 void note_missing(EightMask called, std::size_t first_site, std::size_t row, std::vector<MissingDosage>& missing) {
+  if (all_lanes(called)) return;
   for (int lane = 0; lane < 8; ++lane) {
     if (called[lane] == 0) missing.push_back({static_cast<std::uint32_t>(first_site + lane), static_cast<std::uint32_t>(row)});
   }
@@ -308,7 +335,7 @@ void copy_eight_sites_sample_major(const std::size_t* __restrict row_samples, st
       transpose_eight(values);
       for (int k = 0; k < 8; ++k) {
         const Eight zeroed = zero_where_missing(values[k], called);
-        if (!all_lanes(called)) note_missing(called, first_site, row + k, missing);
+        note_missing(called, first_site, row + k, missing);
         std::memcpy(out + (row + k) * width, &zeroed, sizeof zeroed);
       }
       row += 8;
@@ -317,7 +344,7 @@ void copy_eight_sites_sample_major(const std::size_t* __restrict row_samples, st
     const Eight values = {sources[0][sample], sources[1][sample], sources[2][sample], sources[3][sample],
                           sources[4][sample], sources[5][sample], sources[6][sample], sources[7][sample]};
     const Eight zeroed = zero_where_missing(values, called);
-    if (!all_lanes(called)) note_missing(called, first_site, row, missing);
+    note_missing(called, first_site, row, missing);
     std::memcpy(out + row * width, &zeroed, sizeof zeroed);
     ++row;
   }
