@@ -8,8 +8,8 @@
 # bcf_get_format_float of DS on one thread), the reader alone
 # (scripts/bench/read_throughput.cpp) and the scan interleaved, ROUNDS times
 # each, on VCF.gz and on BCF. Prints the median wall times, the median
-# ratios to the floor, and the scan's peak memory (GNU time -v) at 20000 and
-# at 5000 variants. Ends with the Google Benchmark of the blocked score
+# ratios to the floor, and the scan's median peak memory (GNU time -v) at
+# 20000 and at 5000 variants. Ends with the Google Benchmark of the blocked score
 # kernel against width-1 calls.
 #
 # Environment: SAMPLES, VARIANTS, ROUNDS, THREADS (scan threads, 2), JOBS
@@ -98,13 +98,22 @@ for format in vcf.gz bcf; do
 done
 
 # Memory against variant count: the same samples, a quarter of the variants.
-set_scan_args "$small_cohort.traits.tsv" "$small_cohort.vcf.gz" "$data/scan_small"
-read -r _ small_peak < <(measure "${scan_args[@]}")
-set_scan_args "$cohort.traits.tsv" "$cohort.vcf.gz" "$data/scan_large"
-read -r _ large_peak < <(measure "${scan_args[@]}")
-rm -f "$data"/scan_small.* "$data"/scan_large.*
+# Peak RSS moves by a few MB from run to run (allocator and thread timing),
+# so each size is measured ROUNDS times, interleaved, and the medians compared.
+small_peaks=() large_peaks=()
+for round in $(seq "$rounds"); do
+  set_scan_args "$small_cohort.traits.tsv" "$small_cohort.vcf.gz" "$data/scan_small"
+  read -r _ peak < <(measure "${scan_args[@]}")
+  small_peaks+=("$peak")
+  set_scan_args "$cohort.traits.tsv" "$cohort.vcf.gz" "$data/scan_large"
+  read -r _ peak < <(measure "${scan_args[@]}")
+  large_peaks+=("$peak")
+  rm -f "$data"/scan_small.* "$data"/scan_large.*
+done
+small_peak=$(printf '%s\n' "${small_peaks[@]}" | median)
+large_peak=$(printf '%s\n' "${large_peaks[@]}" | median)
 awk -v s="$small_peak" -v l="$large_peak" -v sv="$small_variants" -v lv="$variants" 'BEGIN {
-  printf "peak RSS (VCF.gz): %d MB at %d variants, %d MB at %d variants (ratio %.2f)\n",
+  printf "peak RSS (VCF.gz, median): %d MB at %d variants, %d MB at %d variants (ratio %.2f)\n",
     s / 1024, sv, l / 1024, lv, l / s }'
 
 echo "score kernel (samples x variants per second):"

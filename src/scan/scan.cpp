@@ -209,6 +209,7 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
     trait.kernel_row_samples =
         choose_kernel_rows(trait.set, samples.size(), trait.excluded_genotype_index.size());
   }
+  note_left_out_beyond_shared(samples_left_out_by_all(traits), traits);
   // The kernels hold references to the models, so they are made once the vector is final.
   for (TraitContext& trait : traits) {
     trait.kernel = make_kernel(trait);
@@ -322,6 +323,7 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
   tbb::enumerable_thread_specific<ThreadScratch> scratch_per_thread(
       [&] { return ThreadScratch{BlockTotals{}, std::vector<GatheredBlock>(traits.size()), std::vector<TraitScratch>(traits.size())}; });
   const std::size_t tokens = static_cast<std::size_t>(options.threads) * 3;
+  const std::vector<std::size_t> left_out_by_all = samples_left_out_by_all(traits);
   const std::size_t sample_count = reader.sample_ids().size();
   ProgressDisplay display(choose_progress_mode(options.quiet), reader.indexed_record_count());
 
@@ -344,7 +346,7 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     work->batch.decode(work->block);
     work->chromosomes = map_chromosomes(work->block, options.chromosome_codes, reader.paths());
     ThreadScratch& scratch = scratch_per_thread.local();
-    total_block(work->block, options.haploid_dosage, scratch.totals);
+    total_block(work->block, options.haploid_dosage, left_out_by_all, scratch.totals);
     work->outputs.resize(traits.size());
     for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
       GatheredBlock& gathered = scratch.gathered[gatherer[trait_idx]];

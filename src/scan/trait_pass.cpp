@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <cstring>
+#include <iterator>
 
 #include "common/vector_clones.hpp"
 #include "tamis/distributions.hpp"
@@ -221,18 +222,14 @@ void subtract_totals(const SiteTotals& part, SiteTotals& totals) {
 SiteTotals totals_for_samples(const TraitContext& trait, const DosageBlock& block, const BlockTotals& block_totals,
                               std::size_t site_idx) {
   const bool scaled_haploid = block.sites[site_idx].source == DosageField::gt && trait.haploid_dosage == 2;
-  const std::vector<std::size_t>& excluded = trait.excluded_genotype_index;
-  if (excluded.size() > trait.set.genotype_index.size()) {
-    return totals_over(block, site_idx, trait.set.genotype_index, scaled_haploid);
-  }
+  if (!subtracts_left_out(trait)) return totals_over(block, site_idx, trait.set.genotype_index, scaled_haploid);
   SiteTotals totals = block_totals.sites[site_idx];
-  if (!excluded.empty()) subtract_totals(totals_over(block, site_idx, excluded, scaled_haploid), totals);
+  const std::vector<std::size_t>& beyond = trait.excluded_beyond_shared;
+  if (!beyond.empty()) subtract_totals(totals_over(block, site_idx, beyond, scaled_haploid), totals);
   return totals;
 }
 
-}  // namespace
-
-void total_block(const DosageBlock& block, int haploid_dosage, BlockTotals& totals) {
+void total_every_sample(const DosageBlock& block, int haploid_dosage, BlockTotals& totals) {
   totals.sites.assign(block.size(), SiteTotals{});
   const std::size_t samples = block.sample_count;
   const std::size_t grouped = samples / kLaneCount * kLaneCount;
@@ -249,6 +246,49 @@ void total_block(const DosageBlock& block, int haploid_dosage, BlockTotals& tota
     for (std::size_t sample = grouped; sample < samples; ++sample) {
       add_sample_terms(block, site_idx, sample, scaled_haploid, site_totals);
     }
+  }
+}
+
+}  // namespace
+
+bool subtracts_left_out(const TraitContext& trait) {
+  return trait.excluded_genotype_index.size() <= trait.set.genotype_index.size();
+}
+
+std::vector<std::size_t> samples_left_out_by_all(const std::vector<TraitContext>& traits) {
+  std::vector<std::size_t> shared;
+  bool first = true;
+  for (const TraitContext& trait : traits) {
+    if (!subtracts_left_out(trait)) continue;
+    const std::vector<std::size_t>& excluded = trait.excluded_genotype_index;  // sorted
+    if (first) {
+      shared = excluded;
+      first = false;
+      continue;
+    }
+    std::vector<std::size_t> both;
+    std::set_intersection(shared.begin(), shared.end(), excluded.begin(), excluded.end(), std::back_inserter(both));
+    shared.swap(both);
+  }
+  return shared;
+}
+
+void note_left_out_beyond_shared(const std::vector<std::size_t>& left_out_by_all, std::vector<TraitContext>& traits) {
+  for (TraitContext& trait : traits) {
+    trait.excluded_beyond_shared.clear();
+    const std::vector<std::size_t>& excluded = trait.excluded_genotype_index;
+    std::set_difference(excluded.begin(), excluded.end(), left_out_by_all.begin(), left_out_by_all.end(),
+                        std::back_inserter(trait.excluded_beyond_shared));
+  }
+}
+
+void total_block(const DosageBlock& block, int haploid_dosage, const std::vector<std::size_t>& left_out_by_all,
+                 BlockTotals& totals) {
+  total_every_sample(block, haploid_dosage, totals);
+  if (left_out_by_all.empty()) return;
+  for (std::size_t site_idx = 0; site_idx < block.size(); ++site_idx) {
+    const bool scaled_haploid = block.sites[site_idx].source == DosageField::gt && haploid_dosage == 2;
+    subtract_totals(totals_over(block, site_idx, left_out_by_all, scaled_haploid), totals.sites[site_idx]);
   }
 }
 

@@ -31,6 +31,8 @@ struct TraitContext {
   int haploid_dosage = 1;
   // The genotype samples outside the analysis set, in genotype order.
   std::vector<std::size_t> excluded_genotype_index;
+  // Those of them that not every trait leaves out (see share_left_out_samples).
+  std::vector<std::size_t> excluded_beyond_shared;
   // The genotype sample of each row of the kernel's blocks: every genotype
   // sample when few are outside the analysis set (a block gathered once then
   // serves all such traits), else the analysis samples alone.
@@ -65,13 +67,26 @@ struct SiteTotals {
   double hom_ref = 0.0, het = 0.0, hom_alt = 0.0;
 };
 
-// Every site's totals over all genotype samples: computed once per block,
-// whatever the number of traits.
+// Every site's totals over all genotype samples but those that every trait
+// leaves out: computed once per block, whatever the number of traits.
 struct BlockTotals {
   std::vector<SiteTotals> sites;
 };
 
-void total_block(const DosageBlock& block, int haploid_dosage, BlockTotals& totals);
+// Whether a trait's site totals are the block's less its left-out samples
+// (when those are the fewer), rather than a sum over its analysis samples.
+bool subtracts_left_out(const TraitContext& trait);
+
+// The samples that every trait taking totals by subtraction leaves out
+// (often those the table lacks, or that miss a shared covariate): removed
+// from the block's totals once instead of once per trait.
+std::vector<std::size_t> samples_left_out_by_all(const std::vector<TraitContext>& traits);
+// Sets each trait's excluded_beyond_shared.
+void note_left_out_beyond_shared(const std::vector<std::size_t>& left_out_by_all, std::vector<TraitContext>& traits);
+
+// `left_out_by_all` comes from samples_left_out_by_all.
+void total_block(const DosageBlock& block, int haploid_dosage, const std::vector<std::size_t>& left_out_by_all,
+                 BlockTotals& totals);
 
 // A block's dosages gathered for one list of kernel rows: traits with the
 // same rows share it. Imputation is left to each trait's kernel, through the
