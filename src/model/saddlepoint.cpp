@@ -72,6 +72,13 @@ void add_term(AdjustedTerms& terms, double g, double m, double m_bar) {
   terms.variance += g * g * m * m_bar;
 }
 
+void reserve_terms(AdjustedTerms& terms, std::size_t count) {
+  terms.genotype.reserve(count);
+  terms.mu.reserve(count);
+  terms.one_minus_mu.reserve(count);
+  terms.mu_times_one_minus_mu.reserve(count);
+}
+
 void add_gaussian_part(AdjustedTerms& terms, double variance) {
   if (!(variance > 0.0)) return;
   terms.gaussian_variance = variance;
@@ -367,6 +374,7 @@ detail::AdjustedTerms SaddlepointContext::collect_carrier_terms(const Eigen::Vec
     return collect_terms(adjusted, mu_, one_minus_mu_);
   }
   AdjustedTerms terms;
+  reserve_terms(terms, carriers.size());
   double carrier_variance = 0.0;
   for (const Eigen::Index sample_idx : carriers) {
     const double adjusted = genotype[sample_idx] - unweighted_basis_.row(sample_idx).dot(coordinates);
