@@ -335,7 +335,12 @@ struct MissingDosage {
   std::uint32_t row;
 };
 
-void note_missing(EightMask called, std::size_t first_site, std::size_t row, std::vector<MissingDosage>& missing) {
+// Always inlined, as every function here that takes a vector type: a vector
+// passed by value to a function compiled for another target (the caller is
+// a target_clones clone) arrives in different registers. At -O1, where this
+// one was a call, it read a garbage mask.
+TAMIS_ALWAYS_INLINE void note_missing(EightMask called, std::size_t first_site, std::size_t row,
+                                      std::vector<MissingDosage>& missing) {
   if (all_lanes(called)) return;
   for (int lane = 0; lane < 8; ++lane) {
     if (called[lane] == 0) missing.push_back({static_cast<std::uint32_t>(first_site + lane), static_cast<std::uint32_t>(row)});
