@@ -330,10 +330,7 @@ TAMIS_ALWAYS_INLINE bool any_missing(const Eight (&rows)[8]) {
 }
 
 // A (site, row) pair of a missing dosage, as the copy finds them.
-struct MissingDosage {
-  std::uint32_t site;
-  std::uint32_t row;
-};
+using MissingDosage = std::pair<std::uint32_t, std::uint32_t>;
 
 // Always inlined, as every function here that takes a vector type: a vector
 // passed by value to a function compiled for another target (the caller is
@@ -429,11 +426,11 @@ void copy_site_sample_major(const std::vector<std::size_t>& row_samples, const d
 // (the copy finds them in row order within a tile of sites).
 void group_missing_by_site(const std::vector<MissingDosage>& missing, std::size_t width, GatheredBlock& gathered) {
   gathered.missing_starts.assign(width + 1, 0);
-  for (const MissingDosage& dosage : missing) ++gathered.missing_starts[dosage.site + 1];
+  for (const MissingDosage& dosage : missing) ++gathered.missing_starts[dosage.first + 1];
   for (std::size_t site = 0; site < width; ++site) gathered.missing_starts[site + 1] += gathered.missing_starts[site];
   gathered.missing_rows.resize(missing.size());
   std::vector<std::size_t> next(gathered.missing_starts.begin(), gathered.missing_starts.end() - 1);
-  for (const MissingDosage& dosage : missing) gathered.missing_rows[next[dosage.site]++] = dosage.row;
+  for (const MissingDosage& dosage : missing) gathered.missing_rows[next[dosage.first]++] = dosage.second;
 }
 
 }  // namespace
@@ -458,7 +455,8 @@ std::unique_ptr<ScoreKernel> make_kernel(const TraitContext& trait) {
 void gather_block(const std::vector<std::size_t>& row_samples, const DosageBlock& block, GatheredBlock& gathered) {
   const std::size_t width = block.size();
   gathered.genotypes.resize(row_samples.size() * width);
-  std::vector<MissingDosage> missing;
+  std::vector<MissingDosage>& missing = gathered.missing_found;
+  missing.clear();
   std::size_t first = 0;
   for (; first + kTransposeTile <= width; first += kTransposeTile) {
     const double* sources[kTransposeTile];

@@ -6,6 +6,7 @@
 #include <memory>
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "tamis/confirm.hpp"
@@ -95,6 +96,8 @@ struct GatheredBlock {
   std::vector<double> genotypes;  // sample-major, a missing dosage as 0
   std::vector<std::uint32_t> missing_rows;  // per site, the rows whose dosage is missing
   std::vector<std::size_t> missing_starts;  // site j's are missing_rows[starts[j] .. starts[j + 1])
+  // gather_block's scratch: (site, row) of each missing dosage, as the copy meets them.
+  std::vector<std::pair<std::uint32_t, std::uint32_t>> missing_found;
 };
 
 struct TraitScratch {
