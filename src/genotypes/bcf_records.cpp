@@ -1,6 +1,14 @@
 // The BCF 2.2 record layout (hts-specs VCFv4.3, section 6.3): two lengths,
 // six fixed fields, then the shared section (ID, alleles, FILTER, INFO) and
 // the per-sample section (FORMAT), both made of typed values.
+
+// Values sit at any byte offset: read them byte by byte (htslib's
+// documented switch), not through misaligned word loads.
+#ifndef HTS_ALLOW_UNALIGNED
+#define HTS_ALLOW_UNALIGNED 0
+#endif
+#include <htslib/hts_endian.h>
+
 #include "genotypes/bcf_records.hpp"
 
 #include <cstdint>
@@ -19,11 +27,6 @@ constexpr std::uint64_t kLargestRecord = std::uint64_t{1} << 30;
 
 // Typed-value type codes (section 6.3.3).
 enum ValueType : int { null_type = 0, int8_type = 1, int16_type = 2, int32_type = 3, float_type = 5, char_type = 7 };
-
-std::uint32_t le32(const std::uint8_t* at) {
-  return static_cast<std::uint32_t>(at[0]) | static_cast<std::uint32_t>(at[1]) << 8 |
-         static_cast<std::uint32_t>(at[2]) << 16 | static_cast<std::uint32_t>(at[3]) << 24;
-}
 
 std::size_t width_of(int type) {
   switch (type) {
@@ -56,8 +59,8 @@ class TypedValues {
     const std::uint8_t* bytes = at_;
     at_ += width_of(type);
     if (type == int8_type) value = static_cast<std::int8_t>(bytes[0]);
-    else if (type == int16_type) value = static_cast<std::int16_t>(bytes[0] | bytes[1] << 8);
-    else value = static_cast<std::int32_t>(le32(bytes));
+    else if (type == int16_type) value = le_to_i16(bytes);
+    else value = le_to_i32(bytes);
     return true;
   }
 
@@ -144,13 +147,13 @@ bool has_valid_structure(const bcf_hdr_t* header, const bcf1_t* record) {
 }
 
 void set_fixed_fields(const std::uint8_t* fixed, bcf1_t* record) {
-  record->rid = static_cast<std::int32_t>(le32(fixed + 8));
-  const std::uint32_t position = le32(fixed + 12);
+  record->rid = static_cast<std::int32_t>(le_to_u32(fixed + 8));
+  const std::uint32_t position = le_to_u32(fixed + 12);
   // POS 0 (a telomere) is stored as -1 after the shift to 0-based.
   record->pos = position == std::numeric_limits<std::uint32_t>::max() ? -1 : position;
-  record->rlen = static_cast<std::int32_t>(le32(fixed + 16));
+  record->rlen = static_cast<std::int32_t>(le_to_u32(fixed + 16));
   std::memcpy(&record->qual, fixed + 20, sizeof record->qual);
-  const std::uint32_t info_and_alleles = le32(fixed + 24), samples_and_formats = le32(fixed + 28);
+  const std::uint32_t info_and_alleles = le_to_u32(fixed + 24), samples_and_formats = le_to_u32(fixed + 28);
   record->n_info = info_and_alleles & 0xFFFF;
   record->n_allele = info_and_alleles >> 16;
   record->n_sample = samples_and_formats & 0xFFFFFF;
@@ -171,7 +174,7 @@ int read_bcf_record(PrefetchedBgzf& stream, const bcf_hdr_t* header, bcf1_t* rec
   if (got == 0) return -1;
   if (got != static_cast<std::int64_t>(sizeof fixed)) return -2;
   bcf_clear(record);
-  const std::uint32_t shared_length = le32(fixed), sample_length = le32(fixed + 4);
+  const std::uint32_t shared_length = le_to_u32(fixed), sample_length = le_to_u32(fixed + 4);
   if (shared_length < kFixedInShared ||
       std::uint64_t{shared_length} + sample_length > kLargestRecord) {
     return -2;

@@ -2,6 +2,14 @@
 // blocks, publishes it as waiting, and later copies out its inflated bytes;
 // whoever claims a waiting chunk first (a helper, or the reader when it gets
 // there) inflates it. A chunk's state is the only thing threads share.
+
+// Values sit at any byte offset: read them byte by byte (htslib's
+// documented switch), not through misaligned word loads.
+#ifndef HTS_ALLOW_UNALIGNED
+#define HTS_ALLOW_UNALIGNED 0
+#endif
+#include <htslib/hts_endian.h>
+
 #include "genotypes/bgzf_prefetch.hpp"
 
 #include <htslib/hfile.h>
@@ -28,15 +36,9 @@ constexpr std::size_t kChunksInRing = 8;
 // pieces and helpers can share the work.
 constexpr std::size_t kBlocksPerChunk = 16;
 
-std::uint16_t le16(const std::uint8_t* at) { return static_cast<std::uint16_t>(at[0] | at[1] << 8); }
-std::uint32_t le32(const std::uint8_t* at) {
-  return static_cast<std::uint32_t>(at[0]) | static_cast<std::uint32_t>(at[1]) << 8 |
-         static_cast<std::uint32_t>(at[2]) << 16 | static_cast<std::uint32_t>(at[3]) << 24;
-}
-
 bool is_bgzf_header(const std::uint8_t* header) {
   return header[0] == 31 && header[1] == 139 && header[2] == 8 && (header[3] & 4) != 0 &&
-         le16(header + 10) == 6 && header[12] == 'B' && header[13] == 'C' && le16(header + 14) == 2;
+         le_to_u16(header + 10) == 6 && header[12] == 'B' && header[13] == 'C' && le_to_u16(header + 14) == 2;
 }
 
 // Reads exactly `length` bytes; false when fewer are left or reading fails.
@@ -137,7 +139,7 @@ void PrefetchedBgzf::fill(Chunk& chunk) {
       file_ended_ = true;
       break;
     }
-    const std::size_t block_size = got == static_cast<ssize_t>(sizeof header) ? le16(header + 16) + 1u : 0;
+    const std::size_t block_size = got == static_cast<ssize_t>(sizeof header) ? le_to_u16(header + 16) + 1u : 0;
     if (block_size < kHeaderBytes + kTrailerBytes || !is_bgzf_header(header)) {
       chunk.raw_damaged = file_ended_ = true;
       break;
@@ -150,7 +152,7 @@ void PrefetchedBgzf::fill(Chunk& chunk) {
       break;
     }
     const std::uint8_t* trailer = chunk.raw.data() + raw_offset + block_size - kTrailerBytes;
-    Chunk::Block block{raw_offset, block_size, le32(trailer), le32(trailer + 4)};
+    Chunk::Block block{raw_offset, block_size, le_to_u32(trailer), le_to_u32(trailer + 4)};
     if (block.inflated_size > kLargestInflatedBlock) {
       chunk.raw_damaged = file_ended_ = true;
       break;

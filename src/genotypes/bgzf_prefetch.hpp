@@ -41,7 +41,8 @@ class PrefetchedBgzf {
 
  private:
   struct Chunk;
-  explicit PrefetchedBgzf(hFILE* file, std::size_t skip);
+  // `skip`: bytes of the first block's data before the start.
+  PrefetchedBgzf(hFILE* file, std::size_t skip);
   void fill(Chunk& chunk);
   bool claim_and_inflate(Chunk& chunk);
   Chunk& wait_for(Chunk& chunk);
@@ -50,8 +51,7 @@ class PrefetchedBgzf {
   hFILE* file_;
   std::vector<std::unique_ptr<Chunk>> ring_;
   std::size_t current_ = 0;         // the chunk read() copies from
-  std::size_t offset_ = 0;          // bytes of it already copied
-  std::size_t skip_;                // bytes of the first chunk before the start
+  std::size_t offset_ = 0;          // bytes of it already copied (or skipped)
   bool file_ended_ = false;         // no raw block left to read
   bool damaged_ = false;
   std::atomic<std::size_t> help_from_{0};
