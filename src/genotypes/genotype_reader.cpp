@@ -218,6 +218,7 @@ struct InputFile {
   // A BCF file read whole is read through a prefetched stream (opened when
   // reading reaches the file), from the records' start after the header.
   bool prefetches = false;
+  bool prefetch_done = false;  // its records are all read: never opened again
   std::int64_t records_start = 0;
   std::shared_ptr<genotype_detail::PrefetchedBgzf> stream;
 
@@ -504,6 +505,7 @@ void GenotypeReader::Impl::set_active_stream(std::shared_ptr<genotype_detail::Pr
 // Like bcf_read. The stream is opened at the file's first record and let go
 // at its end, so that only one file's chunks are held at a time.
 int GenotypeReader::Impl::read_prefetched_record(InputFile& input, bcf1_t* record) {
+  if (input.prefetch_done) return -1;
   if (!input.stream) {
     errno = 0;
     input.stream = genotype_detail::PrefetchedBgzf::open(input.info->path, input.records_start);
@@ -517,6 +519,7 @@ int GenotypeReader::Impl::read_prefetched_record(InputFile& input, bcf1_t* recor
   if (status == -1) {
     set_active_stream(nullptr);
     input.stream.reset();
+    input.prefetch_done = true;
   }
   return status;
 }
