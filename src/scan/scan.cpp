@@ -511,14 +511,15 @@ std::string result_path(const std::string& out_prefix, const std::string& trait)
   return out_prefix + "." + trait + ".tsv.gz";
 }
 
-// htslib's decompression threads beside the scan's own. On a few cores they
-// only compete with the workers (on 2 cores a BCF scan took 1.6 times as
-// long with one of them), while the serial reader inflating the input itself
-// keeps pace with the statistics; with many workers it would not.
+// htslib's decompression threads beside the scan's own, for compressed VCF
+// and reading through an index (a BCF read whole is inflated by the workers
+// themselves). On a few cores they only compete with the workers (on 2 cores
+// a BCF scan took 1.6 times as long with one of them); with many workers the
+// serial reader would not keep pace without them.
 int decompression_threads_for(int scan_threads) { return scan_threads >= 4 ? scan_threads / 4 : 0; }
 
 // Records per block when the options leave it open: few enough that a
-// block's decoded dosages (and each trait's gathered copy) stay in a core's
+// block's decoded dosages (and its sample-major copy) stay in a core's
 // cache, while the kernel still gets a few register-wide groups of variants.
 std::size_t records_per_block_for(std::size_t sample_count) {
   constexpr std::size_t kBlockBytes = std::size_t{1} << 20;
