@@ -848,6 +848,26 @@ const RecordEdit kRecordEdits[] = {
      }},
 };
 
+
+// `stream` as one BGZF file (htslib 1.16 bgzf_write).
+void write_as_bgzf(const std::string& stream, const std::string& path) {
+  BGZF* file = bgzf_open(path.c_str(), "w");
+  ASSERT_NE(file, nullptr);
+  EXPECT_EQ(bgzf_write(file, stream.data(), stream.size()), static_cast<ssize_t>(stream.size()));
+  EXPECT_EQ(bgzf_close(file), 0);
+}
+
+// The file's first record reads; its second is refused as damage.
+void expect_second_record_refused(const std::string& path) {
+  OpenedBcf bcf(path);
+  ASSERT_TRUE(bcf.is_open());
+  const std::unique_ptr<PrefetchedBgzf> stream = open_stream(path, bcf.records_start());
+  ASSERT_NE(stream, nullptr);
+  RecordPtr slot;
+  EXPECT_EQ(read_bcf_record(*stream, bcf.header(), slot.record), 0);
+  EXPECT_EQ(read_bcf_record(*stream, bcf.header(), slot.record), -2);
+}
+
 class BcfPrefetchMalformedRecord : public ::testing::TestWithParam<RecordEdit> {
  protected:
   void SetUp() override {
@@ -864,12 +884,7 @@ class BcfPrefetchMalformedRecord : public ::testing::TestWithParam<RecordEdit> {
     std::string edited = small_.records[1];
     edit(edited, landmarks_of(small_.records[1]));
     const std::string path = dir_ + "/edited.bcf";
-    const std::string stream = small_.header + small_.records[0] + edited + small_.records[2];
-    BGZF* file = bgzf_open(path.c_str(), "w");
-    EXPECT_NE(file, nullptr);
-    if (!file) return path;
-    EXPECT_EQ(bgzf_write(file, stream.data(), stream.size()), static_cast<ssize_t>(stream.size()));
-    EXPECT_EQ(bgzf_close(file), 0);
+    write_as_bgzf(small_.header + small_.records[0] + edited + small_.records[2], path);
     return path;
   }
 
@@ -896,14 +911,7 @@ TEST(BcfPrefetchSmallFile, UneditedRecordsMatchHtslib) {
 }
 
 TEST_P(BcfPrefetchMalformedRecord, IsRefused) {
-  const std::string path = write_with_edited_second_record(GetParam().edit);
-  OpenedBcf bcf(path);
-  ASSERT_TRUE(bcf.is_open());
-  const std::unique_ptr<PrefetchedBgzf> stream = open_stream(path, bcf.records_start());
-  ASSERT_NE(stream, nullptr);
-  RecordPtr slot;
-  EXPECT_EQ(read_bcf_record(*stream, bcf.header(), slot.record), 0);
-  EXPECT_EQ(read_bcf_record(*stream, bcf.header(), slot.record), -2);
+  expect_second_record_refused(write_with_edited_second_record(GetParam().edit));
 }
 
 // Through GenotypeReader, the refusal is a tamis::Error that names the record.
@@ -938,18 +946,8 @@ TEST(BcfPrefetchSmallFile, RecordCutShortIsRefused) {
   for (std::size_t kept : {std::size_t{5}, std::size_t{31}, std::size_t{32}, std::size_t{40}, small.records[1].size() - 1}) {
     SCOPED_TRACE(std::to_string(kept) + " bytes of record 2 kept");
     const std::string path = dir + "/cut" + std::to_string(kept) + ".bcf";
-    const std::string stream = small.header + small.records[0] + small.records[1].substr(0, kept);
-    BGZF* file = bgzf_open(path.c_str(), "w");
-    ASSERT_NE(file, nullptr);
-    ASSERT_EQ(bgzf_write(file, stream.data(), stream.size()), static_cast<ssize_t>(stream.size()));
-    ASSERT_EQ(bgzf_close(file), 0);
-    OpenedBcf bcf(path);
-    ASSERT_TRUE(bcf.is_open());
-    const std::unique_ptr<PrefetchedBgzf> prefetched = open_stream(path, bcf.records_start());
-    ASSERT_NE(prefetched, nullptr);
-    RecordPtr slot;
-    EXPECT_EQ(read_bcf_record(*prefetched, bcf.header(), slot.record), 0);
-    EXPECT_EQ(read_bcf_record(*prefetched, bcf.header(), slot.record), -2);
+    write_as_bgzf(small.header + small.records[0] + small.records[1].substr(0, kept), path);
+    expect_second_record_refused(path);
   }
 }
 
