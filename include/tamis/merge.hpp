@@ -22,9 +22,4 @@ struct MergeSummary {
 // overlap, or when their traits differ.
 MergeSummary merge_shards(const MergeOptions& options);
 
-// Sidecar keys a shard's results carry, read back by merge.
-inline constexpr const char* kShardKey = "tamis_shard";
-inline constexpr const char* kShardRangesKey = "tamis_shard_ranges";
-inline constexpr const char* kFingerprintKey = "tamis_run_fingerprint";
-
 }  // namespace tamis

@@ -153,4 +153,10 @@ void write_metadata_sidecar(const std::string& data_path, const SidecarFields& f
 // anything it cannot read.
 SidecarFields read_metadata_sidecar(const std::string& sidecar_path, std::string* data_md5 = nullptr);
 
+// Extra sidecar keys of a scan's results: the run's fingerprint always, and
+// a shard's place and ranges, which `merge` reads back.
+inline constexpr const char* kShardKey = "tamis_shard";
+inline constexpr const char* kShardRangesKey = "tamis_shard_ranges";
+inline constexpr const char* kFingerprintKey = "tamis_run_fingerprint";
+
 }  // namespace tamis

@@ -20,7 +20,6 @@
 #include "scan/progress.hpp"
 #include "scan/trait_pass.hpp"
 #include "tamis/errors.hpp"
-#include "tamis/merge.hpp"
 #include "tamis/trait_transform.hpp"
 #include "tamis/results_writer.hpp"
 #include "tamis/run_log.hpp"
