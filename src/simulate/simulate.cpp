@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <array>
 #include <cmath>
+#include <cstdio>
 #include <string>
 #include <vector>
 
@@ -184,6 +185,15 @@ CausalVariant* find_causal(std::vector<CausalVariant>& causal, std::size_t varia
   return nullptr;
 }
 
+// The demo's variant IDs follow a scheme of our own that no public database
+// uses, so that nobody reads an invented association as a claim about a real
+// variant (and the results' rsid column reads #NA for the demo).
+std::string invented_variant_id(std::size_t variant_idx) {
+  char id[40];
+  std::snprintf(id, sizeof id, "saltmarsh_v%06zu", variant_idx + 1);
+  return id;
+}
+
 const char* random_base(Random& random) {
   static const char* bases[] = {"A", "C", "G", "T"};
   return bases[random.index(4)];
@@ -233,7 +243,7 @@ void write_genotypes(const SimulationOptions& options, const std::vector<Person>
       while (alt2 == ref || alt2 == alt) alt2 = random_base(random);
       line.clear();
       line += std::to_string(contig + 1) + "\t" + std::to_string(position) + "\t";
-      line += random.bernoulli(0.7) ? "rs" + std::to_string(1000000 + variant_idx) : std::string(".");
+      line += random.bernoulli(0.7) ? invented_variant_id(variant_idx) : std::string(".");
       line += std::string("\t") + ref + "\t" + alt + (design.triallelic ? std::string(",") + alt2 : "");
       line += "\t.\tPASS\t.\tGT:DS";
       for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
