@@ -1087,7 +1087,7 @@ TEST_F(BcfPrefetchReader, ReadsABcfFromAPipe) {
   const std::string fifo = dir_ + "/cohort_pipe.bcf";
   ASSERT_EQ(run_command("mkfifo " + quoted(fifo)), 0);
   // The writer waits for the reader; the time limit ends it if none comes.
-  ASSERT_EQ(run_command("(timeout 20 cat " + quoted(bcf) + " > " + quoted(fifo) + " 2>/dev/null &)"), 0);
+  ASSERT_EQ(run_command("(timeout 600 cat " + quoted(bcf) + " > " + quoted(fifo) + " 2>/dev/null &)"), 0);
   try {
     expect_same_sites_and_dosages(from_file, read_all({fifo}, DosageField::automatic, {50}));
   } catch (const Error& error) {

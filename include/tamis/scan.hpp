@@ -4,6 +4,7 @@
 
 #include <cstddef>
 #include <cstdint>
+#include <functional>
 #include <map>
 #include <set>
 #include <string>
@@ -27,10 +28,16 @@ inline constexpr double kFirthBelowMinorAlleleCount = 40.0;
 // `tamis confirm` takes up). Empty means every variant.
 struct VariantSelection {
   std::set<std::string> variant_ids;  // chromosome_position_ref_alt, chromosome as it is written out
-  std::set<std::string> record_ids;   // values of the VCF ID column
+  // Every entry of a list as written, matched against the VCF ID column; a
+  // complete chr:pos:ref:alt entry is also in variant_ids.
+  std::set<std::string> record_ids;
   std::map<std::string, std::set<std::string>> trait_variant_ids;  // for one trait only
   bool active() const { return !variant_ids.empty() || !record_ids.empty() || !trait_variant_ids.empty(); }
-  std::size_t size() const;
+  std::size_t size() const;  // list entries and results rows taken
+  // Whether a trait takes a record's allele: `id` is the record's ID column,
+  // matched whole or as one of its semicolon-separated IDs (VCF 4.3, 1.6.1);
+  // `variant_id` is the allele's chromosome_position_ref_alt.
+  bool takes(const std::string& trait, const std::string& id, const std::string& variant_id) const;
 };
 
 // Adds, for the results file's trait, its rows whose p-value is below
@@ -40,9 +47,11 @@ struct VariantSelection {
 void select_from_results(const std::string& results_path, double below, VariantSelection& selection,
                          std::vector<GenomicRegion>& regions);
 
-// Adds the variants of a list file, one per line: an ID, or chr:pos:ref:alt.
-// Positional entries add index regions; returns false when an ID entry
-// means the files must be read whole. Throws tamis::Error (usage).
+// Adds the variants of a list file, one per line. A complete chr:pos:ref:alt
+// is taken both as that allele and as an ID, and adds an index region at its
+// position; any other line (rs12345, chr1:16190, 1:12345:A) is an ID only.
+// Returns false when an ID-only entry means the files must be read whole.
+// Throws tamis::Error (usage) for a line that cannot be an ID.
 bool select_from_list(const std::string& list_path, ChromosomeCodes codes, VariantSelection& selection,
                       std::vector<GenomicRegion>& regions);
 
@@ -91,6 +100,11 @@ struct ScanOptions {
   // Outputs are flushed to a block boundary and the checkpoint is saved every
   // this many blocks, in every run, so a resumed file is byte-identical.
   std::size_t blocks_per_checkpoint = 64;
+  // Called by the serial writer after each block is written (and its
+  // checkpoint saved, if due), with the number of blocks written so far.
+  // Tests use it to interrupt a scan at a chosen block instead of racing a
+  // timer; not part of the run's description.
+  std::function<void(std::uint64_t blocks_written)> after_block;
 };
 
 // Per-trait tallies of what happened to each tested allele.

@@ -5,6 +5,7 @@
 #include <unistd.h>
 
 #include <cmath>
+#include <cstdlib>
 #include <cstdio>
 #include <set>
 #include <thread>
@@ -272,7 +273,7 @@ void add_analysis_options(CLI::App* command, ScanArguments& arguments) {
                       "always or never")
       ->capture_default_str();
   command->add_option("--variants", arguments.variant_list,
-                      "File of variants to take, one per line: an ID or chr:pos:ref:alt");
+                      "File of variants to take, one per line: an ID, or chr:pos:ref:alt (also matched as an ID)");
   command->add_option("--maf-floor", arguments.floors.minor_allele_frequency,
                       "Keep variants whose minor allele frequency is at least this");
   command->add_option("--mac-floor", arguments.floors.minor_allele_count,
@@ -406,9 +407,29 @@ ScanOptions check_confirm_options(const ScanArguments& arguments, const std::str
   return options;
 }
 
+// For tests only: TAMIS_TEST_SIGNAL_AFTER_BLOCK=K:TERM (or K:KILL, K:INT)
+// makes the scan send itself that signal once K blocks are written, so that
+// an interrupted run is the same on a fast machine and a slow one.
+void install_test_interruption(ScanOptions& options) {
+  const char* request = std::getenv("TAMIS_TEST_SIGNAL_AFTER_BLOCK");
+  if (!request) return;
+  const std::string text = request;
+  const std::size_t colon = text.find(':');
+  const std::string name = colon == std::string::npos ? "" : text.substr(colon + 1);
+  const int signal_number = name == "KILL" ? SIGKILL : name == "TERM" ? SIGTERM : name == "INT" ? SIGINT : 0;
+  const unsigned long long block = std::strtoull(text.c_str(), nullptr, 10);
+  if (signal_number == 0 || block == 0) {
+    refuse_option("TAMIS_TEST_SIGNAL_AFTER_BLOCK", "'" + text + "' is not BLOCK:KILL, BLOCK:TERM or BLOCK:INT", "");
+  }
+  options.after_block = [block, signal_number](std::uint64_t blocks_written) {
+    if (blocks_written == block) raise(signal_number);
+  };
+}
+
 int execute_scan(const ScanArguments& arguments, const std::string& command_line, bool confirm) {
-  const ScanOptions options = confirm ? check_confirm_options(arguments, command_line)
-                                      : check_scan_options(arguments, command_line);
+  ScanOptions options = confirm ? check_confirm_options(arguments, command_line)
+                                : check_scan_options(arguments, command_line);
+  install_test_interruption(options);
   RunLog& log = current_log();
   log.set_echo(!arguments.quiet);
   log.open(options.out_prefix + ".log");

@@ -4,14 +4,12 @@
 
 #include <cmath>
 #include <cstdio>
+#include <utility>
 
 #include "tamis/run_log.hpp"
 
 namespace tamis {
 namespace {
-
-constexpr double kTerminalInterval = 0.25;  // seconds between redraws
-constexpr double kLogInterval = 30.0;       // seconds between log lines
 
 std::string format_duration(double seconds) {
   const long total = std::lround(std::max(0.0, seconds));
@@ -35,11 +33,8 @@ ProgressMode choose_progress_mode(bool quiet) {
   return isatty(STDERR_FILENO) ? ProgressMode::terminal : ProgressMode::log_only;
 }
 
-ProgressDisplay::ProgressDisplay(ProgressMode mode, std::optional<std::uint64_t> total_records)
-    : mode_(mode),
-      total_(total_records),
-      start_(std::chrono::steady_clock::now()),
-      last_report_(start_) {}
+ProgressDisplay::ProgressDisplay(ProgressSettings settings)
+    : settings_(std::move(settings)), start_(settings_.clock()), last_report_(start_) {}
 
 std::string ProgressDisplay::describe(std::uint64_t records_done, std::optional<std::uint64_t> total,
                                       double elapsed_seconds) {
@@ -61,26 +56,32 @@ std::string ProgressDisplay::describe(std::uint64_t records_done, std::optional<
 }
 
 void ProgressDisplay::update(std::uint64_t records_done) {
-  if (mode_ == ProgressMode::silent) return;
-  const auto now = std::chrono::steady_clock::now();
-  const double since_last = seconds_between(last_report_, now);
-  const double interval = mode_ == ProgressMode::terminal ? kTerminalInterval : kLogInterval;
-  if (since_last < interval) return;
+  if (settings_.mode == ProgressMode::silent) return;
+  const auto now = settings_.clock();
+  const double interval =
+      settings_.mode == ProgressMode::terminal ? settings_.terminal_interval : settings_.log_interval;
+  if (seconds_between(last_report_, now) < interval) return;
+  report(records_done, now);
+}
+
+void ProgressDisplay::finish(std::uint64_t records_done) {
+  if (settings_.mode == ProgressMode::silent) return;
+  report(records_done, settings_.clock());
+  // The final line stays on screen, above the summary that follows.
+  if (settings_.mode == ProgressMode::terminal) std::fputc('\n', settings_.terminal);
+  std::fflush(settings_.terminal);
+}
+
+void ProgressDisplay::report(std::uint64_t records_done, std::chrono::steady_clock::time_point now) {
   last_report_ = now;
-  const std::string text = describe(records_done, total_, seconds_between(start_, now));
-  if (mode_ == ProgressMode::terminal) {
+  const std::string text = describe(records_done, settings_.total_records, seconds_between(start_, now));
+  if (settings_.mode == ProgressMode::terminal) {
     // \33[K clears what a longer earlier line left behind.
-    std::fprintf(stderr, "\r%s\33[K", text.c_str());
-    std::fflush(stderr);
-    drew_line_ = true;
+    std::fprintf(settings_.terminal, "\r%s\33[K", text.c_str());
+    std::fflush(settings_.terminal);
   } else {
     current_log().detail(text);
   }
-}
-
-void ProgressDisplay::finish() {
-  if (drew_line_) std::fprintf(stderr, "\r\33[K");
-  drew_line_ = false;
 }
 
 }  // namespace tamis

@@ -325,7 +325,10 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
   const std::size_t tokens = static_cast<std::size_t>(options.threads) * 3;
   const std::vector<std::size_t> left_out_by_all = samples_left_out_by_all(traits);
   const std::size_t sample_count = reader.sample_ids().size();
-  ProgressDisplay display(choose_progress_mode(options.quiet), reader.indexed_record_count());
+  ProgressSettings progress_settings;
+  progress_settings.mode = choose_progress_mode(options.quiet);
+  progress_settings.total_records = reader.indexed_record_count();
+  ProgressDisplay display(progress_settings);
 
   BlockPool pool;
   auto read_stage = [&](tbb::flow_control& control) -> BlockWork* {
@@ -370,6 +373,7 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     if (state.blocks % options.blocks_per_checkpoint == 0) save_progress(options, traits, progress);
     display.update(state.records);
     pool.give_back(work);
+    if (options.after_block) options.after_block(state.blocks);
   };
 
   tbb::parallel_pipeline(
@@ -377,7 +381,7 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
       tbb::make_filter<void, BlockWork*>(tbb::filter_mode::serial_in_order, read_stage) &
           tbb::make_filter<BlockWork*, BlockWork*>(tbb::filter_mode::parallel, test_stage) &
           tbb::make_filter<BlockWork*, void>(tbb::filter_mode::serial_in_order, write_stage));
-  display.finish();
+  display.finish(progress.state.records);
 }
 
 // The checkpoint of an interrupted run with the same inputs and options, or
