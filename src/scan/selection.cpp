@@ -1,7 +1,9 @@
 // Variant lists: which variants a scan or a confirmation takes, and the index
 // regions that hold them, so that only those records are read.
+#include <algorithm>
 #include <cmath>
 #include <fstream>
+#include <optional>
 #include <set>
 
 #include "tamis/errors.hpp"
@@ -48,12 +50,64 @@ std::string trait_of_results(const std::string& results_path) {
   return name.substr(name.find_last_of('.') + 1);
 }
 
+// A list entry that names one allele: chromosome, position >= 1, ref, alt.
+struct AlleleKey {
+  std::string chromosome;
+  std::int64_t position = 0;
+  std::string ref;
+  std::string alt;
+};
+
+std::optional<AlleleKey> parse_allele_key(const std::string& entry) {
+  std::vector<std::string> parts;
+  std::size_t start = 0, colon;
+  while ((colon = entry.find(':', start)) != std::string::npos) {
+    parts.push_back(entry.substr(start, colon - start));
+    start = colon + 1;
+  }
+  parts.push_back(entry.substr(start));
+  if (parts.size() != 4 || parts[0].empty() || parts[2].empty() || parts[3].empty()) return std::nullopt;
+  const std::string& digits = parts[1];
+  if (digits.empty() || digits.find_first_not_of("0123456789") != std::string::npos) return std::nullopt;
+  const long long position = std::strtoll(digits.c_str(), nullptr, 10);
+  if (position < 1) return std::nullopt;
+  return AlleleKey{parts[0], position, parts[2], parts[3]};
+}
+
+// A list line that cannot be an ID: "." (the ID column's missing value,
+// which would take every unnamed record) or one holding whitespace, which no
+// VCF ID does (VCF 4.3, 1.6.1); most likely a file of several columns.
+void check_id_entry(const std::string& entry, const std::string& where) {
+  if (entry == ".") {
+    throw Error(ExitCode::usage, where, "'.' is the VCF mark of a missing ID, not a variant",
+                "leave the line out, or write the variant as chr:pos:ref:alt");
+  }
+  if (entry.find_first_of(" \t") != std::string::npos) {
+    throw Error(ExitCode::usage, where, "expected one ID or chr:pos:ref:alt, found '" + entry + "'",
+                "write one variant per line, for example rs12345, chr1:16190 or 2:1234567:A:G");
+  }
+}
+
 }  // namespace
 
 std::size_t VariantSelection::size() const {
-  std::size_t count = variant_ids.size() + record_ids.size();
+  std::size_t count = record_ids.size();
   for (const auto& entry : trait_variant_ids) count += entry.second.size();
   return count;
+}
+
+bool VariantSelection::takes(const std::string& trait, const std::string& id, const std::string& variant_id) const {
+  if (record_ids.count(id) || variant_ids.count(variant_id)) return true;
+  if (!record_ids.empty() && id.find(';') != std::string::npos) {
+    std::size_t start = 0;
+    while (start <= id.size()) {
+      const std::size_t end = std::min(id.find(';', start), id.size());
+      if (record_ids.count(id.substr(start, end - start))) return true;
+      start = end + 1;
+    }
+  }
+  auto for_trait = trait_variant_ids.find(trait);
+  return for_trait != trait_variant_ids.end() && for_trait->second.count(variant_id) > 0;
 }
 
 void select_from_results(const std::string& results_path, double below, VariantSelection& selection,
@@ -86,35 +140,23 @@ bool select_from_list(const std::string& list_path, ChromosomeCodes codes, Varia
     ++line_number;
     const std::string entry = trim(line);
     if (entry.empty() || entry[0] == '#') continue;
-    std::vector<std::string> parts;
-    std::size_t start = 0, colon;
-    while ((colon = entry.find(':', start)) != std::string::npos) {
-      parts.push_back(entry.substr(start, colon - start));
-      start = colon + 1;
-    }
-    parts.push_back(entry.substr(start));
-    if (parts.size() == 1) {
-      selection.record_ids.insert(entry);
+    check_id_entry(entry, list_path + ", line " + std::to_string(line_number));
+    selection.record_ids.insert(entry);
+    const std::optional<AlleleKey> key = parse_allele_key(entry);
+    if (!key) {
       indexed = false;
       continue;
     }
-    char* end = nullptr;
-    const long long position = parts.size() == 4 ? std::strtoll(parts[1].c_str(), &end, 10) : 0;
-    if (parts.size() != 4 || position < 1 || *end != '\0' || parts[2].empty() || parts[3].empty()) {
-      throw Error(ExitCode::usage, list_path + ", line " + std::to_string(line_number),
-                  "expected an ID or chr:pos:ref:alt, found '" + entry + "'",
-                  "write one variant per line, for example rs12345 or 2:1234567:A:G");
-    }
-    std::string code = parts[0];
+    std::string code = key->chromosome;
     if (codes == ChromosomeCodes::ssf) {
-      auto mapped = map_chromosome_ssf(parts[0]);
+      auto mapped = map_chromosome_ssf(key->chromosome);
       if (mapped) code = *mapped;
     }
-    selection.variant_ids.insert(code + "_" + parts[1] + "_" + parts[2] + "_" + parts[3]);
+    selection.variant_ids.insert(code + "_" + std::to_string(key->position) + "_" + key->ref + "_" + key->alt);
     if (codes == ChromosomeCodes::ssf) {
-      add_position(code, position, regions);
+      add_position(code, key->position, regions);
     } else {
-      regions.push_back({parts[0], position, position});
+      regions.push_back({key->chromosome, key->position, key->position});
     }
   }
   return indexed;

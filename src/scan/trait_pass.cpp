@@ -489,15 +489,6 @@ std::string make_variant_id(const VariantSite& site, const std::string& chromoso
   return chromosome + "_" + std::to_string(site.position) + "_" + site.ref + "_" + site.alt;
 }
 
-bool is_selected(const VariantSelection& selection, const std::string& trait, const VariantSite& site,
-                 const std::string& chromosome) {
-  if (selection.record_ids.count(site.id)) return true;
-  const std::string variant_id = make_variant_id(site, chromosome);
-  if (selection.variant_ids.count(variant_id)) return true;
-  auto for_trait = selection.trait_variant_ids.find(trait);
-  return for_trait != selection.trait_variant_ids.end() && for_trait->second.count(variant_id) > 0;
-}
-
 bool looks_like_rsid(const std::string& id) {
   if (id.size() < 3 || id[0] != 'r' || id[1] != 's') return false;
   return std::all_of(id.begin() + 2, id.end(), [](char c) { return c >= '0' && c <= '9'; });
@@ -675,8 +666,8 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block, co
 
   ResultRow row;
   for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
-    if (trait.selection &&
-        !is_selected(*trait.selection, trait.set.trait, block.sites[site_idx], chromosomes[site_idx])) {
+    if (trait.selection && !trait.selection->takes(trait.set.trait, block.sites[site_idx].id,
+                                                   make_variant_id(block.sites[site_idx], chromosomes[site_idx]))) {
       continue;
     }
     const SiteSummary& summary = scratch.summaries[site_idx];
