@@ -10,6 +10,7 @@
 #include <Eigen/Dense>
 #include <cstddef>
 #include <cstdint>
+#include <functional>
 #include <memory>
 #include <string>
 #include <vector>
@@ -35,20 +36,42 @@ struct VarianceComponents {
   bool at_boundary = false;     // h2 = 0 (or the largest admissible h2)
 };
 
-// Thrown as tamis::Error(ExitCode::model, ...) where H cannot be factored at
-// any admissible h2; the message names the component's first samples by
-// index, which the caller maps to sample IDs.
+// Components of more samples than this are factored by a sparse Cholesky
+// at each h2 rather than eigendecomposed once (O(k^3) time, k^2 memory).
+inline constexpr std::size_t kDenseComponentLimit = 2000;
+
+struct MixedModelOptions {
+  std::size_t dense_component_limit = kDenseComponentLimit;
+  // Names analysis sample i in error messages; "#i" (from 0) when empty.
+  std::function<std::string(std::uint32_t)> sample_label;
+};
+
+// Thrown as tamis::Error(ExitCode::model, ...) where H cannot be factored
+// over a useful range of h2 (only below 0.5: A has an eigenvalue below -1);
+// the message names the component's first samples (by sample_label, or by
+// index) and suggests a higher --keep-above.
 class MixedModel {
  public:
   // `y` and `design` (intercept in column 0) over the trait's analysis
   // samples, in the same order as the relatedness matrix's samples.
-  // Fits h2 by REML (profiling s2 out), and the same null model by ML.
+  // Columns of `design` that are exactly collinear with earlier ones are
+  // dropped as fit_null_model drops them. Fits h2 by REML (profiling s2
+  // out), and the same null model by ML. Throws tamis::Error
+  // (ExitCode::model) for a constant trait or no residual degrees of freedom,
+  // as fit_null_model does.
   static MixedModel fit(const Eigen::VectorXd& y, const Eigen::MatrixXd& design,
                         const SparseRelatedness& relatedness);
+  static MixedModel fit(const Eigen::VectorXd& y, const Eigen::MatrixXd& design,
+                        const SparseRelatedness& relatedness, const MixedModelOptions& options);
 
   const VarianceComponents& reml() const { return reml_; }
   const VarianceComponents& null_ml() const { return null_ml_; }
   const std::vector<std::vector<std::uint32_t>>& components() const;
+
+  // The GLS estimates of the fixed effects at the REML h2 and their SEs
+  // from s2_REML (X'H^-1 X)^-1, one per kept column of the design.
+  const Eigen::VectorXd& coefficients() const;
+  const Eigen::VectorXd& standard_errors() const;
 
   // Whitening at the REML h2: W with W'W = H^-1, applied per component, so
   // that ordinary least squares on (W y, W X) is the GLS fit and the
@@ -57,14 +80,17 @@ class MixedModel {
   Eigen::MatrixXd whiten(const Eigen::MatrixXd& values) const;
   // Whitens a sample-major block in place: sample s's values for the
   // block's `width` variants are genotypes[row_of_sample[s] * width + 0..width-1].
-  // Rows not named in row_of_sample are left alone.
+  // Rows not named in row_of_sample are left alone. Costs O(sum_c k_c^2
+  // width); safe to call from several threads at once.
   void whiten_block(double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample) const;
 
   // The confirmation refit of one variant (imputed dosages over the analysis
   // samples, original scale): the variant as a fixed effect, variance
   // components re-estimated by ML under the full model; LR = 2 (l1 - l0) of
   // the two ML fits (chi2_1), Wald from the GLS estimate and its SE at the
-  // full model's ML components (chi2_1).
+  // full model's ML components (chi2_1). iterations counts the evaluations
+  // of the full model's likelihood. A genotype in the covariate span gives
+  // converged = false and every statistic 0, as confirm_variant does.
   ConfirmResult confirm(const Eigen::VectorXd& genotype) const;
 
   ~MixedModel();

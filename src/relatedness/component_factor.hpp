@@ -1,0 +1,76 @@
+// Factorisations of H(h2) = (1 - h2) I + h2 A over groups of samples that A
+// does not connect to anyone outside the group, behind one interface:
+//   - EigenComponents: every singleton and every component up to the dense
+//     limit, each decomposed once as A_c = U diag(lambda) U'. In the rotated
+//     coordinates U' z, H_c is diagonal (1 + h2 (lambda - 1)), so any h2 costs
+//     one weighted pass over the rotated rows.
+//   - SparseComponent: one large component, H_c factored as P' L L' P by a
+//     sparse Cholesky at each h2 (the eigendecomposition would be O(k^3)).
+// The whitening W = D^-1/2 U' (or L^-1 P) gives W'W = H^-1.
+#pragma once
+
+#include <Eigen/Dense>
+#include <Eigen/SparseCholesky>
+#include <Eigen/SparseCore>
+#include <cstddef>
+#include <cstdint>
+#include <memory>
+#include <vector>
+
+
+namespace tamis::detail {
+
+// The smallest eigenvalue H may have at an admissible h2: keeps H's
+// condition bounded as h2 nears 1 on a singular A (a family intercept, whose
+// A_c = J has eigenvalue 0), and below 1 / (1 - lambda_min) where an
+// estimated A has a negative eigenvalue.
+constexpr double kSmallestEigenvalueOfH = 1e-6;
+
+// The admissible range [0, h2_max] of one factor, and the component that
+// sets it when it is below 1 - kSmallestEigenvalueOfH.
+struct AdmissibleRange {
+  double h2_max = 1.0 - kSmallestEigenvalueOfH;
+  std::vector<std::uint32_t> limiting_samples;   // model indices, ascending; empty when no component limits
+  double smallest_eigenvalue_of_a = 1.0;         // of the limiting component (NaN where unknown: sparse)
+};
+
+class CovarianceFactor {
+ public:
+  virtual ~CovarianceFactor() = default;
+
+  // Working rows: the h2-free transform of the factor's samples (rotated by
+  // U' or permuted by P), in the factor's own order.
+  virtual Eigen::Index row_count() const = 0;
+  virtual const AdmissibleRange& admissible_range() const = 0;
+  // `columns` holds one row per model sample; returns row_count() rows.
+  virtual Eigen::MatrixXd to_working_rows(const Eigen::Ref<const Eigen::MatrixXd>& columns) const = 0;
+  // Adds (W z)'(W z) over the working rows at h2 to `gram` and returns
+  // log|H| over the factor's samples (NaN where H cannot be factored).
+  virtual double add_whitened_gram(double h2, const Eigen::Ref<const Eigen::MatrixXd>& working,
+                                   Eigen::MatrixXd& gram) const = 0;
+  // Fixes the whitening at h2 (the REML estimate).
+  virtual void set_whitening(double h2) = 0;
+  // Replaces the rows of a sample-major block that belong to the factor's
+  // samples by their whitened values: component sample j (in ascending
+  // order) receives whitened coordinate j. `scratch` is reused.
+  virtual void whiten_block(double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
+                            std::vector<double>& scratch) const = 0;
+};
+
+// One connected component of A in its own local numbering.
+struct RelatedComponent {
+  std::vector<std::uint32_t> samples;               // model indices, ascending
+  std::vector<double> diagonal;                     // A_jj, in the order of samples
+  std::vector<Eigen::Triplet<double>> pairs;        // (local row > local column, A), each pair once
+};
+
+// Samples that A connects to no one (with their A_jj) and components of at
+// most the dense limit.
+std::unique_ptr<CovarianceFactor> make_eigen_components(std::vector<std::uint32_t> singletons,
+                                                        std::vector<double> singleton_diagonal,
+                                                        std::vector<RelatedComponent> components);
+
+// One component, factored by a sparse Cholesky at each h2.
+std::unique_ptr<CovarianceFactor> make_sparse_component(RelatedComponent component);
+
+}  // namespace tamis::detail
