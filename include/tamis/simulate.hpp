@@ -6,6 +6,9 @@
 // frequencies and the traits, so principal-component-like covariates matter.
 // The traits are lung capacity (`fev1_litres`, quantitative) and a history of
 // winter wheeze (`winter_wheeze`, binary), each with planted causal variants.
+// With --families some residents are parents, children, siblings, half-siblings
+// or cousins of others; with --heritability both traits carry a polygenic
+// component that relatives share.
 #pragma once
 
 #include <cstdint>
@@ -23,12 +26,15 @@ struct SimulationOptions {
   double missing_rate = 0.01;    // missing genotypes and table values
   double rare_fraction = 0.3;    // share of variants with minor allele frequency below 1%
   int causal_per_trait = 6;      // 0 gives a null cohort
+  double family_share = 0.0;     // share of samples in families of 2 to 6 (--families)
+  double heritability = 0.0;     // h² of a polygenic component of both traits (--heritability)
 };
 
 struct SimulationOutputs {
   std::string vcf_path;     // PREFIX.vcf.gz (+ .tbi)
   std::string table_path;   // PREFIX.traits.tsv
   std::string truth_path;   // PREFIX.truth.tsv: the planted effects
+  std::string families_path;  // PREFIX.families.tsv: each sample's family; empty without families
 };
 
 SimulationOutputs simulate_cohort(const SimulationOptions& options);

@@ -332,6 +332,13 @@ void add_simulate_command(CLI::App& app, SimulationOptions& options) {
       ->capture_default_str();
   simulate->add_option("--causal", options.causal_per_trait, "Planted variants per trait (0: a null cohort)")
       ->capture_default_str();
+  simulate->add_option("--families", options.family_share,
+                       "Share of samples in families of 2 to 6 (parents, children, siblings, half-siblings, "
+                       "cousins), from 0 to 1; their pedigree goes to PREFIX.families.tsv")
+      ->capture_default_str();
+  simulate->add_option("--heritability", options.heritability,
+                       "h² of a polygenic component of both traits, shared by relatives, in [0, 1)")
+      ->capture_default_str();
 }
 
 struct ReportArguments {
@@ -448,6 +455,7 @@ int execute_simulate(const SimulationOptions& options) {
   const SimulationOutputs outputs = simulate_cohort(options);
   std::fprintf(stderr, "genotypes: %s\ntraits: %s\nplanted effects: %s\n", outputs.vcf_path.c_str(),
                outputs.table_path.c_str(), outputs.truth_path.c_str());
+  if (!outputs.families_path.empty()) std::fprintf(stderr, "families: %s\n", outputs.families_path.c_str());
   return 0;
 }
 

@@ -7,82 +7,29 @@
 #include <string>
 #include <vector>
 
+#include "people.hpp"
+#include "polygenic.hpp"
+#include "random.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/results_writer.hpp"
 
 namespace tamis {
 namespace {
 
-// xoshiro256** seeded through splitmix64: small, fast, and the same stream on
-// every platform (the standard library's distributions are not).
-class Random {
- public:
-  explicit Random(std::uint64_t seed) {
-    for (auto& word : state_) word = split_mix(seed);
-  }
-  std::uint64_t next() {
-    const std::uint64_t result = rotate(state_[1] * 5, 7) * 9;
-    const std::uint64_t shifted = state_[1] << 17;
-    state_[2] ^= state_[0];
-    state_[3] ^= state_[1];
-    state_[1] ^= state_[2];
-    state_[0] ^= state_[3];
-    state_[2] ^= shifted;
-    state_[3] = rotate(state_[3], 45);
-    return result;
-  }
-  double uniform() { return static_cast<double>(next() >> 11) * 0x1.0p-53; }
-  double uniform(double low, double high) { return low + (high - low) * uniform(); }
-  bool bernoulli(double p) { return uniform() < p; }
-  double normal() {
-    if (has_spare_) {
-      has_spare_ = false;
-      return spare_;
-    }
-    double u1 = uniform();
-    while (u1 <= 0.0) u1 = uniform();
-    const double u2 = uniform();
-    const double radius = std::sqrt(-2.0 * std::log(u1));
-    spare_ = radius * std::sin(2.0 * M_PI * u2);
-    has_spare_ = true;
-    return radius * std::cos(2.0 * M_PI * u2);
-  }
-  std::size_t index(std::size_t count) { return static_cast<std::size_t>(uniform() * count) % count; }
-
- private:
-  static std::uint64_t rotate(std::uint64_t x, int k) { return (x << k) | (x >> (64 - k)); }
-  static std::uint64_t split_mix(std::uint64_t& x) {
-    std::uint64_t z = (x += 0x9e3779b97f4a7c15ULL);
-    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
-    z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
-    return z ^ (z >> 31);
-  }
-  std::uint64_t state_[4];
-  bool has_spare_ = false;
-  double spare_ = 0.0;
-};
-
-struct Village {
-  const char* name;
-  double mean_ancestry;  // share of founding group A
-  double fev1_shift;
-};
-constexpr Village kVillages[] = {{"hollin_bay", 0.2, 0.0}, {"gull_point", 0.5, 0.1}, {"reedmouth", 0.8, -0.15}};
+using simulation::Cohort;
+using simulation::kVillages;
+using simulation::Person;
+using simulation::Random;
 
 // Within a run of linked common variants each allele is the neighbour's with
 // this probability; a run ends at a variant with the break probability.
 constexpr double kHaplotypeCopy = 0.9;
 constexpr double kHaplotypeBreak = 0.15;
-
-struct Person {
-  std::string id;
-  int age = 0;
-  bool female = false;
-  int village = 0;
-  double ancestry = 0.0;
-  double pcs[4] = {0, 0, 0, 0};
-  bool in_table = true;
-};
+// A child passes on one parent's haplotype until a crossover, which falls
+// between neighbouring variants with this probability (about 150 segments per
+// parent over 3,000 variants, so that relatives' sharing stays near its
+// expectation, as over a whole human genome).
+constexpr double kCrossover = 0.05;
 
 struct CausalVariant {
   std::size_t variant_idx = 0;
@@ -94,25 +41,6 @@ struct CausalVariant {
 };
 
 double clamp(double value, double low, double high) { return std::min(high, std::max(low, value)); }
-
-std::vector<Person> make_people(const SimulationOptions& options, Random& random) {
-  std::vector<Person> people(static_cast<std::size_t>(options.samples));
-  char id[32];
-  for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
-    Person& person = people[person_idx];
-    std::snprintf(id, sizeof id, "SR%05zu", person_idx + 1);
-    person.id = id;
-    person.age = 18 + static_cast<int>(random.index(63));
-    person.female = random.bernoulli(0.5);
-    person.village = static_cast<int>(random.index(3));
-    person.ancestry = clamp(kVillages[person.village].mean_ancestry + 0.12 * random.normal(), 0.0, 1.0);
-    person.pcs[0] = 0.08 * (person.ancestry - 0.5) + 0.004 * random.normal();
-    for (int pc_idx = 1; pc_idx < 4; ++pc_idx) person.pcs[pc_idx] = 0.02 * random.normal();
-    // About one in a hundred genotyped people never filled in the questionnaire.
-    person.in_table = !random.bernoulli(0.01);
-  }
-  return people;
-}
 
 struct VariantDesign {
   double frequency_a = 0.0;
@@ -145,7 +73,7 @@ void append_dosage(double dosage, std::string& line) {
   line += static_cast<char>('0' + fraction % 10);
 }
 
-std::string vcf_header(const SimulationOptions& options, const std::vector<Person>& people,
+std::string vcf_header(const SimulationOptions& options, const Cohort& cohort,
                        const std::vector<std::int64_t>& contig_lengths) {
   std::string header = "##fileformat=VCFv4.3\n";
   header += "##source=tamis simulate: Saltmarsh Ridge synthetic cohort, seed " + std::to_string(options.seed) + "\n";
@@ -156,7 +84,7 @@ std::string vcf_header(const SimulationOptions& options, const std::vector<Perso
   header += "##FORMAT=<ID=GT,Number=1,Type=String,Description=\"Genotype\">\n";
   header += "##FORMAT=<ID=DS,Number=A,Type=Float,Description=\"Expected count of each ALT allele\">\n";
   header += "#CHROM\tPOS\tID\tREF\tALT\tQUAL\tFILTER\tINFO\tFORMAT";
-  for (const Person& person : people) header += "\t" + person.id;
+  for (std::size_t person_idx : cohort.samples) header += "\t" + cohort.people[person_idx].id;
   header += "\n";
   return header;
 }
@@ -199,9 +127,39 @@ const char* random_base(Random& random) {
   return bases[random.index(4)];
 }
 
+// A founder's alleles come from the frequency that their ancestry gives, or
+// stay those of the neighbouring variant within a run of linked variants.
+void draw_founder_alleles(const VariantDesign& design, double frequency, bool linked, Random& random,
+                          int* alleles) {
+  for (int copy_idx = 0; copy_idx < 2; ++copy_idx) {
+    int& allele = alleles[copy_idx];
+    if (linked && random.bernoulli(kHaplotypeCopy)) continue;  // keeps the neighbour's allele
+    allele = random.bernoulli(frequency) ? 1 : 0;
+    if (allele == 0 && design.triallelic && random.bernoulli(design.second_alt_frequency)) allele = 2;
+  }
+}
+
+// A child's alleles: one from the father and one from the mother, each from the
+// haplotype that parent is passing on (`passed_on`), which changes at a crossover.
+void inherit_alleles(const Person& child, const std::vector<std::array<int, 2>>& haplotypes, bool contig_start,
+                     Random& random, std::array<std::uint8_t, 2>& passed_on, int* alleles) {
+  const int parents[2] = {child.father, child.mother};
+  for (int parent_idx = 0; parent_idx < 2; ++parent_idx) {
+    std::uint8_t& copy = passed_on[parent_idx];
+    if (contig_start) {
+      copy = static_cast<std::uint8_t>(random.index(2));
+    } else if (random.bernoulli(kCrossover)) {
+      copy ^= 1;
+    }
+    alleles[parent_idx] = haplotypes[static_cast<std::size_t>(parents[parent_idx])][copy];
+  }
+}
+
 // Writes the VCF record by record; keeps the genotypes of the planted variants.
-void write_genotypes(const SimulationOptions& options, const std::vector<Person>& people,
-                     std::vector<CausalVariant>& causal, Random& random, const std::string& path) {
+// People are visited parents first, so that children inherit this variant's alleles.
+void write_genotypes(const SimulationOptions& options, const Cohort& cohort, std::vector<CausalVariant>& causal,
+                     Random& random, const std::string& path) {
+  const std::vector<Person>& people = cohort.people;
   const int per_chromosome = std::max(1, options.variants / options.chromosomes);
   std::vector<std::int64_t> contig_lengths(static_cast<std::size_t>(options.chromosomes), 0);
   std::vector<std::vector<std::int64_t>> positions(contig_lengths.size());
@@ -214,11 +172,13 @@ void write_genotypes(const SimulationOptions& options, const std::vector<Person>
   for (auto& length : contig_lengths) length += 10000;
 
   BgzfTextFile vcf(path);
-  vcf.write(vcf_header(options, people, contig_lengths));
+  vcf.write(vcf_header(options, cohort, contig_lengths));
+  std::vector<std::array<std::uint8_t, 2>> passed_on(people.size());
   std::string line;
   std::size_t variant_idx = 0;
   for (std::size_t contig = 0; contig < positions.size(); ++contig) {
     bool previous_common = false;
+    bool contig_start = true;
     std::vector<std::array<int, 2>> haplotypes(people.size(), std::array<int, 2>{0, 0});
     for (std::int64_t position : positions[contig]) {
       CausalVariant* planted = find_causal(causal, variant_idx);
@@ -251,12 +211,12 @@ void write_genotypes(const SimulationOptions& options, const std::vector<Person>
         const double frequency =
             person.ancestry * design.frequency_a + (1.0 - person.ancestry) * design.frequency_b;
         int* alleles = haplotypes[person_idx].data();
-        for (int copy_idx = 0; copy_idx < 2; ++copy_idx) {
-          int& allele = alleles[copy_idx];
-          if (linked && random.bernoulli(kHaplotypeCopy)) continue;  // keeps the neighbour's allele
-          allele = random.bernoulli(frequency) ? 1 : 0;
-          if (allele == 0 && design.triallelic && random.bernoulli(design.second_alt_frequency)) allele = 2;
+        if (person.is_founder()) {
+          draw_founder_alleles(design, frequency, linked, random, alleles);
+        } else {
+          inherit_alleles(person, haplotypes, contig_start, random, passed_on[person_idx], alleles);
         }
+        if (!person.genotyped) continue;
         if (planted) planted->genotypes.push_back(alleles[0] + alleles[1]);
         if (random.bernoulli(options.missing_rate)) {
           line += design.triallelic ? "\t./.:.,." : "\t./.:.";
@@ -279,6 +239,7 @@ void write_genotypes(const SimulationOptions& options, const std::vector<Person>
       line += '\n';
       vcf.write(line);
       previous_common = common;
+      contig_start = false;
       ++variant_idx;
     }
   }
@@ -311,20 +272,32 @@ std::string fixed(double value, int decimals) {
   return text;
 }
 
-void write_table(const SimulationOptions& options, const std::vector<Person>& people,
-                 const std::vector<CausalVariant>& causal, Random& random, const std::string& path) {
-  std::vector<double> fev1(people.size()), wheeze_logit(people.size());
-  for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
-    const Person& person = people[person_idx];
-    fev1[person_idx] = 4.2 - 0.025 * (person.age - 45) - 0.7 * person.female +
+// `genetic_values` (empty without --heritability) holds each sample's
+// standardised polygenic values. The polygenic part takes h² of the residual
+// variance of fev1_litres (0.5² litres², the rest is noise) and, on the logit
+// scale of winter_wheeze, σ²_g / (σ²_g + π²/3) = h².
+void write_table(const SimulationOptions& options, const Cohort& cohort, const std::vector<CausalVariant>& causal,
+                 const std::vector<std::array<double, 2>>& genetic_values, Random& random, const std::string& path) {
+  const std::size_t samples = cohort.samples.size();
+  const double heritability = options.heritability;
+  const double noise_sd = 0.5 * std::sqrt(1.0 - heritability);
+  const double genetic_sd[2] = {0.5 * std::sqrt(heritability),
+                                std::sqrt(heritability / (1.0 - heritability) * M_PI * M_PI / 3.0)};
+  std::vector<double> fev1(samples), wheeze_logit(samples);
+  for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
+    const Person& person = cohort.people[cohort.samples[sample_idx]];
+    fev1[sample_idx] = 4.2 - 0.025 * (person.age - 45) - 0.7 * person.female +
                        0.6 * (person.ancestry - 0.5) + kVillages[person.village].fev1_shift +
-                       0.5 * random.normal();
-    wheeze_logit[person_idx] = 0.02 * (person.age - 45) + 0.3 * !person.female + 1.0 * (person.ancestry - 0.5);
+                       noise_sd * random.normal();
+    wheeze_logit[sample_idx] = 0.02 * (person.age - 45) + 0.3 * !person.female + 1.0 * (person.ancestry - 0.5);
+    if (genetic_values.empty()) continue;
+    fev1[sample_idx] += genetic_sd[0] * genetic_values[sample_idx][0];
+    wheeze_logit[sample_idx] += genetic_sd[1] * genetic_values[sample_idx][1];
   }
   for (const CausalVariant& variant : causal) {
     auto& target = variant.trait == 0 ? fev1 : wheeze_logit;
-    for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
-      target[person_idx] += variant.effect * variant.genotypes[person_idx];
+    for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
+      target[sample_idx] += variant.effect * variant.genotypes[sample_idx];
     }
   }
   const double intercept = solve_intercept(wheeze_logit, options.prevalence);
@@ -332,16 +305,16 @@ void write_table(const SimulationOptions& options, const std::vector<Person>& pe
   PlainTextFile table(path);
   table.write("participant\tage\tsex\tvillage\tpc1\tpc2\tpc3\tpc4\tfev1_litres\twinter_wheeze\n");
   const double rate = options.missing_rate;
-  for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
-    const Person& person = people[person_idx];
-    const bool is_case = random.bernoulli(1.0 / (1.0 + std::exp(-(wheeze_logit[person_idx] + intercept))));
+  for (std::size_t sample_idx = 0; sample_idx < samples; ++sample_idx) {
+    const Person& person = cohort.people[cohort.samples[sample_idx]];
+    const bool is_case = random.bernoulli(1.0 / (1.0 + std::exp(-(wheeze_logit[sample_idx] + intercept))));
     if (!person.in_table) continue;
     std::string row = person.id;
     row += "\t" + maybe_missing(std::to_string(person.age), rate, random);
     row += "\t" + maybe_missing(person.female ? "F" : "M", rate, random);
     row += "\t" + maybe_missing(kVillages[person.village].name, rate, random);
     for (double pc : person.pcs) row += "\t" + fixed(pc, 6);
-    row += "\t" + maybe_missing(fixed(fev1[person_idx], 4), rate, random);
+    row += "\t" + maybe_missing(fixed(fev1[sample_idx], 4), rate, random);
     row += "\t" + maybe_missing(is_case ? "1" : "0", rate, random);
     table.write(row + "\n");
   }
@@ -378,6 +351,12 @@ void check_options(const SimulationOptions& options) {
   if (options.causal_per_trait < 0 || options.causal_per_trait > options.variants / 4) {
     refuse("--causal must be between 0 and a quarter of --variants", "");
   }
+  if (!(options.family_share >= 0.0 && options.family_share <= 1.0)) {
+    refuse("--families must lie in [0, 1]", "give the share of samples in families, for example 0.3");
+  }
+  if (!(options.heritability >= 0.0 && options.heritability < 1.0)) {
+    refuse("--heritability must lie in [0, 1)", "for example 0.6");
+  }
 }
 
 }  // namespace
@@ -386,13 +365,20 @@ SimulationOutputs simulate_cohort(const SimulationOptions& options) {
   check_options(options);
   check_output_prefix_writable(options.out_prefix);
   SimulationOutputs outputs{options.out_prefix + ".vcf.gz", options.out_prefix + ".traits.tsv",
-                            options.out_prefix + ".truth.tsv"};
+                            options.out_prefix + ".truth.tsv", ""};
   Random random(options.seed);
-  const std::vector<Person> people = make_people(options, random);
+  const Cohort cohort = simulation::make_cohort(options, random);
   std::vector<CausalVariant> causal = choose_causal_variants(options, random);
-  write_genotypes(options, people, causal, random, outputs.vcf_path);
-  write_table(options, people, causal, random, outputs.table_path);
+  write_genotypes(options, cohort, causal, random, outputs.vcf_path);
+  const std::vector<std::array<double, 2>> genetic_values =
+      options.heritability > 0.0 ? simulation::draw_genetic_values(cohort, options.seed)
+                                 : std::vector<std::array<double, 2>>();
+  write_table(options, cohort, causal, genetic_values, random, outputs.table_path);
   write_truth(causal, outputs.truth_path);
+  if (options.family_share > 0.0) {
+    outputs.families_path = options.out_prefix + ".families.tsv";
+    simulation::write_families(cohort, outputs.families_path);
+  }
   return outputs;
 }
 
