@@ -48,8 +48,9 @@ void select_from_results(const std::string& results_path, double below, VariantS
                          std::vector<GenomicRegion>& regions);
 
 // Adds the variants of a list file, one per line. A complete chr:pos:ref:alt
-// is taken both as that allele and as an ID, and adds an index region at its
-// position; any other line (rs12345, chr1:16190, 1:12345:A) is an ID only.
+// (position from 1, alleles in bases, ALT also * or <ID>) is taken both as
+// that allele and as an ID, and adds an index region at its position; any
+// other line (rs12345, chr1:16190, 1:12345:A, HLA-A*01:01:01:01) is an ID only.
 // Returns false when an ID-only entry means the files must be read whole.
 // Throws tamis::Error (usage) for a line that cannot be an ID.
 bool select_from_list(const std::string& list_path, ChromosomeCodes codes, VariantSelection& selection,

@@ -50,6 +50,14 @@ std::string trait_of_results(const std::string& results_path) {
   return name.substr(name.find_last_of('.') + 1);
 }
 
+// Bases as VCF writes REF and ALT (VCF 4.3, 1.4.1); an ALT may also be the
+// spanning deletion '*' or a symbolic <ID>. So an HLA allele name such as
+// HLA-A*01:01:01:01, which has four colon-separated parts, stays an ID.
+bool is_allele(const std::string& text, bool alt) {
+  if (alt && (text == "*" || (text.size() > 2 && text.front() == '<' && text.back() == '>'))) return true;
+  return !text.empty() && text.find_first_not_of("ACGTNacgtn") == std::string::npos;
+}
+
 // A list entry that names one allele: chromosome, position >= 1, ref, alt.
 struct AlleleKey {
   std::string chromosome;
@@ -66,7 +74,9 @@ std::optional<AlleleKey> parse_allele_key(const std::string& entry) {
     start = colon + 1;
   }
   parts.push_back(entry.substr(start));
-  if (parts.size() != 4 || parts[0].empty() || parts[2].empty() || parts[3].empty()) return std::nullopt;
+  if (parts.size() != 4 || parts[0].empty() || !is_allele(parts[2], false) || !is_allele(parts[3], true)) {
+    return std::nullopt;
+  }
   const std::string& digits = parts[1];
   if (digits.empty() || digits.find_first_not_of("0123456789") != std::string::npos) return std::nullopt;
   const long long position = std::strtoll(digits.c_str(), nullptr, 10);
