@@ -1,4 +1,4 @@
-// tamis report: the results reader, lambda_GC, lead-locus clumping, the plots
+// tamis report: the results reader, lambda_GC, lead loci grouped by distance, the plots
 // (PNG, SVG), the HTML page, and the speed and thinning of a large input.
 #include <cairo.h>
 #include <gtest/gtest.h>
@@ -219,6 +219,14 @@ TEST(ReportSummary, BadOptionsAreUsageErrors) {
   } catch (const tamis::Error& error) {
     EXPECT_EQ(error.code(), tamis::ExitCode::usage);
   }
+  options.lead_threshold = 5e-8;
+  options.locus_radius = -1;
+  try {
+    tamis::run_report(options);
+    ADD_FAILURE() << "a negative locus radius should be refused";
+  } catch (const tamis::Error& error) {
+    EXPECT_EQ(error.code(), tamis::ExitCode::usage);
+  }
 }
 
 TEST(ReportSummary, ContigOrder) {
@@ -241,14 +249,14 @@ TEST(ReportSummary, ContigOrder) {
 
 // ---- lead loci -------------------------------------------------------------
 
-// Chromosomes 1, 2 and X, overlapping windows, and p-values at the threshold.
-std::vector<tamis::ResultRow> clumping_rows() {
+// Chromosomes 1, 2 and X, overlapping loci, and p-values at the threshold.
+std::vector<tamis::ResultRow> lead_locus_rows() {
   return {
       make_row("1", 400000, -0.3, 1.0),
       make_row("1", 500000, -0.3, 1.0),             // exactly 500 kb from lead A: inside
       make_row("1", 1000000, -20.0, 90.0, "rs11"),  // lead A
-      make_row("1", 1400000, -10.0, 40.0),          // below 5e-8 but inside A's window
-      make_row("1", 1500001, -0.7, 0.2),            // 1 base outside A; inside B's window
+      make_row("1", 1400000, -10.0, 40.0),          // below 5e-8 but inside A's locus
+      make_row("1", 1500001, -0.7, 0.2),            // 1 base outside A; inside B's locus
       make_row("1", 1900000, -9.0, 36.0, "rs12"),   // lead B: 900 kb from A
       make_row("1", 2300000, -0.5, 0.5),
       make_row("2", 1000000, std::log10(5e-8), 29.7),    // p = 5e-8 exactly: not below it
@@ -259,10 +267,10 @@ std::vector<tamis::ResultRow> clumping_rows() {
   };
 }
 
-TEST(LeadLoci, DistanceClumpingOnHandMadeFile) {
-  const std::string dir = make_temp_dir("report_clumping");
+TEST(LeadLoci, GroupedByDistanceOnHandMadeFile) {
+  const std::string dir = make_temp_dir("report_lead_loci");
   const std::string results = dir + "/scan.winter_wheeze.tsv.gz";
-  write_results(results, clumping_rows());
+  write_results(results, lead_locus_rows());
   tamis::ReportOptions options;
   options.results = {results};
   options.out_prefix = dir + "/report";
@@ -308,15 +316,15 @@ TEST(LeadLoci, DistanceClumpingOnHandMadeFile) {
   EXPECT_NEAR(std::stod(summary_field(options.out_prefix, "max_neg_log_10_p")), 1088 - std::log10(3.2), 1e-5);
 }
 
-TEST(LeadLoci, ThresholdAndWindowAreOptions) {
-  const std::string dir = make_temp_dir("report_clumping_options");
+TEST(LeadLoci, ThresholdAndRadiusAreOptions) {
+  const std::string dir = make_temp_dir("report_lead_loci_options");
   const std::string results = dir + "/scan.winter_wheeze.tsv.gz";
-  write_results(results, clumping_rows());
+  write_results(results, lead_locus_rows());
   tamis::ReportOptions options;
   options.results = {results};
   options.out_prefix = dir + "/report";
   options.lead_threshold = 1e-9;  // lead B has p = 1e-9 exactly: no longer a lead
-  options.clump_window = 100000;  // A now takes only itself; 1,400,000 (p 1e-10) becomes a lead
+  options.locus_radius = 100000;  // A now takes only itself; 1,400,000 (p 1e-10) becomes a lead
   tamis::run_report(options);
   const auto loci = read_tsv(read_text_file(options.out_prefix + ".loci.tsv"));
   std::vector<std::string> positions;

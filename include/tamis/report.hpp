@@ -1,5 +1,5 @@
 // tamis report: per-trait Manhattan and QQ plots (PNG and SVG), the genomic
-// inflation factor, lead loci by distance clumping, and one self-contained
+// inflation factor, lead loci grouped by distance, and one self-contained
 // HTML page, from finished results files.
 #pragma once
 
@@ -14,7 +14,7 @@ struct ReportOptions {
   std::vector<std::string> results;  // PREFIX.TRAIT.tsv.gz files, one trait each
   std::string out_prefix;            // writes OUT.summary.tsv, OUT.loci.tsv, OUT.html, OUT.TRAIT.*.png/svg
   double lead_threshold = 5e-8;      // a lead locus needs p below this
-  std::int64_t clump_window = 500000;  // bases either side of a lead that it takes
+  std::int64_t locus_radius = 500000;  // bases either side of a lead that its locus takes
   std::size_t label_limit = 20;      // lead loci named on each Manhattan plot (most significant first)
   std::size_t page_loci_limit = 50;  // lead loci listed per trait on the HTML page (the .tsv has all)
 };

@@ -343,7 +343,7 @@ void add_simulate_command(CLI::App& app, SimulationOptions& options) {
 
 struct ReportArguments {
   ReportOptions options;
-  double clump_window_kb = 500.0;
+  double locus_radius_kb = 500.0;
 };
 
 void add_report_command(CLI::App& app, ReportArguments& arguments) {
@@ -352,7 +352,7 @@ void add_report_command(CLI::App& app, ReportArguments& arguments) {
   report->add_option("--results", options.results, "Results files PREFIX.TRAIT.tsv.gz, one per trait")->required();
   report->add_option("--out", options.out_prefix, "Output prefix")->required();
   report->add_option("--lead-below", options.lead_threshold, "A lead locus needs p below this")->capture_default_str();
-  report->add_option("--clump-window-kb", arguments.clump_window_kb,
+  report->add_option("--locus-radius-kb", arguments.locus_radius_kb,
                      "Kilobases either side of a lead that belong to its locus")
       ->capture_default_str();
   report->add_option("--label-top", options.label_limit, "Lead loci named on each Manhattan plot")
@@ -362,10 +362,10 @@ void add_report_command(CLI::App& app, ReportArguments& arguments) {
 }
 
 int execute_report(ReportArguments arguments) {
-  if (!(arguments.clump_window_kb >= 0.0)) {
-    refuse_option("--clump-window-kb", "must be zero or more", "the default is 500");
+  if (!(arguments.locus_radius_kb >= 0.0)) {
+    refuse_option("--locus-radius-kb", "must be zero or more", "the default is 500");
   }
-  arguments.options.clump_window = static_cast<std::int64_t>(std::llround(arguments.clump_window_kb * 1000.0));
+  arguments.options.locus_radius = static_cast<std::int64_t>(std::llround(arguments.locus_radius_kb * 1000.0));
   for (const std::string& path : arguments.options.results) check_readable("--results", path);
   const ReportSummary summary = run_report(arguments.options);
   for (const TraitReport& trait : summary.traits) {

@@ -179,7 +179,7 @@ std::string compose_html_page(const PageContent& page) {
   html += "<title>tamis report</title>\n<style>" + std::string(page_style) + "</style>\n</head>\n<body>\n";
   html += "<h1>tamis report</h1>\n";
   html += "<p class=\"note\">Lead loci: p &lt; " + format_p_threshold(page.lead_threshold) +
-          ", each lead taking the variants within " + format_distance(page.clump_window) +
+          ", each lead taking the variants within " + format_distance(page.locus_radius) +
           " of it on its chromosome. Lines on the Manhattan plots: p = 5e-8 (genome-wide) and 1e-5 "
           "(suggestive).</p>\n";
   html += "<h2>Summary</h2>\n" + summary_table(page);

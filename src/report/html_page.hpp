@@ -27,7 +27,7 @@ struct TraitSection {
 struct PageContent {
   std::vector<TraitSection> sections;
   double lead_threshold = 5e-8;
-  std::int64_t clump_window = 500000;
+  std::int64_t locus_radius = 500000;
 };
 
 std::string compose_html_page(const PageContent& page);

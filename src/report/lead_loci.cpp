@@ -46,7 +46,7 @@ std::vector<std::size_t> candidates_by_significance(const TraitResults& results)
 
 }  // namespace
 
-std::vector<LeadLocus> clump_lead_loci(const TraitResults& results, std::int64_t window) {
+std::vector<LeadLocus> group_lead_loci(const TraitResults& results, std::int64_t radius) {
   std::vector<LeadLocus> leads;
   std::vector<bool> taken(results.n_rows, false);
   PositionIndex positions(results);
@@ -56,7 +56,7 @@ std::vector<LeadLocus> clump_lead_loci(const TraitResults& results, std::int64_t
     if (taken[lead_variant]) continue;
     const std::int64_t lead_position = results.position_of[lead_variant];
     const std::vector<std::uint32_t>& variants = positions.sorted_variants(results.chromosome_of[lead_variant]);
-    auto first = std::lower_bound(variants.begin(), variants.end(), lead_position - window,
+    auto first = std::lower_bound(variants.begin(), variants.end(), lead_position - radius,
                                   [&](std::uint32_t variant, std::int64_t position) {
                                     return results.position_of[variant] < position;
                                   });
@@ -64,7 +64,7 @@ std::vector<LeadLocus> clump_lead_loci(const TraitResults& results, std::int64_t
     locus.candidate_idx = candidate_idx;
     locus.span_start = lead_position;
     locus.span_end = lead_position;
-    for (auto member = first; member != variants.end() && results.position_of[*member] <= lead_position + window;
+    for (auto member = first; member != variants.end() && results.position_of[*member] <= lead_position + radius;
          ++member) {
       if (taken[*member]) continue;
       taken[*member] = true;

@@ -1,6 +1,6 @@
-// Lead loci by distance clumping: the most significant remaining variant
-// becomes a lead and takes every remaining variant within the window on its
-// chromosome; repeat while candidates (rows below the lead threshold) remain.
+// Lead loci grouped by distance: the most significant remaining variant
+// becomes a lead and takes every remaining variant within the locus radius on
+// its chromosome; repeat while candidates (rows below the lead threshold) remain.
 #pragma once
 
 #include <cstddef>
@@ -18,8 +18,8 @@ struct LeadLocus {
   std::size_t n_variants = 0;     // the variants it took, itself included
 };
 
-// Leads in order of significance (ties: earlier row first). A variant lies
-// in the window when |position - lead position| <= window.
-std::vector<LeadLocus> clump_lead_loci(const TraitResults& results, std::int64_t window);
+// Leads in order of significance (ties: earlier row first). A variant belongs
+// to a lead's locus when |position - lead position| <= radius.
+std::vector<LeadLocus> group_lead_loci(const TraitResults& results, std::int64_t radius);
 
 }  // namespace tamis::report

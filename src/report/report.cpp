@@ -30,8 +30,8 @@ void check_options(const ReportOptions& options) {
     throw Error(ExitCode::usage, "", "the lead threshold must lie in (0, 1]",
                 "give a p-value such as 5e-8 (the genome-wide convention)");
   }
-  if (options.clump_window < 0) {
-    throw Error(ExitCode::usage, "", "the clumping window must not be negative", "give a distance such as 500 kb");
+  if (options.locus_radius < 0) {
+    throw Error(ExitCode::usage, "", "the locus radius must not be negative", "give a distance such as 500 kb");
   }
   if (options.out_prefix.empty()) {
     throw Error(ExitCode::usage, "", "no output prefix was given", "name one, for example results/cohort.report");
@@ -134,7 +134,7 @@ ReportSummary run_report(const ReportOptions& options) {
     trait.n_variants = results.n_rows;
     trait.lambda_gc = compute_lambda_gc(std::move(results.score_chisq_of));
     results.score_chisq_of = {};
-    const std::vector<report::LeadLocus> leads = report::clump_lead_loci(results, options.clump_window);
+    const std::vector<report::LeadLocus> leads = report::group_lead_loci(results, options.locus_radius);
     trait.n_lead_loci = leads.size();
 
     const std::string stem = options.out_prefix + "." + file_stem_for(results.trait, used_stems);
@@ -175,7 +175,7 @@ ReportSummary run_report(const ReportOptions& options) {
   write_text(options.out_prefix + ".summary.tsv", summary_text, summary);
   write_text(options.out_prefix + ".loci.tsv", loci_text, summary);
   page.lead_threshold = options.lead_threshold;
-  page.clump_window = options.clump_window;
+  page.locus_radius = options.locus_radius;
   write_text(options.out_prefix + ".html", report::compose_html_page(page), summary);
   return summary;
 }

@@ -15,7 +15,7 @@ namespace tamis::report {
 // A row below the lead threshold, kept whole enough to be listed.
 struct LeadCandidate {
   std::size_t variant_idx = 0;
-  double neg_log_10_p = 0.0;  // full precision: it orders the clumping
+  double neg_log_10_p = 0.0;  // full precision: it orders the leads
   std::string p_value_text;   // as written, so 3.2e-1088 survives
   std::string neg_log_10_p_text;
   std::string beta_text;
