@@ -24,12 +24,13 @@ ctest --test-dir "$build" --output-on-failure -j "$jobs" || failed+=("tests")
 # check numbers and speed that the plain build has already checked. A few
 # tests reach paths where a library itself loses memory (htslib 1.16 after a
 # failed threaded read or a failed final write, fontconfig's caches behind a
-# report): they run apart, with tests/lsan_suppressions.txt, because those
-# entries cover whole libraries and would hide a leak of ours anywhere else.
+# report, also in the browser test, which runs `tamis report`): they run
+# apart, with tests/lsan_suppressions.txt, because those entries cover whole
+# libraries and would hide a leak of ours anywhere else.
 cmake -S . -B "$asan_build" -DTAMIS_SANITIZE=ON -DCMAKE_BUILD_TYPE=RelWithDebInfo \
   -DCMAKE_CXX_FLAGS_RELWITHDEBINFO="-O1 -g1" -DCMAKE_C_FLAGS_RELWITHDEBINFO="-O1 -g1"
 cmake --build "$asan_build" -j "$jobs"
-library_leak_tests='InputErrors\.(CorruptBgzfBlockGivesThePositionReached|DamagedBgzfIsReportedAsDamageNotAsABadRecord)|InterruptedScan\.FullDisk.*|workflow_snakemake'
+library_leak_tests='InputErrors\.(CorruptBgzfBlockGivesThePositionReached|DamagedBgzfIsReportedAsDamageNotAsABadRecord)|InterruptedScan\.FullDisk.*|ReportInBrowser\..*|workflow_snakemake'
 ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
   ctest --test-dir "$asan_build" --output-on-failure -j "$jobs" \
   -E "^(reference_r_stats|LargeReport\..*|$library_leak_tests)\$" ||
