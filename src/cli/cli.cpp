@@ -9,9 +9,11 @@
 #include <cstdio>
 #include <set>
 #include <thread>
+#include <tuple>
 
 #include "tamis/errors.hpp"
 #include "tamis/merge.hpp"
+#include "tamis/relatedness_run.hpp"
 #include "tamis/report.hpp"
 #include "tamis/results_writer.hpp"
 #include "tamis/run_log.hpp"
@@ -147,15 +149,26 @@ void check_floors(const QcFloors& floors) {
   if (!(floors.minor_allele_count >= 0.0)) refuse_option("--mac-floor", "must be zero or more", "");
 }
 
+// K/N with 1 <= K <= N, as --shard and --part take it.
+std::pair<int, int> parse_part_of(const std::string& option, const std::string& text) {
+  int part = 0, count = 0;
+  char tail = 0;
+  if (std::sscanf(text.c_str(), "%d/%d%c", &part, &count, &tail) != 2 || count < 1 || part < 1 || part > count) {
+    refuse_option(option, "'" + text + "' is not K/N with 1 <= K <= N", "write for example " + option + " 3/20");
+  }
+  return {part, count};
+}
+
 void parse_shard(const std::string& text, ScanOptions& options) {
   if (text.empty()) return;
-  int shard = 0, count = 0;
-  char tail = 0;
-  if (std::sscanf(text.c_str(), "%d/%d%c", &shard, &count, &tail) != 2 || count < 1 || shard < 1 || shard > count) {
-    refuse_option("--shard", "'" + text + "' is not K/N with 1 <= K <= N", "write for example --shard 3/20");
-  }
-  options.shard = shard;
-  options.shard_count = count;
+  std::tie(options.shard, options.shard_count) = parse_part_of("--shard", text);
+}
+
+// --threads: 0 (the default) takes every core.
+int thread_count_from(int requested) {
+  if (requested < 0) refuse_option("--threads", "must be at least 1", "leave it out to use every core");
+  const unsigned cores = std::max(1u, std::thread::hardware_concurrency());
+  return requested == 0 ? static_cast<int>(cores) : requested;
 }
 
 ScanOptions check_scan_options(const ScanArguments& arguments, const std::string& command_line) {
@@ -179,9 +192,7 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
     refuse_option("--disagreement-flag", "must be a positive number of log10 units", "the default is 1");
   }
   options.spread_flag = arguments.disagreement_flag;
-  const unsigned cores = std::max(1u, std::thread::hardware_concurrency());
-  if (arguments.threads < 0) refuse_option("--threads", "must be at least 1", "leave it out to use every core");
-  options.threads = arguments.threads == 0 ? static_cast<int>(cores) : arguments.threads;
+  options.threads = thread_count_from(arguments.threads);
   if (arguments.chromosome_codes != "ssf" && arguments.chromosome_codes != "as-is") {
     refuse_option("--chromosome-codes", "'" + arguments.chromosome_codes + "' is not ssf or as-is", "");
   }
@@ -459,6 +470,117 @@ int execute_simulate(const SimulationOptions& options) {
   return 0;
 }
 
+// Raw options of `tamis relatedness`; checked by check_relatedness_options.
+struct RelatednessArguments {
+  std::vector<std::string> genotypes;
+  std::vector<std::string> regions;
+  std::string variant_list;
+  std::string keep_samples;
+  std::string drop_samples;
+  std::string dosage_from = "auto";
+  int haploid_dosage = 1;
+  QcFloors floors = RelatednessOptions{}.floors;
+  double thin_kb = 0.0;
+  double keep_above = RelatednessOptions{}.keep_above;
+  std::string part;
+  int threads = 0;
+  std::string out;
+  bool quiet = false;
+};
+
+void add_relatedness_command(CLI::App& app, RelatednessArguments& arguments) {
+  CLI::App* command = app.add_subcommand(
+      "relatedness", "Genomic relationship matrix of the genotype samples, for scan --relatedness");
+  command->add_option("--genotypes", arguments.genotypes, "VCF, VCF.gz or BCF files, read in the order given")
+      ->required();
+  command->add_option("--out", arguments.out, "Output prefix: PREFIX.relatedness.tsv.gz and PREFIX.log")->required();
+  command->add_option("--region", arguments.regions, "CHR[:FROM-TO]: take markers only there (repeatable)");
+  command->add_option("--variants", arguments.variant_list,
+                      "File of variants to take as markers, one per line: an ID or chr:pos:ref:alt");
+  command->add_option("--keep-samples", arguments.keep_samples, "Take only the sample IDs in this file");
+  command->add_option("--drop-samples", arguments.drop_samples, "Leave out the sample IDs in this file");
+  command->add_option("--dosage-from", arguments.dosage_from, "auto, DS, GP or GT")->capture_default_str();
+  command->add_option("--haploid-dosage", arguments.haploid_dosage,
+                      "Dosage of a haploid ALT call from GT: 1 (default) or 2")
+      ->capture_default_str();
+  command->add_option("--maf-floor", arguments.floors.minor_allele_frequency,
+                      "Take markers whose minor allele frequency is at least this")
+      ->capture_default_str();
+  command->add_option("--mac-floor", arguments.floors.minor_allele_count,
+                      "Take markers whose minor allele count is at least this");
+  command->add_option("--info-floor", arguments.floors.info, "Take markers whose dosage r^2 (info) is at least this");
+  command->add_option("--call-rate-floor", arguments.floors.call_rate, "Take markers whose call rate is at least this")
+      ->capture_default_str();
+  command->add_option("--hwe-floor", arguments.floors.hwe_p,
+                      "Take markers whose Hardy-Weinberg exact-test p is at least this");
+  command->add_option("--thin-kb", arguments.thin_kb,
+                      "Take markers at least this many kilobases apart on a contig (0: every marker)")
+      ->capture_default_str();
+  command->add_option("--keep-above", arguments.keep_above,
+                      "Write the pairs whose relatedness is at least this (every diagonal is written)")
+      ->capture_default_str();
+  command->add_option("--part", arguments.part,
+                      "K/N: compute the K-th of N near-equal shares of the sample pairs "
+                      "(PREFIX.relatedness.partK-of-N.tsv.gz)");
+  command->add_option("--threads", arguments.threads, "Worker threads (default: every core)");
+  command->add_flag("--quiet", arguments.quiet, "Print nothing but errors (no progress display)");
+}
+
+RelatednessOptions check_relatedness_options(const RelatednessArguments& arguments, const std::string& command_line) {
+  RelatednessOptions options;
+  check_output_prefix_writable(arguments.out);
+  options.out_prefix = arguments.out;
+  for (const std::string& path : arguments.genotypes) check_readable("--genotypes", path);
+  options.genotype_paths = arguments.genotypes;
+  options.dosage_field = parse_dosage_field(arguments.dosage_from);
+  if (arguments.haploid_dosage != 1 && arguments.haploid_dosage != 2) {
+    refuse_option("--haploid-dosage", "must be 1 or 2", "1 counts a haploid ALT call as one copy, 2 as two");
+  }
+  options.haploid_dosage = arguments.haploid_dosage;
+  check_floors(arguments.floors);
+  options.floors = arguments.floors;
+  if (!(arguments.thin_kb >= 0.0 && std::isfinite(arguments.thin_kb))) {
+    refuse_option("--thin-kb", "must be zero or more kilobases", "for example --thin-kb 50");
+  }
+  options.thin_kb = arguments.thin_kb;
+  if (!std::isfinite(arguments.keep_above)) {
+    refuse_option("--keep-above", "must be a finite number", "the default, 0.05, keeps relatives to about the third degree");
+  }
+  options.keep_above = arguments.keep_above;
+  if (!arguments.part.empty()) std::tie(options.part, options.part_count) = parse_part_of("--part", arguments.part);
+  options.threads = thread_count_from(arguments.threads);
+  if (!arguments.keep_samples.empty()) check_readable("--keep-samples", arguments.keep_samples);
+  if (!arguments.drop_samples.empty()) check_readable("--drop-samples", arguments.drop_samples);
+  options.keep_samples_path = arguments.keep_samples;
+  options.drop_samples_path = arguments.drop_samples;
+  for (const std::string& text : arguments.regions) options.regions.push_back(parse_region(text));
+  if (!arguments.variant_list.empty()) {
+    check_readable("--variants", arguments.variant_list);
+    std::vector<GenomicRegion> positions;
+    const bool indexed = select_from_list(arguments.variant_list, ChromosomeCodes::ssf, options.selection, positions);
+    if (indexed && options.regions.empty()) options.regions = positions;
+  }
+  options.command_line = command_line;
+  options.quiet = arguments.quiet;
+  return options;
+}
+
+int execute_relatedness(const RelatednessArguments& arguments, const std::string& command_line) {
+  const RelatednessOptions options = check_relatedness_options(arguments, command_line);
+  RunLog& log = current_log();
+  log.set_echo(!arguments.quiet);
+  log.open(relatedness_log_path(options.out_prefix, options.part, options.part_count));
+  try {
+    const RelatednessSummary summary = run_relatedness(options);
+    log.line("relatedness: " + summary.data_path);
+    log.line("log: " + log.path());
+  } catch (const Error& error) {
+    log.detail(std::string("error: ") + error.what());
+    throw;
+  }
+  return 0;
+}
+
 extern "C" void remove_temporaries_and_exit(int signal_number) {
   remove_registered_temporaries();
   const char message[] =
@@ -496,6 +618,8 @@ int run_command_line(int argc, char** argv) {
   add_report_command(app, report_arguments);
   MergeOptions merge_options;
   add_merge_command(app, merge_options);
+  RelatednessArguments relatedness_arguments;
+  add_relatedness_command(app, relatedness_arguments);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& error) {
@@ -507,6 +631,7 @@ int run_command_line(int argc, char** argv) {
     if (app.got_subcommand("confirm")) return execute_scan(confirm_arguments, join_command_line(argc, argv), true);
     if (app.got_subcommand("report")) return execute_report(report_arguments);
     if (app.got_subcommand("merge")) return execute_merge(merge_options);
+    if (app.got_subcommand("relatedness")) return execute_relatedness(relatedness_arguments, join_command_line(argc, argv));
     return execute_simulate(simulation_options);
   } catch (const Error& error) {
     std::fprintf(stderr, "tamis: error: %s\n", error.what());

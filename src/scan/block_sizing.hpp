@@ -1,0 +1,15 @@
+// How the pipelines size their reading (defined in scan.cpp, shared with
+// the relatedness pipeline).
+#pragma once
+
+#include <cstddef>
+
+namespace tamis {
+
+// htslib's decompression threads beside `scan_threads` workers.
+int decompression_threads_for(int scan_threads);
+
+// Records per block that keep a block's dosages in a core's cache.
+std::size_t records_per_block_for(std::size_t sample_count);
+
+}  // namespace tamis
