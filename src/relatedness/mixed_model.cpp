@@ -171,7 +171,9 @@ struct MixedModel::State {
 
   // The working rows of `columns` (one row per model sample), factor by factor.
   Eigen::MatrixXd to_working_rows(const Eigen::MatrixXd& columns) const {
-    Eigen::MatrixXd out(working.rows(), columns.cols());
+    Eigen::Index rows = 0;
+    for (const auto& factor : factors) rows += factor->row_count();
+    Eigen::MatrixXd out(rows, columns.cols());
     Eigen::Index offset = 0;
     for (const auto& factor : factors) {
       out.middleRows(offset, factor->row_count()) = factor->to_working_rows(columns);

@@ -1,0 +1,639 @@
+// The linear mixed model of related samples (src/relatedness/mixed_model.cpp):
+// REML and ML fits of h2, whitening, the score test on whitened data and the
+// confirmation refits, checked against R lme4 (random family intercept), a
+// dense oracle in base R (general A), dense algebra in C++ and properties.
+#include <gtest/gtest.h>
+
+#include <Eigen/Eigenvalues>
+#include <algorithm>
+#include <cmath>
+#include <iomanip>
+#include <map>
+#include <numeric>
+#include <random>
+#include <sstream>
+
+#include "support/test_support.hpp"
+#include "tamis/confirm.hpp"
+#include "tamis/errors.hpp"
+#include "tamis/mixed_model.hpp"
+#include "tamis/null_model.hpp"
+#include "tamis/score_kernel.hpp"
+
+namespace {
+
+using tamis::MixedModel;
+using tamis::SparseRelatedness;
+
+// ---------------------------------------------------------------------------
+// Data sets, generated deterministically (std::mt19937_64 is specified bit for
+// bit; the normal draws are our own Box-Muller so no library choice enters).
+
+class Random {
+ public:
+  explicit Random(std::uint64_t seed) : engine_(seed) {}
+  double uniform() { return (static_cast<double>(engine_() >> 11) + 0.5) * 0x1.0p-53; }
+  double normal() {
+    const double radius = std::sqrt(-2.0 * std::log(uniform()));
+    return radius * std::cos(6.283185307179586 * uniform());
+  }
+  int below(int count) { return static_cast<int>(uniform() * count); }
+  int allele(double frequency) { return uniform() < frequency ? 1 : 0; }
+
+ private:
+  std::mt19937_64 engine_;
+};
+
+struct Cohort {
+  Eigen::VectorXd y;
+  Eigen::MatrixXd design;    // intercept, c1, c2
+  Eigen::MatrixXd variants;  // n x K dosages
+  std::vector<int> family;   // group label per sample (the lme4 data set's random effect)
+  SparseRelatedness relatedness;
+  int size() const { return static_cast<int>(y.size()); }
+};
+
+std::vector<std::string> design_names() { return {"intercept", "c1", "c2"}; }
+
+Eigen::MatrixXd dense_relatedness(const SparseRelatedness& relatedness) {
+  const auto n = static_cast<Eigen::Index>(relatedness.sample_count);
+  Eigen::MatrixXd a = Eigen::MatrixXd::Zero(n, n);
+  for (Eigen::Index sample = 0; sample < n; ++sample) a(sample, sample) = relatedness.diagonal[sample];
+  for (const auto& pair : relatedness.pairs) {
+    a(pair.first, pair.second) = pair.value;
+    a(pair.second, pair.first) = pair.value;
+  }
+  return a;
+}
+
+// Covariates: c1 an age-like value, c2 a 0/1 indicator.
+void add_covariates(Cohort& cohort, Random& random) {
+  const int n = cohort.size();
+  cohort.design.resize(n, 3);
+  for (int sample = 0; sample < n; ++sample) {
+    cohort.design(sample, 0) = 1.0;
+    cohort.design(sample, 1) = 20.0 + 50.0 * random.uniform();
+    cohort.design(sample, 2) = random.allele(0.5);
+  }
+}
+
+// A random family intercept: families of 1 to 6 samples, A = 1 for every pair
+// within a family. y = 1 + 0.02 c1 + 0.3 c2 + 0.35 g1 + u_family + e with
+// var(u) = 0.6, var(e) = 1.
+Cohort family_cohort(std::uint64_t seed, int family_count) {
+  Random random(seed);
+  Cohort cohort;
+  for (int family = 0; family < family_count; ++family) {
+    const int members = 1 + random.below(6);
+    for (int member = 0; member < members; ++member) cohort.family.push_back(family);
+  }
+  const int n = static_cast<int>(cohort.family.size());
+  cohort.y.resize(n);
+  add_covariates(cohort, random);
+  cohort.variants.resize(n, 3);
+  std::vector<double> family_effect(static_cast<std::size_t>(family_count));
+  for (double& effect : family_effect) effect = std::sqrt(0.6) * random.normal();
+  for (int sample = 0; sample < n; ++sample) {
+    cohort.variants(sample, 0) = random.allele(0.3) + random.allele(0.3);
+    cohort.variants(sample, 1) = random.allele(0.1) + random.allele(0.1);
+    cohort.variants(sample, 2) = random.allele(0.5) + random.allele(0.5);
+    cohort.y[sample] = 1.0 + 0.02 * cohort.design(sample, 1) + 0.3 * cohort.design(sample, 2) +
+                       0.35 * cohort.variants(sample, 0) + family_effect[cohort.family[sample]] + random.normal();
+  }
+  cohort.relatedness.sample_count = static_cast<std::size_t>(n);
+  cohort.relatedness.diagonal.assign(static_cast<std::size_t>(n), 1.0);
+  for (int first = 0; first < n; ++first) {
+    for (int second = first + 1; second < n && cohort.family[second] == cohort.family[first]; ++second) {
+      cohort.relatedness.pairs.push_back({static_cast<std::uint32_t>(first), static_cast<std::uint32_t>(second), 1.0});
+    }
+  }
+  return cohort;
+}
+
+// Pedigrees with Mendelian transmission (nuclear families of 3-6 and
+// three-generation pedigrees with cousins, plus unrelated samples), and A the
+// genomic relationship matrix Z Z' / M of standardised markers within each
+// pedigree (0 between pedigrees): positive semi-definite, with
+// off-diagonals that vary around the pedigree coefficients. y has h2 = 0.6
+// of the residual variance and a 0.5 effect of variant g1.
+Cohort pedigree_cohort(std::uint64_t seed) {
+  Random random(seed);
+  constexpr int kMarkers = 300;
+  std::vector<double> frequency(kMarkers);
+  for (double& p : frequency) p = 0.1 + 0.4 * random.uniform();
+  std::vector<std::vector<int>> haplotypes;  // 2 x kMarkers per sample: alleles of the two copies
+  std::vector<int> pedigree;
+  auto founder = [&](int group) {
+    std::vector<int> alleles(2 * kMarkers);
+    for (int marker = 0; marker < kMarkers; ++marker) {
+      alleles[2 * marker] = random.allele(frequency[marker]);
+      alleles[2 * marker + 1] = random.allele(frequency[marker]);
+    }
+    haplotypes.push_back(alleles);
+    pedigree.push_back(group);
+    return static_cast<int>(haplotypes.size()) - 1;
+  };
+  auto child = [&](int mother, int father, int group) {
+    std::vector<int> alleles(2 * kMarkers);
+    for (int marker = 0; marker < kMarkers; ++marker) {
+      alleles[2 * marker] = haplotypes[mother][2 * marker + random.below(2)];
+      alleles[2 * marker + 1] = haplotypes[father][2 * marker + random.below(2)];
+    }
+    haplotypes.push_back(alleles);
+    pedigree.push_back(group);
+    return static_cast<int>(haplotypes.size()) - 1;
+  };
+  int group = 0;
+  for (int family = 0; family < 22; ++family, ++group) {
+    const int mother = founder(group), father = founder(group);
+    const int children = 1 + random.below(4);
+    for (int kid = 0; kid < children; ++kid) child(mother, father, group);
+  }
+  for (int extended = 0; extended < 3; ++extended, ++group) {
+    const int grandmother = founder(group), grandfather = founder(group);
+    for (int branch = 0; branch < 3; ++branch) {
+      const int parent = child(grandmother, grandfather, group), spouse = founder(group);
+      const int children = 2 + random.below(2);
+      for (int kid = 0; kid < children; ++kid) child(parent, spouse, group);
+    }
+  }
+  for (int single = 0; single < 50; ++single, ++group) founder(group);
+
+  Cohort cohort;
+  const int n = static_cast<int>(haplotypes.size());
+  cohort.family = pedigree;
+  cohort.y.resize(n);
+  Eigen::MatrixXd dosages(n, kMarkers);
+  for (int sample = 0; sample < n; ++sample)
+    for (int marker = 0; marker < kMarkers; ++marker)
+      dosages(sample, marker) = haplotypes[sample][2 * marker] + haplotypes[sample][2 * marker + 1];
+  Eigen::MatrixXd standardised = dosages;
+  for (int marker = 0; marker < kMarkers; ++marker) {
+    const double p = dosages.col(marker).mean() / 2.0;
+    standardised.col(marker) = (dosages.col(marker).array() - 2.0 * p) / std::sqrt(2.0 * p * (1.0 - p));
+  }
+  const Eigen::MatrixXd grm = standardised * standardised.transpose() / kMarkers;
+  cohort.relatedness.sample_count = static_cast<std::size_t>(n);
+  for (int first = 0; first < n; ++first) {
+    cohort.relatedness.diagonal.push_back(grm(first, first));
+    for (int second = first + 1; second < n; ++second) {
+      if (pedigree[second] != pedigree[first]) continue;
+      cohort.relatedness.pairs.push_back({static_cast<std::uint32_t>(first), static_cast<std::uint32_t>(second),
+                                          grm(first, second)});
+    }
+  }
+  add_covariates(cohort, random);
+  cohort.variants = dosages.leftCols(4);
+  const Eigen::MatrixXd a = dense_relatedness(cohort.relatedness);
+  const Eigen::MatrixXd factor = Eigen::LLT<Eigen::MatrixXd>(a).matrixL();
+  Eigen::VectorXd polygenic(n), noise(n);
+  for (int sample = 0; sample < n; ++sample) {
+    polygenic[sample] = random.normal();
+    noise[sample] = random.normal();
+  }
+  cohort.y = 0.5 * Eigen::VectorXd::Ones(n) + 0.01 * cohort.design.col(1) + 0.2 * cohort.design.col(2) +
+             0.5 * cohort.variants.col(0) + std::sqrt(0.6) * factor * polygenic + std::sqrt(0.4) * noise;
+  return cohort;
+}
+
+// The same cohort with pairs below `keep_above` left out, as a file written
+// with a threshold holds it, and three of the last unrelated samples joined by
+// pairs that contradict each other (two close to a third, not to each other:
+// eigenvalue 1 - 0.75 sqrt 2 = -0.06), as sampling noise in an estimated
+// matrix can make them.
+Cohort thresholded_with_contradiction(Cohort cohort, double keep_above) {
+  auto& pairs = cohort.relatedness.pairs;
+  pairs.erase(std::remove_if(pairs.begin(), pairs.end(), [&](const auto& pair) { return pair.value < keep_above; }),
+              pairs.end());
+  const auto last = static_cast<std::uint32_t>(cohort.size() - 1);
+  pairs.push_back({last - 2, last - 1, 0.75});
+  pairs.push_back({last - 2, last, 0.75});
+  for (std::uint32_t sample = last - 2; sample <= last; ++sample) cohort.relatedness.diagonal[sample] = 1.0;
+  return cohort;
+}
+
+// The cohort with its samples in another order (model index s becomes order[s]).
+Cohort permuted(const Cohort& cohort, const std::vector<int>& new_index) {
+  Cohort out = cohort;
+  for (int sample = 0; sample < cohort.size(); ++sample) {
+    const int to = new_index[sample];
+    out.y[to] = cohort.y[sample];
+    out.design.row(to) = cohort.design.row(sample);
+    out.variants.row(to) = cohort.variants.row(sample);
+    out.relatedness.diagonal[to] = cohort.relatedness.diagonal[sample];
+  }
+  for (auto& pair : out.relatedness.pairs) {
+    const auto first = static_cast<std::uint32_t>(new_index[pair.first]);
+    const auto second = static_cast<std::uint32_t>(new_index[pair.second]);
+    pair.first = std::min(first, second);
+    pair.second = std::max(first, second);
+  }
+  return out;
+}
+
+// ---------------------------------------------------------------------------
+// The scan's path: whiten y, X and the variants, fit the plain null model on
+// the whitened data and run the blocked score kernel.
+
+std::vector<tamis::ScoreResult> whitened_scores(const MixedModel& model, const Cohort& cohort) {
+  const tamis::NullModel whitened =
+      tamis::fit_null_model("trait", tamis::TraitKind::quantitative, model.whiten(cohort.y),
+                            model.whiten(cohort.design), design_names());
+  const std::size_t width = static_cast<std::size_t>(cohort.variants.cols());
+  Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor> block = cohort.variants;
+  std::vector<std::size_t> identity(static_cast<std::size_t>(cohort.size()));
+  std::iota(identity.begin(), identity.end(), std::size_t{0});
+  model.whiten_block(block.data(), width, identity);
+  tamis::ScoreKernel kernel(whitened);
+  tamis::ScoreScratch scratch;
+  std::vector<tamis::ScoreResult> results(width);
+  kernel.compute(block.data(), width, scratch, results.data());
+  return results;
+}
+
+// ---------------------------------------------------------------------------
+// R reference runs.
+
+bool have_rscript() { return tamis::testing::run_command("command -v Rscript > /dev/null 2>&1") == 0; }
+
+std::string number_text(double value) {
+  std::ostringstream text;
+  text << std::setprecision(17) << value;
+  return text.str();
+}
+
+std::string write_data(const Cohort& cohort, const std::string& dir) {
+  std::ostringstream text;
+  text << "family\ty\tc1\tc2";
+  for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant) text << "\tg" << variant + 1;
+  text << "\n";
+  for (int sample = 0; sample < cohort.size(); ++sample) {
+    text << "f" << cohort.family[sample] << "\t" << number_text(cohort.y[sample]) << "\t"
+         << number_text(cohort.design(sample, 1)) << "\t" << number_text(cohort.design(sample, 2));
+    for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant)
+      text << "\t" << number_text(cohort.variants(sample, variant));
+    text << "\n";
+  }
+  const std::string path = dir + "/data.tsv";
+  tamis::testing::write_text_file(path, text.str());
+  return path;
+}
+
+std::string write_pairs(const SparseRelatedness& relatedness, const std::string& dir) {
+  std::ostringstream text;
+  text << "i\tj\tvalue\n";
+  for (std::size_t sample = 0; sample < relatedness.sample_count; ++sample)
+    text << sample + 1 << "\t" << sample + 1 << "\t" << number_text(relatedness.diagonal[sample]) << "\n";
+  for (const auto& pair : relatedness.pairs)
+    text << pair.first + 1 << "\t" << pair.second + 1 << "\t" << number_text(pair.value) << "\n";
+  const std::string path = dir + "/pairs.tsv";
+  tamis::testing::write_text_file(path, text.str());
+  return path;
+}
+
+// Runs tests/reference/SCRIPT with the arguments and reads its key/value lines.
+std::map<std::string, std::string> run_reference(const std::string& script, const std::string& arguments) {
+  int status = 0;
+  const std::string output = tamis::testing::capture_command(
+      "Rscript '" + tamis::testing::source_dir() + "/tests/reference/" + script + "' " + arguments, &status);
+  EXPECT_EQ(status, 0) << output;
+  std::map<std::string, std::string> values;
+  for (const std::string& line : tamis::testing::lines_of(output)) {
+    const auto fields = tamis::testing::split_fields(line);
+    if (fields.size() == 2) values[fields[0]] = fields[1];
+  }
+  return values;
+}
+
+double value_of(const std::map<std::string, std::string>& values, const std::string& key) {
+  const auto found = values.find(key);
+  if (found == values.end()) {
+    ADD_FAILURE() << "the reference run printed no " << key;
+    return std::nan("");
+  }
+  return std::stod(found->second);
+}
+
+// The largest relative deviation seen since the last report, printed by each
+// reference test so that the margins are on record.
+double largest_deviation = 0.0;
+
+// |actual - expected| <= tolerance |expected|.
+void expect_relative(double actual, double expected, double tolerance, const std::string& what) {
+  EXPECT_NEAR(actual, expected, tolerance * std::fabs(expected)) << what;
+  largest_deviation = std::max(largest_deviation, std::fabs(actual - expected) / std::fabs(expected));
+}
+
+void report_largest_deviation(const std::string& reference) {
+  std::cout << "largest relative deviation from " << reference << ": " << largest_deviation << "\n";
+  largest_deviation = 0.0;
+}
+
+// ---------------------------------------------------------------------------
+
+TEST(RelatedComponents, UnionFindGroupsThePairGraphAndLeavesSingletonsOut) {
+  SparseRelatedness relatedness;
+  relatedness.sample_count = 9;
+  relatedness.diagonal.assign(9, 1.0);
+  relatedness.pairs = {{5, 8, 0.5}, {1, 7, 0.25}, {2, 5, 0.5}, {0, 7, 0.125}, {3, 4, 0.5}};
+  const auto components = tamis::related_components(relatedness);
+  const std::vector<std::vector<std::uint32_t>> expected = {{0, 1, 7}, {2, 5, 8}, {3, 4}};
+  EXPECT_EQ(components, expected);
+}
+
+// Source: R lme4 1.1.31 (Debian r-cran-lme4, R 4.2.2), lmer(y ~ c1 + c2 +
+// (1 | family)), run by tests/reference/mixed_model_lme4.R on this data set.
+TEST(MixedModelReference, RandomFamilyInterceptMatchesLme4) {
+  if (!have_rscript()) GTEST_SKIP() << "Rscript is not installed";
+  const Cohort cohort = family_cohort(20260301, 110);
+  const std::string dir = tamis::testing::make_temp_dir("mixed_model_lme4");
+  const auto lme4 = run_reference("mixed_model_lme4.R", "'" + write_data(cohort, dir) + "'");
+  std::cout << "reference: lme4 " << lme4.at("lme4_version") << ", R " << lme4.at("r_version") << "\n";
+  ASSERT_GT(cohort.size(), 300);
+
+  const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
+  // lme4 1.1.31 REML: variance components, fixed effects and their SEs to 1e-4 relative.
+  expect_relative(model.reml().sigma2_g, value_of(lme4, "reml_sigma2_g"), 1e-4, "model.reml().sigma2_g");
+  expect_relative(model.reml().sigma2_e, value_of(lme4, "reml_sigma2_e"), 1e-4, "model.reml().sigma2_e");
+  for (int column = 0; column < 3; ++column) {
+    expect_relative(model.coefficients()[column], value_of(lme4, "reml_beta_" + std::to_string(column)), 1e-4, "model.coefficients()[column]");
+    expect_relative(model.standard_errors()[column], value_of(lme4, "reml_se_" + std::to_string(column)), 1e-4, "model.standard_errors()[column]");
+  }
+  // lme4 1.1.31 logLik of the REML fit, -REMLcrit / 2: the same constants
+  // ((n - p)(1 + log 2 pi), log|X'V^-1 X| of the raw design), so the values agree.
+  expect_relative(model.reml().log_likelihood, value_of(lme4, "reml_loglik"), 1e-8, "model.reml().log_likelihood");
+  // lme4 1.1.31, REML = FALSE: the ML null fit.
+  expect_relative(model.null_ml().log_likelihood, value_of(lme4, "ml0_loglik"), 1e-8, "model.null_ml().log_likelihood");
+  expect_relative(model.null_ml().sigma2_g, value_of(lme4, "ml0_sigma2_g"), 1e-4, "model.null_ml().sigma2_g");
+  expect_relative(model.null_ml().sigma2_e, value_of(lme4, "ml0_sigma2_e"), 1e-4, "model.null_ml().sigma2_e");
+
+  // Confirmation against lme4 1.1.31: anova(m0, m1) Chisq for LR and the t value of
+  // summary(m1) for Wald, both ML fits, to 1e-4.
+  for (int variant = 0; variant < 3; ++variant) {
+    const std::string key = "g" + std::to_string(variant + 1);
+    const tamis::ConfirmResult result = model.confirm(cohort.variants.col(variant));
+    EXPECT_TRUE(result.converged);
+    const double t = value_of(lme4, key + "_t");
+    expect_relative(result.lrt_chisq, value_of(lme4, key + "_lr"), 1e-4, "result.lrt_chisq" + std::string(" ") + key);
+    expect_relative(result.wald_chisq, t * t, 1e-4, "result.wald_chisq" + std::string(" ") + key);
+    expect_relative(result.beta, value_of(lme4, key + "_beta"), 1e-4, "result.beta" + std::string(" ") + key);
+    expect_relative(result.se, value_of(lme4, key + "_se"), 1e-4, "result.se" + std::string(" ") + key);
+  }
+  report_largest_deviation("lme4 " + lme4.at("lme4_version"));
+  // The simulated effect of g1 is found.
+  EXPECT_GT(model.confirm(cohort.variants.col(0)).lrt_chisq, 5.0);
+}
+
+// Source: the dense oracle in base R 4.2.2 (stats::optimize for h2, solve and
+// determinant on the full n x n H), tests/reference/mixed_model_dense_oracle.R.
+void check_against_dense_oracle(const Cohort& cohort, const std::string& name) {
+  const std::string dir = tamis::testing::make_temp_dir(name);
+  const auto oracle = run_reference("mixed_model_dense_oracle.R", "'" + write_data(cohort, dir) + "' '" +
+                                                                      write_pairs(cohort.relatedness, dir) + "'");
+  const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
+  ASSERT_LT(value_of(oracle, "reml_h2"), value_of(oracle, "h2_max") - 0.05) << "the test wants an interior optimum";
+  EXPECT_FALSE(model.reml().at_boundary);
+  // R 4.2.2 dense oracle: h2, the REML log-likelihood and s2 to 1e-6.
+  expect_relative(model.reml().h2, value_of(oracle, "reml_h2"), 1e-6, "model.reml().h2");
+  expect_relative(model.reml().log_likelihood, value_of(oracle, "reml_loglik"), 1e-9, "model.reml().log_likelihood");
+  expect_relative(model.reml().sigma2_g + model.reml().sigma2_e, value_of(oracle, "reml_s2"), 1e-6, "model.reml().sigma2_g + model.reml().sigma2_e");
+  expect_relative(model.null_ml().h2, value_of(oracle, "ml0_h2"), 1e-6, "model.null_ml().h2");
+  expect_relative(model.null_ml().log_likelihood, value_of(oracle, "ml0_loglik"), 1e-9, "model.null_ml().log_likelihood");
+
+  const std::vector<tamis::ScoreResult> scores = whitened_scores(model, cohort);
+  for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant) {
+    const std::string key = "g" + std::to_string(variant + 1);
+    // R 4.2.2 dense oracle: T = (g'Py)^2 / (g'Pg), and the ML confirmation, to 1e-6.
+    expect_relative(scores[variant].chisq, value_of(oracle, key + "_score"), 1e-6, "scores[variant].chisq" + std::string(" ") + key);
+    const tamis::ConfirmResult result = model.confirm(cohort.variants.col(variant));
+    EXPECT_TRUE(result.converged);
+    expect_relative(result.wald_chisq, value_of(oracle, key + "_wald"), 1e-6, "result.wald_chisq" + std::string(" ") + key);
+    expect_relative(result.lrt_chisq, value_of(oracle, key + "_lr"), 1e-6, "result.lrt_chisq" + std::string(" ") + key);
+    expect_relative(result.beta, value_of(oracle, key + "_beta"), 1e-6, "result.beta" + std::string(" ") + key);
+    expect_relative(result.se, value_of(oracle, key + "_se"), 1e-6, "result.se" + std::string(" ") + key);
+  }
+  report_largest_deviation("the dense oracle in R");
+  EXPECT_GT(scores[0].chisq, 10.0) << "the simulated effect of g1 is found";
+}
+
+TEST(MixedModelReference, GenomicRelatednessMatchesDenseOracle) {
+  if (!have_rscript()) GTEST_SKIP() << "Rscript is not installed";
+  const Cohort cohort = pedigree_cohort(20260302);
+  const Eigen::VectorXd eigenvalues = dense_relatedness(cohort.relatedness).selfadjointView<Eigen::Lower>().eigenvalues();
+  ASSERT_GT(eigenvalues.minCoeff(), 0.0);
+  check_against_dense_oracle(cohort, "mixed_model_oracle_psd");
+}
+
+TEST(MixedModelReference, ThresholdedRelatednessWithANegativeEigenvalueMatchesDenseOracle) {
+  if (!have_rscript()) GTEST_SKIP() << "Rscript is not installed";
+  const Cohort cohort = thresholded_with_contradiction(pedigree_cohort(20260302), 0.05);
+  const Eigen::VectorXd eigenvalues = dense_relatedness(cohort.relatedness).selfadjointView<Eigen::Lower>().eigenvalues();
+  ASSERT_LT(eigenvalues.minCoeff(), -0.05);
+  ASSERT_GT(eigenvalues.minCoeff(), -0.5);
+  check_against_dense_oracle(cohort, "mixed_model_oracle_negative");
+}
+
+// ---------------------------------------------------------------------------
+// Dense algebra in C++ and properties.
+
+// T = (g'Py)^2 / (g'Pg) with P = V^-1 - V^-1 X (X'V^-1 X)^-1 X'V^-1 and
+// V = s2 H at the REML fit (formula; design notes, "Related samples").
+TEST(MixedModel, WhitenedScoreKernelIsTheMixedModelScoreTest) {
+  const Cohort cohort = pedigree_cohort(11);
+  const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
+  const double h2 = model.reml().h2, s2 = model.reml().sigma2_g + model.reml().sigma2_e;
+  const Eigen::Index n = cohort.size();
+  const Eigen::MatrixXd v =
+      s2 * ((1.0 - h2) * Eigen::MatrixXd::Identity(n, n) + h2 * dense_relatedness(cohort.relatedness));
+  const Eigen::MatrixXd v_inverse = v.llt().solve(Eigen::MatrixXd::Identity(n, n));
+  const Eigen::MatrixXd x = cohort.design;
+  const Eigen::MatrixXd p =
+      v_inverse - v_inverse * x * (x.transpose() * v_inverse * x).ldlt().solve(x.transpose() * v_inverse);
+  const std::vector<tamis::ScoreResult> scores = whitened_scores(model, cohort);
+  for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant) {
+    const Eigen::VectorXd g = cohort.variants.col(variant);
+    const double u = g.dot(p * cohort.y);
+    EXPECT_NEAR(scores[variant].chisq, u * u / g.dot(p * g), 1e-9 * scores[variant].chisq);
+  }
+  // And the GLS coefficients of the whitened OLS fit are the model's.
+  const tamis::NullModel whitened = tamis::fit_null_model("trait", tamis::TraitKind::quantitative,
+                                                          model.whiten(cohort.y), model.whiten(cohort.design),
+                                                          design_names());
+  EXPECT_LT((whitened.coefficients - model.coefficients()).norm(), 1e-10 * model.coefficients().norm());
+  EXPECT_NEAR(whitened.sigma2, s2, 1e-10 * s2);
+}
+
+TEST(MixedModel, SparseCholeskyPathAgreesWithTheEigendecomposition) {
+  const Cohort cohort = thresholded_with_contradiction(pedigree_cohort(12), 0.05);
+  tamis::MixedModelOptions sparse;
+  sparse.dense_component_limit = 4;  // the families of 5 and 6 and the three-generation pedigrees
+  const MixedModel dense_model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
+  const MixedModel sparse_model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, sparse);
+  EXPECT_NEAR(sparse_model.reml().h2, dense_model.reml().h2, 1e-7);
+  EXPECT_NEAR(sparse_model.reml().log_likelihood, dense_model.reml().log_likelihood, 1e-9);
+  EXPECT_NEAR(sparse_model.null_ml().h2, dense_model.null_ml().h2, 1e-7);
+  EXPECT_LT((sparse_model.coefficients() - dense_model.coefficients()).norm(), 1e-8);
+  const auto dense_scores = whitened_scores(dense_model, cohort);
+  const auto sparse_scores = whitened_scores(sparse_model, cohort);
+  for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant) {
+    // The two paths round differently, and the optimiser's tolerance on h2 (about 1e-8) carries into T.
+    EXPECT_NEAR(sparse_scores[variant].chisq, dense_scores[variant].chisq, 1e-6 * dense_scores[variant].chisq);
+    const auto dense_result = dense_model.confirm(cohort.variants.col(variant));
+    const auto sparse_result = sparse_model.confirm(cohort.variants.col(variant));
+    EXPECT_NEAR(sparse_result.lrt_chisq, dense_result.lrt_chisq, 1e-6);
+    EXPECT_NEAR(sparse_result.wald_chisq, dense_result.wald_chisq, 1e-6);
+  }
+}
+
+TEST(MixedModel, WhitenBlockMatchesWhitenColumnByColumn) {
+  const Cohort cohort = pedigree_cohort(13);
+  tamis::MixedModelOptions sparse;
+  sparse.dense_component_limit = 4;
+  for (const auto& options : {tamis::MixedModelOptions(), sparse}) {
+    const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, options);
+    // The block holds two rows that are not the model's (left alone) and the
+    // model's samples in reverse order.
+    const std::size_t n = static_cast<std::size_t>(cohort.size()), width = 4, rows = n + 2;
+    std::vector<std::size_t> row_of_sample(n);
+    for (std::size_t sample = 0; sample < n; ++sample) row_of_sample[sample] = rows - 1 - sample;
+    std::vector<double> block(rows * width, -7.0);
+    for (std::size_t sample = 0; sample < n; ++sample)
+      for (std::size_t col = 0; col < width; ++col)
+        block[row_of_sample[sample] * width + col] = cohort.variants(static_cast<Eigen::Index>(sample), static_cast<Eigen::Index>(col));
+    model.whiten_block(block.data(), width, row_of_sample);
+    for (std::size_t col = 0; col < width; ++col) {
+      const Eigen::VectorXd expected = model.whiten(Eigen::VectorXd(cohort.variants.col(static_cast<Eigen::Index>(col))));
+      for (std::size_t sample = 0; sample < n; ++sample)
+        EXPECT_EQ(block[row_of_sample[sample] * width + col], expected[static_cast<Eigen::Index>(sample)]);
+      EXPECT_EQ(block[0 * width + col], -7.0);
+      EXPECT_EQ(block[1 * width + col], -7.0);
+    }
+    // W'W = H^-1 at the REML h2.
+    const Eigen::Index count = cohort.size();
+    const Eigen::MatrixXd w = model.whiten(Eigen::MatrixXd(Eigen::MatrixXd::Identity(count, count)));
+    const double h2 = model.reml().h2;
+    const Eigen::MatrixXd h =
+        (1.0 - h2) * Eigen::MatrixXd::Identity(count, count) + h2 * dense_relatedness(cohort.relatedness);
+    EXPECT_LT((w.transpose() * w * h - Eigen::MatrixXd::Identity(count, count)).cwiseAbs().maxCoeff(), 1e-9);
+  }
+}
+
+TEST(MixedModel, ResultsDoNotDependOnTheSampleOrder) {
+  const Cohort cohort = pedigree_cohort(14);
+  std::vector<int> new_index(static_cast<std::size_t>(cohort.size()));
+  std::iota(new_index.begin(), new_index.end(), 0);
+  std::shuffle(new_index.begin(), new_index.end(), std::mt19937_64(5));
+  const Cohort shuffled = permuted(cohort, new_index);
+  const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
+  const MixedModel other = MixedModel::fit(shuffled.y, shuffled.design, shuffled.relatedness);
+  // Rounding differs with the order; a search on likelihood values places h2
+  // to about 1e-8 (the likelihood is flat at its maximum), and T follows.
+  EXPECT_NEAR(other.reml().h2, model.reml().h2, 1e-7);
+  EXPECT_NEAR(other.reml().log_likelihood, model.reml().log_likelihood, 1e-9);
+  EXPECT_NEAR(other.null_ml().log_likelihood, model.null_ml().log_likelihood, 1e-9);
+  EXPECT_LT((other.coefficients() - model.coefficients()).norm(), 1e-8);
+  EXPECT_EQ(other.components().size(), model.components().size());
+  const auto scores = whitened_scores(model, cohort), other_scores = whitened_scores(other, shuffled);
+  for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant) {
+    EXPECT_NEAR(other_scores[variant].chisq, scores[variant].chisq, 1e-6 * scores[variant].chisq);
+    EXPECT_NEAR(other.confirm(shuffled.variants.col(variant)).lrt_chisq,
+                model.confirm(cohort.variants.col(variant)).lrt_chisq, 1e-7);
+  }
+}
+
+// With no pairs and a unit diagonal, H = I whatever h2: the fit is the
+// ordinary linear model (formulas of the plain model, src/model).
+TEST(MixedModel, UnrelatedSamplesGiveTheOrdinaryLinearModel) {
+  Cohort cohort = family_cohort(15, 150);
+  cohort.relatedness.pairs.clear();
+  const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
+  const tamis::NullModel ols =
+      tamis::fit_null_model("trait", tamis::TraitKind::quantitative, cohort.y, cohort.design, design_names());
+  EXPECT_EQ(model.reml().h2, 0.0);
+  EXPECT_TRUE(model.reml().at_boundary);
+  EXPECT_EQ(model.reml().sigma2_g, 0.0);
+  EXPECT_NEAR(model.reml().sigma2_e, ols.sigma2, 1e-12 * ols.sigma2);
+  EXPECT_NEAR(model.null_ml().log_likelihood, ols.log_likelihood, 1e-10 * std::fabs(ols.log_likelihood));
+  EXPECT_LT((model.coefficients() - ols.coefficients).norm(), 1e-10 * ols.coefficients.norm());
+  EXPECT_TRUE(model.components().empty());
+  const double n = cohort.size(), p = 3;
+  for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant) {
+    const tamis::ConfirmResult mixed = model.confirm(cohort.variants.col(variant));
+    const tamis::ConfirmResult plain = tamis::confirm_variant(ols, cohort.variants.col(variant));
+    EXPECT_NEAR(mixed.lrt_chisq, plain.lrt_chisq, 1e-9 * plain.lrt_chisq);
+    EXPECT_NEAR(mixed.beta, plain.beta, 1e-10 * std::fabs(plain.beta));
+    // The plain Wald uses s2 = RSS1 / (n - p - 1), the ML one RSS1 / n.
+    EXPECT_NEAR(mixed.wald_chisq, plain.wald_chisq * n / (n - p - 1), 1e-9 * plain.wald_chisq);
+  }
+  // The whitening is the identity.
+  EXPECT_EQ(model.whiten(cohort.y), cohort.y);
+}
+
+TEST(MixedModel, NegativeWithinFamilyCorrelationPutsH2OnTheBoundary) {
+  Cohort cohort = family_cohort(16, 120);
+  // Within every family y sums to the same value: members are negatively correlated.
+  for (std::size_t start = 0; start < cohort.family.size();) {
+    std::size_t end = start;
+    while (end < cohort.family.size() && cohort.family[end] == cohort.family[start]) ++end;
+    const double mean = cohort.y.segment(start, end - start).mean();
+    if (end - start > 1) cohort.y.segment(start, end - start).array() -= mean - 3.0;
+    start = end;
+  }
+  const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
+  EXPECT_EQ(model.reml().h2, 0.0);
+  EXPECT_TRUE(model.reml().at_boundary);
+  EXPECT_EQ(model.null_ml().h2, 0.0);
+  const tamis::NullModel ols =
+      tamis::fit_null_model("trait", tamis::TraitKind::quantitative, cohort.y, cohort.design, design_names());
+  EXPECT_NEAR(model.reml().sigma2_e, ols.sigma2, 1e-12 * ols.sigma2);
+}
+
+TEST(MixedModel, GenotypeInTheCovariateSpanIsNotEstimable) {
+  const Cohort cohort = family_cohort(17, 60);
+  const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
+  const tamis::ConfirmResult result = model.confirm(2.0 * cohort.design.col(2) + 1.0 * cohort.design.col(0));
+  EXPECT_FALSE(result.converged);
+  EXPECT_EQ(result.wald_chisq, 0.0);
+  EXPECT_EQ(result.lrt_chisq, 0.0);
+  EXPECT_EQ(result.wald_log_p, 0.0);
+  EXPECT_EQ(result.lrt_log_p, 0.0);
+}
+
+TEST(MixedModel, CollinearDesignColumnsAreDroppedAsInThePlainModel) {
+  const Cohort cohort = family_cohort(18, 80);
+  Eigen::MatrixXd design(cohort.size(), 4);
+  design << cohort.design.leftCols(2), 3.0 * cohort.design.col(1), cohort.design.col(2);
+  const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
+  const MixedModel with_copy = MixedModel::fit(cohort.y, design, cohort.relatedness);
+  EXPECT_NEAR(with_copy.reml().h2, model.reml().h2, 1e-9);
+  EXPECT_NEAR(with_copy.reml().log_likelihood, model.reml().log_likelihood, 1e-8);
+  ASSERT_EQ(with_copy.coefficients().size(), 3);
+  EXPECT_LT((with_copy.coefficients() - model.coefficients()).norm(), 1e-8);
+}
+
+TEST(MixedModel, AMatrixThatAdmitsNoUsefulH2IsRefusedNamingItsSamples) {
+  Cohort cohort = family_cohort(19, 60);
+  cohort.relatedness.pairs.clear();
+  cohort.relatedness.pairs.push_back({3, 9, 2.5});  // eigenvalues 1 +- 2.5: H factors only for h2 < 0.4
+  tamis::MixedModelOptions options;
+  options.sample_label = [](std::uint32_t sample) { return "saltmarsh_" + std::to_string(sample); };
+  try {
+    MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, options);
+    FAIL() << "expected an error";
+  } catch (const tamis::Error& error) {
+    EXPECT_EQ(error.code(), tamis::ExitCode::model);
+    EXPECT_NE(error.problem().find("saltmarsh_3, saltmarsh_9"), std::string::npos) << error.problem();
+    EXPECT_NE(error.fix().find("--keep-above"), std::string::npos) << error.fix();
+  }
+  tamis::MixedModelOptions sparse = options;
+  sparse.dense_component_limit = 1;
+  EXPECT_THROW(MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, sparse), tamis::Error);
+}
+
+TEST(MixedModel, ConstantTraitIsRefusedAsByThePlainModel) {
+  Cohort cohort = family_cohort(20, 40);
+  cohort.y.setConstant(2.0);
+  EXPECT_THROW(MixedModel::fit(cohort.y, cohort.design, cohort.relatedness), tamis::Error);
+}
+
+}  // namespace
