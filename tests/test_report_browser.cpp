@@ -9,6 +9,7 @@
 // and say so.
 #include <gtest/gtest.h>
 
+#include <cstdio>
 #include <string>
 #include <vector>
 
@@ -26,10 +27,12 @@ const char* const error_recorder =
     "  window.browserCheckErrors.push((event.message || 'resource failed to load') + target);\n"
     "}, true);</script>\n";
 
-// After load: one line per image and one per recorded error, in a <pre>.
+// After load: one line per image, one per recorded error, and the page's
+// width against the window's, in a <pre>.
 const char* const load_reporter =
     "<script>window.addEventListener('load', function () {\n"
-    "  var lines = [];\n"
+    "  var page = document.documentElement;\n"
+    "  var lines = ['width ' + page.scrollWidth + ' ' + page.clientWidth];\n"
     "  document.querySelectorAll('img').forEach(function (image) {\n"
     "    lines.push('image ' + image.className + ' ' + (image.complete ? 'complete' : 'incomplete') + ' ' +\n"
     "               image.naturalWidth + 'x' + image.naturalHeight);\n"
@@ -56,9 +59,12 @@ struct BrowserView {
   std::vector<std::string> errors;         // error events the page raised
   std::vector<std::string> console_lines;  // chromium's log lines of console messages
   bool reported = false;                   // the load script ran and wrote its <pre>
+  int page_width = 0;                      // the page's scroll width, and the window's width
+  int window_width = 0;
 };
 
-// Opens a copy of the page with the two scripts in headless chromium.
+// Opens a copy of the page with the two scripts in headless chromium, in a
+// window narrower than the plots' natural width.
 BrowserView open_in_browser(const std::string& browser, const std::string& html_path, const std::string& work_dir) {
   std::string page = read_text_file(html_path);
   const std::size_t head = page.find("<head>");
@@ -77,7 +83,7 @@ BrowserView open_in_browser(const std::string& browser, const std::string& html_
   const std::string command = "timeout 300 '" + browser +
                               "' --headless --no-sandbox --disable-gpu --disable-dev-shm-usage --no-first-run"
                               " --no-default-browser-check --disable-extensions --user-data-dir='" +
-                              work_dir + "/profile' --virtual-time-budget=10000 --enable-logging=stderr --v=0"
+                              work_dir + "/profile' --window-size=800,1000 --virtual-time-budget=10000 --enable-logging=stderr --v=0"
                               " --dump-dom 'file://" +
                               probe + "' > '" + work_dir + "/dom.html' 2> '" + work_dir + "/browser.log'";
   EXPECT_EQ(run_command(command), 0) << read_text_file(work_dir + "/browser.log");
@@ -92,6 +98,7 @@ BrowserView open_in_browser(const std::string& browser, const std::string& html_
     for (const std::string& line : lines_of(dom.substr(start + opening.size(), end - start - opening.size()))) {
       if (line.rfind("image ", 0) == 0) view.images.push_back(line.substr(6));
       if (line.rfind("error ", 0) == 0) view.errors.push_back(line.substr(6));
+      if (line.rfind("width ", 0) == 0) std::sscanf(line.c_str(), "width %d %d", &view.page_width, &view.window_width);
     }
   }
   // chromium logs each console message as "[...:INFO:CONSOLE:LINE] "text", source: ..."
@@ -155,6 +162,10 @@ TEST(ReportInBrowser, EveryPlotLoadsAndThePageLogsNoError) {
   EXPECT_EQ(view.images, expected);
   EXPECT_TRUE(view.errors.empty()) << joined(view.errors);
   EXPECT_TRUE(view.console_lines.empty()) << joined(view.console_lines);
+  // In an 800-pixel window the page scrolls only up and down: plots shrink
+  // to fit, and wide tables scroll in their own boxes.
+  EXPECT_GT(view.window_width, 0);
+  EXPECT_LE(view.page_width, view.window_width);
   // The page as the browser built it holds both traits' lead loci tables.
   const std::string dom = read_text_file(dir + "/dom.html");
   std::size_t loci_tables = 0;

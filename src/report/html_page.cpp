@@ -23,10 +23,11 @@ p.note { color: #6b6e74; font-size: 13px; margin: 4px 0 12px; }
 table { border-collapse: collapse; font-size: 13px; margin: 6px 0 12px; }
 th { background: #e8efef; text-align: left; padding: 5px 10px; border-bottom: 1px solid #b9c9cb; }
 td { padding: 4px 10px; border-bottom: 1px solid #e4e1d8; font-variant-numeric: tabular-nums; }
-td.number { text-align: right; }
+td.number { text-align: right; white-space: nowrap; }
+.table-scroll { overflow-x: auto; }
 .plots { display: flex; flex-wrap: wrap; gap: 16px; align-items: flex-start; }
 .plots img.manhattan { width: 100%; max-width: 1800px; height: auto; }
-.plots img.qq { width: 520px; height: auto; }
+.plots img.qq { width: 520px; max-width: 100%; height: auto; }
 pre { background: #f3f1ea; border: 1px solid #e0dccf; padding: 10px 12px; font-size: 12px;
       overflow-x: auto; white-space: pre-wrap; }
 )";
@@ -58,7 +59,9 @@ std::string header_row(const std::vector<std::string>& names) {
 }
 
 std::string summary_table(const PageContent& page) {
-  std::string html = "<table class=\"summary\">\n";
+  // In a box of its own that scrolls sideways, so that a narrow window
+  // scrolls the table, not the page, and numbers stay whole.
+  std::string html = "<div class=\"table-scroll\"><table class=\"summary\">\n";
   html += header_row({"trait", "variants", "\u03bb (genomic control)", "p < 5e-8", "lead loci",
                       "max \u2212log10 p", "tests discordant > 1 log10"});
   for (const TraitSection& section : page.sections) {
@@ -68,12 +71,12 @@ std::string summary_table(const PageContent& page) {
     }
     html += "</tr>\n";
   }
-  return html + "</table>\n";
+  return html + "</table></div>\n";
 }
 
 std::string loci_table(const TraitSection& section) {
   if (section.loci.empty()) return "<p class=\"note\">No variant passes the lead threshold.</p>\n";
-  std::string html = "<table class=\"loci\">\n";
+  std::string html = "<div class=\"table-scroll\"><table class=\"loci\">\n";
   html += header_row({"chromosome", "lead position", "lead variant", "rsid", "p", "\u2212log10 p", "beta",
                       "locus start", "locus end", "variants"});
   for (const LocusRow& row : section.loci) {
@@ -82,7 +85,7 @@ std::string loci_table(const TraitSection& section) {
             cell(row.neg_log_10_p_value, true) + cell(row.beta, true) + cell(std::to_string(row.span_start), true) +
             cell(std::to_string(row.span_end), true) + cell(std::to_string(row.n_variants), true) + "</tr>\n";
   }
-  html += "</table>\n";
+  html += "</table></div>\n";
   if (section.n_loci_total > section.loci.size()) {
     html += "<p class=\"note\">The " + std::to_string(section.loci.size()) + " most significant of " +
             std::to_string(section.n_loci_total) + " lead loci; the loci table file lists them all.</p>\n";
