@@ -129,12 +129,19 @@ std::string joined(const std::vector<std::string>& lines) {
   return text;
 }
 
-TEST(ReportInBrowser, EveryPlotLoadsAndThePageLogsNoError) {
-  const std::string browser = find_browser();
-  if (browser.empty()) {
-    GTEST_SKIP() << "no chromium on PATH, so the report page was not opened in a browser "
-                    "(scripts/install_dependencies.sh installs Debian's chromium)";
+class ReportInBrowser : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    browser_ = find_browser();
+    if (browser_.empty()) {
+      GTEST_SKIP() << "no chromium on PATH, so the report page is not opened in a browser "
+                      "(scripts/install_dependencies.sh installs Debian's chromium)";
+    }
   }
+  std::string browser_;
+};
+
+TEST_F(ReportInBrowser, EveryPlotLoadsAndThePageLogsNoError) {
   const std::string dir = make_temp_dir("report_browser");
   // A small cohort with planted effects, so that both traits have lead loci.
   ASSERT_EQ(run_command(tamis_binary() + " simulate --out " + dir + "/cohort --samples 1500 --variants 2000 --seed 3" +
@@ -148,7 +155,7 @@ TEST(ReportInBrowser, EveryPlotLoadsAndThePageLogsNoError) {
                         "/scan.winter_wheeze.tsv.gz --locus-radius-kb 250 --out " + dir + "/report 2>/dev/null"),
             0);
 
-  const BrowserView view = open_in_browser(browser, dir + "/report.html", dir);
+  const BrowserView view = open_in_browser(browser_, dir + "/report.html", dir);
   ASSERT_TRUE(view.reported) << "the page's load event never came";
   // Each image decoded at the size of the PNG file it inlines.
   std::vector<std::string> expected;
@@ -177,20 +184,15 @@ TEST(ReportInBrowser, EveryPlotLoadsAndThePageLogsNoError) {
   EXPECT_NE(dom.find("within 250 kb of it"), std::string::npos);
 }
 
-TEST(ReportInBrowser, ABrokenImageAndAScriptErrorAreCaught) {
+TEST_F(ReportInBrowser, ABrokenImageAndAScriptErrorAreCaught) {
   // The check itself, on a page made to fail: an image whose data is no PNG
   // and a script that throws and logs to the console.
-  const std::string browser = find_browser();
-  if (browser.empty()) {
-    GTEST_SKIP() << "no chromium on PATH, so the browser check was not run "
-                    "(scripts/install_dependencies.sh installs Debian's chromium)";
-  }
   const std::string dir = make_temp_dir("report_browser_broken");
   write_text_file(dir + "/broken.html",
                   "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<title>broken</title>\n</head>\n<body>\n"
                   "<img class=\"qq\" alt=\"not a PNG\" src=\"data:image/png;base64,AAAAAAAA\">\n"
                   "<script>console.warn('a warning'); undefined_function();</script>\n</body>\n</html>\n");
-  const BrowserView view = open_in_browser(browser, dir + "/broken.html", dir);
+  const BrowserView view = open_in_browser(browser_, dir + "/broken.html", dir);
   ASSERT_TRUE(view.reported);
   EXPECT_EQ(view.images, std::vector<std::string>({"qq complete 0x0"}));
   EXPECT_EQ(view.errors.size(), 2u) << joined(view.errors);  // the image and the uncaught ReferenceError
