@@ -91,6 +91,9 @@ struct ScanOptions {
   int shard_count = 0;
   std::vector<GenomicRegion> regions;  // --region: read only these, through the index
   VariantSelection selection;
+  // --relatedness: the files of one relatedness matrix (a whole one, or the
+  // parts of one); quantitative traits then get a linear mixed null model.
+  std::vector<std::string> relatedness_paths;
   QcFloors floors;
   std::string keep_samples_path;  // one sample ID per line
   std::string drop_samples_path;

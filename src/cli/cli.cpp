@@ -91,6 +91,7 @@ struct ScanArguments {
   std::string variant_list;
   QcFloors floors;
   std::string keep_samples;
+  std::vector<std::string> relatedness;
   std::string drop_samples;
   std::vector<std::string> rank_normalize;
   int haploid_dosage = 1;
@@ -220,6 +221,8 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
   if (!arguments.keep_samples.empty()) check_readable("--keep-samples", arguments.keep_samples);
   if (!arguments.drop_samples.empty()) check_readable("--drop-samples", arguments.drop_samples);
   options.keep_samples_path = arguments.keep_samples;
+  for (const std::string& path : arguments.relatedness) check_readable("--relatedness", path);
+  options.relatedness_paths = arguments.relatedness;
   options.drop_samples_path = arguments.drop_samples;
   for (const std::string& trait : arguments.rank_normalize) {
     if (std::find(arguments.trait_names.begin(), arguments.trait_names.end(), trait) == arguments.trait_names.end()) {
@@ -295,6 +298,9 @@ void add_analysis_options(CLI::App* command, ScanArguments& arguments) {
   command->add_option("--hwe-floor", arguments.floors.hwe_p,
                       "Keep variants whose Hardy-Weinberg exact-test p is at least this");
   command->add_option("--keep-samples", arguments.keep_samples, "Analyse only the sample IDs in this file");
+  command->add_option("--relatedness", arguments.relatedness,
+                      "Relatedness matrix of the samples (one file, or every part of one): quantitative traits get "
+                      "a linear mixed null model");
   command->add_option("--drop-samples", arguments.drop_samples, "Leave out the sample IDs in this file");
   command->add_option("--rank-normalize", arguments.rank_normalize,
                       "Quantitative trait to give a rank-based inverse normal transform (repeatable)");

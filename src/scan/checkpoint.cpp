@@ -65,6 +65,9 @@ std::vector<std::string> describe_run(const ScanOptions& options, bool with_shar
   if (!options.keep_samples_path.empty()) lines.push_back("keep_samples=" + describe_file(options.keep_samples_path));
   if (!options.drop_samples_path.empty()) lines.push_back("drop_samples=" + describe_file(options.drop_samples_path));
   lines.push_back("rank_normalize=" + join(options.rank_normalize));
+  for (const std::string& path : options.relatedness_paths) {
+    lines.push_back("relatedness=" + path + " md5 " + md5_hex_of_file(path));
+  }
   lines.push_back("haploid_dosage=" + std::to_string(options.haploid_dosage));
   if (options.selection.active()) {
     std::vector<std::string> chosen(options.selection.variant_ids.begin(), options.selection.variant_ids.end());

@@ -18,6 +18,7 @@
 
 #include "scan/checkpoint.hpp"
 #include "scan/progress.hpp"
+#include "scan/related_samples.hpp"
 #include "scan/trait_pass.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/trait_transform.hpp"
@@ -176,7 +177,8 @@ std::vector<std::size_t> samples_outside(const std::vector<std::size_t>& genotyp
 }
 
 std::vector<TraitContext> prepare_traits(const ScanOptions& options, const TraitTable& table,
-                                         const std::vector<std::string>& samples) {
+                                         const std::vector<std::string>& samples,
+                                         const ScanRelatedness* relatedness) {
   std::vector<TraitContext> traits(options.traits.size());
   const std::vector<bool> excluded = excluded_samples(options, samples);
   for (std::size_t trait_idx = 0; trait_idx < options.traits.size(); ++trait_idx) {
@@ -198,10 +200,13 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
       throw Error(error.code(), options.traits_path + ", column '" + request.trait + "'",
                   error.where().empty() ? error.problem() : error.where() + ": " + error.problem(), error.fix());
     }
-    log_null_model(request.trait, trait.model);
+    if (relatedness) {
+      fit_mixed_null_model(*relatedness, trait);
+    } else {
+      log_null_model(request.trait, trait.model);
+    }
     trait.confirm_below = options.confirm_below;
     trait.spread_flag = options.spread_flag;
-    trait.penalized_refit = options.penalized_refit;
     if (options.selection.active()) trait.selection = &options.selection;
     trait.floors = options.floors;
     trait.haploid_dosage = options.haploid_dosage;
@@ -213,6 +218,8 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
   // The kernels hold references to the models, so they are made once the vector is final.
   for (TraitContext& trait : traits) {
     trait.kernel = make_kernel(trait);
+    trait.tests = trait.mixed ? make_mixed_model(*trait.mixed, kernel_row_of_sample(trait))
+                              : make_plain_model(trait.model, options.penalized_refit);
     if (trait.set.kind == TraitKind::binary && options.binary_score == BinaryScore::saddlepoint) {
       trait.saddlepoint = std::make_unique<SaddlepointContext>(trait.model);
     }
@@ -463,6 +470,11 @@ std::vector<std::pair<std::string, std::string>> provenance_entries(const ScanOp
                                                                     const std::vector<GenomicRegion>& regions) {
   std::vector<std::pair<std::string, std::string>> entries;
   entries.emplace_back(kFingerprintKey, fingerprint_of(describe_run(options, false)));
+  std::string relatedness;
+  for (const std::string& path : options.relatedness_paths) {
+    relatedness += (relatedness.empty() ? "" : "; ") + base_name(path) + " md5 " + md5_hex_of_file(path);
+  }
+  if (!relatedness.empty()) entries.emplace_back(kRelatednessKey, relatedness);
   if (options.shard_count > 0) {
     entries.emplace_back(kShardKey, std::to_string(options.shard) + "/" + std::to_string(options.shard_count));
     entries.emplace_back(kShardRangesKey, describe_regions(regions));
@@ -556,7 +568,12 @@ ScanSummary run_scan(const ScanOptions& requested) {
   current_log().detail("run fingerprint: " + provenance.front().second);
   const TraitTable table = TraitTable::load(options.traits_path, options.table);
   log_inputs(options, reader, table);
-  const std::vector<TraitContext> traits = prepare_traits(options, table, reader.sample_ids());
+  std::optional<ScanRelatedness> relatedness;
+  if (!options.relatedness_paths.empty()) {
+    relatedness = load_scan_relatedness(options.relatedness_paths, reader.sample_ids());
+  }
+  const std::vector<TraitContext> traits =
+      prepare_traits(options, table, reader.sample_ids(), relatedness ? &*relatedness : nullptr);
 
   ScanProgress progress;
   progress.state.run_description = describe_run(options, true);

@@ -7,7 +7,6 @@
 
 #include "common/vector_clones.hpp"
 #include "tamis/distributions.hpp"
-#include "tamis/firth.hpp"
 #include "tamis/hardy_weinberg.hpp"
 #include "tamis/results_writer.hpp"
 
@@ -452,6 +451,14 @@ std::unique_ptr<ScoreKernel> make_kernel(const TraitContext& trait) {
   return std::make_unique<ScoreKernel>(trait.model, samples, trait.kernel_row_samples.size());
 }
 
+std::vector<std::size_t> kernel_row_of_sample(const TraitContext& trait) {
+  const std::vector<std::size_t>& samples = trait.set.genotype_index;
+  if (trait.kernel_row_samples != samples) return samples;
+  std::vector<std::size_t> rows(samples.size());
+  for (std::size_t row = 0; row < rows.size(); ++row) rows[row] = row;
+  return rows;
+}
+
 void gather_block(const std::vector<std::size_t>& row_samples, const DosageBlock& block, GatheredBlock& gathered) {
   const std::size_t width = block.size();
   gathered.genotypes.resize(row_samples.size() * width);
@@ -572,45 +579,13 @@ void fill_confirmed_columns(const ConfirmResult& confirmed, const char* test, Re
   row.log10p_spread = spread_of(row.score_log_p, confirmed.wald_log_p, confirmed.lrt_log_p);
 }
 
-ConfirmResult from_firth(const FirthResult& firth) {
-  ConfirmResult result;
-  result.beta = firth.beta;
-  result.se = firth.se;
-  result.wald_chisq = firth.wald_chisq;
-  result.wald_log_p = firth.wald_log_p;
-  result.lrt_chisq = firth.lrt_chisq;
-  result.lrt_log_p = firth.lrt_log_p;
-  result.iterations = firth.iterations;
-  result.converged = firth.converged;
-  return result;
-}
-
-bool wants_firth(const TraitContext& trait, const ConfirmResult& standard, double minor_allele_count) {
-  if (trait.set.kind != TraitKind::binary) return false;
-  switch (trait.penalized_refit) {
-    case PenalizedRefit::always: return true;
-    case PenalizedRefit::never: return false;
-    case PenalizedRefit::automatic: break;
-  }
-  return !standard.converged || minor_allele_count < kFirthBelowMinorAlleleCount;
-}
-
-// The standard refit, replaced by Firth's where the standard one cannot be
-// trusted: separation, no convergence, or too few copies of the minor allele.
+// The model's refit of a hit, with Firth's penalised likelihood counted
+// where it replaced the standard refit.
 void confirm_row(const TraitContext& trait, const Eigen::VectorXd& column, ResultRow& row, TraitTally& tally) {
-  const bool firth_first = trait.set.kind == TraitKind::binary && trait.penalized_refit == PenalizedRefit::always;
-  ConfirmResult confirmed;
-  bool by_firth = firth_first;
-  if (!firth_first) {
-    confirmed = confirm_variant(trait.model, column);
-    by_firth = wants_firth(trait, confirmed, row.mac);
-  }
-  if (by_firth) {
-    confirmed = from_firth(firth_refit(trait.model, column));
-    ++tally.firth;
-  }
-  if (!confirmed.converged) ++tally.confirm_not_converged;
-  fill_confirmed_columns(confirmed, by_firth ? "firth_lrt" : "lrt", row);
+  const Confirmation confirmation = trait.tests->confirm(column, row.mac);
+  if (confirmation.by_firth) ++tally.firth;
+  if (!confirmation.result.converged) ++tally.confirm_not_converged;
+  fill_confirmed_columns(confirmation.result, confirmation.by_firth ? "firth_lrt" : "lrt", row);
   ++tally.confirmed;
 }
 
@@ -662,7 +637,8 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block, co
   }
   scratch.scores.resize(width);
   const ImputedDosages imputed{gathered.missing_rows.data(), gathered.missing_starts.data(), scratch.fills.data()};
-  trait.kernel->compute(gathered.genotypes.data(), width, scratch.score_scratch, scratch.scores.data(), &imputed);
+  const KernelInput input = trait.tests->prepare_block(gathered, width, scratch.fills.data(), imputed, scratch.adjusted);
+  trait.kernel->compute(input.genotypes, width, scratch.score_scratch, scratch.scores.data(), input.imputed);
 
   ResultRow row;
   for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {

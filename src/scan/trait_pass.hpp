@@ -9,7 +9,9 @@
 #include <utility>
 #include <vector>
 
+#include "scan/trait_model.hpp"
 #include "tamis/confirm.hpp"
+#include "tamis/mixed_model.hpp"
 #include "tamis/saddlepoint.hpp"
 #include "tamis/genotype_reader.hpp"
 #include "tamis/null_model.hpp"
@@ -23,10 +25,11 @@ struct TraitContext {
   AnalysisSet set;
   NullModel model;
   std::unique_ptr<ScoreKernel> kernel;
+  std::unique_ptr<MixedModel> mixed;   // with --relatedness: the kernel's model is its whitened GLS fit
+  std::unique_ptr<TraitModel> tests;   // the block the kernel reads and the refit of hits
   std::unique_ptr<SaddlepointContext> saddlepoint;  // binary traits with --binary-score spa
   double confirm_below = 1e-4;
   double spread_flag = 1.0;
-  PenalizedRefit penalized_refit = PenalizedRefit::automatic;
   const VariantSelection* selection = nullptr;  // null: every variant
   QcFloors floors;
   int haploid_dosage = 1;
@@ -45,6 +48,8 @@ struct TraitContext {
 std::vector<std::size_t> choose_kernel_rows(const AnalysisSet& set, std::size_t genotype_sample_count,
                                             std::size_t excluded_count);
 std::unique_ptr<ScoreKernel> make_kernel(const TraitContext& trait);
+// The kernel row of each analysis sample.
+std::vector<std::size_t> kernel_row_of_sample(const TraitContext& trait);
 
 // Dosage summary of one site over a trait's analysis samples.
 struct SiteSummary {
@@ -105,6 +110,7 @@ struct TraitScratch {
   std::vector<double> fills;  // each site's imputed value: the mean over the analysis samples
   std::vector<ScoreResult> scores;
   ScoreScratch score_scratch;
+  std::vector<double> adjusted;  // the block as a model adjusted it for the kernel (whitened rows)
   Eigen::VectorXd column;
 };
 

@@ -1,0 +1,189 @@
+#include "scan/related_samples.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <unordered_map>
+#include <utility>
+
+#include "tamis/errors.hpp"
+#include "tamis/run_log.hpp"
+
+namespace tamis {
+namespace {
+
+std::string format_number(double value) {
+  char text[64];
+  std::snprintf(text, sizeof text, "%.6g", value);
+  return text;
+}
+
+std::string first_ids(const std::vector<std::string>& ids, std::size_t shown) {
+  std::string text;
+  for (std::size_t id_idx = 0; id_idx < ids.size() && id_idx < shown; ++id_idx) text += (id_idx ? ", " : "") + ids[id_idx];
+  if (ids.size() > shown) text += ", ...";
+  return text;
+}
+
+std::string join_paths(const std::vector<std::string>& paths) {
+  std::string text;
+  for (const std::string& path : paths) text += (text.empty() ? "" : ", ") + path;
+  return text;
+}
+
+void log_structure(const std::string& trait, const SparseRelatedness& relatedness,
+                   const std::vector<std::vector<std::uint32_t>>& components) {
+  std::size_t in_families = 0, largest = 1;
+  for (const auto& component : components) {
+    in_families += component.size();
+    largest = std::max(largest, component.size());
+  }
+  current_log().line("trait " + trait + ": relatedness among " + std::to_string(relatedness.sample_count) +
+                     " analysis samples: " + std::to_string(relatedness.pairs.size()) + " related pairs, " +
+                     std::to_string(in_families) + " samples in " + std::to_string(components.size()) +
+                     " related groups (largest " + std::to_string(largest) + "), " +
+                     std::to_string(relatedness.sample_count - in_families) + " with no relative");
+}
+
+void log_variance_components(const std::string& trait, const MixedModel& mixed) {
+  const VarianceComponents& reml = mixed.reml();
+  current_log().line("null model " + trait + ": linear mixed model by REML, h^2 = " + format_number(reml.h2) +
+                     ", sigma_g^2 = " + format_number(reml.sigma2_g) + ", sigma_e^2 = " +
+                     format_number(reml.sigma2_e) + ", REML log-likelihood = " + format_number(reml.log_likelihood) +
+                     ", " + std::to_string(reml.iterations) + " iterations");
+  current_log().detail("  ML null fit: h^2 = " + format_number(mixed.null_ml().h2) +
+                       ", log-likelihood = " + format_number(mixed.null_ml().log_likelihood));
+  if (reml.at_boundary && reml.h2 <= 0.0) {
+    current_log().line("note: trait " + trait + ": the REML estimate of h^2 is 0 (no polygenic variance); "
+                       "the mixed model is then the plain linear model, and the scan goes on");
+  } else if (reml.at_boundary) {
+    current_log().line("note: trait " + trait + ": the REML estimate of h^2 sits at the largest value the "
+                       "relatedness matrix admits (" + format_number(reml.h2) + ")");
+  }
+}
+
+class MixedLinearModel : public TraitModel {
+ public:
+  MixedLinearModel(const MixedModel& mixed, std::vector<std::size_t> row_of_sample)
+      : mixed_(mixed), row_of_sample_(std::move(row_of_sample)) {}
+
+  // Whitening mixes the rows of a family, so a missing dosage must hold its
+  // imputed value before, not after: the kernel's own list cannot serve.
+  KernelInput prepare_block(const GatheredBlock& gathered, std::size_t width, const double* fills,
+                            const ImputedDosages&, std::vector<double>& scratch) const override {
+    scratch.assign(gathered.genotypes.begin(), gathered.genotypes.end());
+    for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
+      for (std::size_t entry = gathered.missing_starts[site_idx]; entry < gathered.missing_starts[site_idx + 1];
+           ++entry) {
+        scratch[gathered.missing_rows[entry] * width + site_idx] = fills[site_idx];
+      }
+    }
+    mixed_.whiten_block(scratch.data(), width, row_of_sample_);
+    return {scratch.data(), nullptr};
+  }
+
+  Confirmation confirm(const Eigen::VectorXd& genotype, double) const override {
+    return {mixed_.confirm(genotype), false};
+  }
+
+ private:
+  const MixedModel& mixed_;
+  std::vector<std::size_t> row_of_sample_;
+};
+
+}  // namespace
+
+std::unique_ptr<TraitModel> make_mixed_model(const MixedModel& mixed, std::vector<std::size_t> row_of_sample) {
+  return std::make_unique<MixedLinearModel>(mixed, std::move(row_of_sample));
+}
+
+ScanRelatedness load_scan_relatedness(const std::vector<std::string>& paths,
+                                      const std::vector<std::string>& genotype_samples) {
+  ScanRelatedness relatedness;
+  relatedness.paths = paths;
+  relatedness.matrix = read_relatedness_files(paths);
+  std::unordered_map<std::string, std::int64_t> index_of_id;
+  for (std::size_t id_idx = 0; id_idx < relatedness.matrix.sample_ids.size(); ++id_idx) {
+    index_of_id.emplace(relatedness.matrix.sample_ids[id_idx], static_cast<std::int64_t>(id_idx));
+  }
+  relatedness.matrix_index_of_sample.assign(genotype_samples.size(), -1);
+  std::vector<bool> matched(relatedness.matrix.sample_ids.size(), false);
+  std::vector<std::string> without_entry;
+  for (std::size_t sample_idx = 0; sample_idx < genotype_samples.size(); ++sample_idx) {
+    auto found = index_of_id.find(genotype_samples[sample_idx]);
+    if (found == index_of_id.end()) {
+      without_entry.push_back(genotype_samples[sample_idx]);
+      continue;
+    }
+    relatedness.matrix_index_of_sample[sample_idx] = found->second;
+    matched[static_cast<std::size_t>(found->second)] = true;
+  }
+  std::vector<std::string> unknown;
+  for (std::size_t id_idx = 0; id_idx < matched.size(); ++id_idx) {
+    if (!matched[id_idx]) unknown.push_back(relatedness.matrix.sample_ids[id_idx]);
+  }
+  RunLog& log = current_log();
+  log.line("relatedness: " + join_paths(paths) + ": " + std::to_string(relatedness.matrix.sample_ids.size()) +
+           " samples, " + std::to_string(relatedness.matrix.pairs.size()) + " related pairs");
+  if (!unknown.empty()) {
+    log.line("note: " + std::to_string(unknown.size()) + " sample IDs of the relatedness matrix are not in the "
+             "genotype files and are ignored (" + first_ids(unknown, 5) + ")");
+  }
+  if (!without_entry.empty()) {
+    log.line("note: " + std::to_string(without_entry.size()) + " genotype samples have no entry in the "
+             "relatedness matrix and count as unrelated to everyone (" + first_ids(without_entry, 5) + ")");
+  }
+  return relatedness;
+}
+
+SparseRelatedness relatedness_among(const ScanRelatedness& relatedness, const std::vector<std::size_t>& genotype_index) {
+  const RelatednessFileContents& matrix = relatedness.matrix;
+  std::vector<std::int64_t> analysis_of_entry(matrix.sample_ids.size(), -1);
+  SparseRelatedness among;
+  among.sample_count = genotype_index.size();
+  among.diagonal.assign(genotype_index.size(), 1.0);
+  for (std::size_t analysis_idx = 0; analysis_idx < genotype_index.size(); ++analysis_idx) {
+    const std::int64_t entry = relatedness.matrix_index_of_sample[genotype_index[analysis_idx]];
+    if (entry < 0) continue;
+    analysis_of_entry[static_cast<std::size_t>(entry)] = static_cast<std::int64_t>(analysis_idx);
+    const double diagonal = matrix.diagonal[static_cast<std::size_t>(entry)];
+    if (!std::isnan(diagonal)) among.diagonal[analysis_idx] = diagonal;
+  }
+  for (const RelatednessPair& pair : matrix.pairs) {
+    const std::int64_t first = analysis_of_entry[pair.first];
+    const std::int64_t second = analysis_of_entry[pair.second];
+    if (first < 0 || second < 0 || pair.value == 0.0) continue;
+    among.pairs.push_back({static_cast<std::uint32_t>(std::min(first, second)),
+                           static_cast<std::uint32_t>(std::max(first, second)), pair.value});
+  }
+  // A fixed order whatever the order of the files' rows.
+  std::sort(among.pairs.begin(), among.pairs.end(), [](const RelatednessPair& a, const RelatednessPair& b) {
+    return a.first != b.first ? a.first < b.first : a.second < b.second;
+  });
+  return among;
+}
+
+void fit_mixed_null_model(const ScanRelatedness& relatedness, TraitContext& trait) {
+  const std::string& name = trait.set.trait;
+  if (trait.set.kind == TraitKind::binary) {
+    throw Error(ExitCode::usage, "--relatedness, trait " + name,
+                "mixed-model scans of binary traits are not available yet (only quantitative traits)",
+                "scan the binary trait in a separate run without --relatedness, or leave out related samples");
+  }
+  const SparseRelatedness among = relatedness_among(relatedness, trait.set.genotype_index);
+  try {
+    trait.mixed = std::make_unique<MixedModel>(MixedModel::fit(trait.set.y, trait.model.design, among));
+  } catch (const Error& error) {
+    throw Error(error.code(), join_paths(relatedness.paths) + ", trait " + name,
+                error.where().empty() ? error.problem() : error.where() + ": " + error.problem(), error.fix());
+  }
+  log_structure(name, among, trait.mixed->components());
+  log_variance_components(name, *trait.mixed);
+  // The plain fit has already dropped collinear columns and named them.
+  const NullModel plain = std::move(trait.model);
+  trait.model = fit_null_model(name, trait.set.kind, trait.mixed->whiten(trait.set.y),
+                               trait.mixed->whiten(plain.design), plain.column_names);
+  trait.model.dropped_columns = plain.dropped_columns;
+}
+
+}  // namespace tamis

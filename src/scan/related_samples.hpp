@@ -1,0 +1,44 @@
+// Related samples in a scan: the relatedness matrix read once, placed on
+// each trait's analysis samples, and each trait's linear mixed null model.
+#pragma once
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "scan/trait_pass.hpp"
+#include "tamis/relatedness_file.hpp"
+
+namespace tamis {
+
+struct ScanRelatedness {
+  std::vector<std::string> paths;
+  RelatednessFileContents matrix;
+  // For each genotype sample, its index among the matrix's IDs, or -1.
+  std::vector<std::int64_t> matrix_index_of_sample;
+};
+
+// Reads --relatedness and matches its IDs to the genotype samples; IDs that
+// the genotype files lack are counted and ignored, and the log says so.
+ScanRelatedness load_scan_relatedness(const std::vector<std::string>& paths,
+                                      const std::vector<std::string>& genotype_samples);
+
+// The matrix restricted to the analysis samples (genotype_index[s] is the
+// genotype sample of analysis sample s), in analysis order; a sample with no
+// diagonal entry has 1.
+SparseRelatedness relatedness_among(const ScanRelatedness& relatedness, const std::vector<std::size_t>& genotype_index);
+
+// Given the trait's plain null model (trait.model, whose design has lost
+// any collinear columns), fits the linear mixed model by REML, logs its
+// variance components, and sets trait.mixed and replaces trait.model by the
+// least-squares fit of the whitened data, which the score kernel then uses
+// unchanged. Throws tamis::Error (usage) for a binary trait.
+void fit_mixed_null_model(const ScanRelatedness& relatedness, TraitContext& trait);
+
+// The linear mixed model's part in the per-trait stage: the kernel reads the
+// block with its missing dosages imputed and its rows whitened
+// (row_of_sample[s] is the kernel row of analysis sample s); hits are
+// refitted by maximum likelihood.
+std::unique_ptr<TraitModel> make_mixed_model(const MixedModel& mixed, std::vector<std::size_t> row_of_sample);
+
+}  // namespace tamis

@@ -1,0 +1,50 @@
+// What the per-trait stage asks of a trait's null model besides the score
+// kernel: the block the kernel reads, and the confirmation refit of a hit.
+// One implementation per class of null model (plain regression, linear
+// mixed model, ...), so that the per-trait stage stays an orchestrator and
+// grows no branch per model.
+#pragma once
+
+#include <Eigen/Dense>
+#include <cstddef>
+#include <memory>
+#include <vector>
+
+#include "tamis/confirm.hpp"
+#include "tamis/null_model.hpp"
+#include "tamis/scan.hpp"
+#include "tamis/score_kernel.hpp"
+
+namespace tamis {
+
+struct GatheredBlock;
+
+// The sample-major dosages the score kernel reads, and the missing dosages
+// it must impute itself (none once the model has imputed them).
+struct KernelInput {
+  const double* genotypes = nullptr;
+  const ImputedDosages* imputed = nullptr;
+};
+
+struct Confirmation {
+  ConfirmResult result;
+  bool by_firth = false;  // Firth's penalised likelihood replaced the standard refit
+};
+
+class TraitModel {
+ public:
+  virtual ~TraitModel() = default;
+  // `fills` holds each site's imputed dosage, `imputed` the gathered block's
+  // list of missing dosages with those fills; `scratch` may receive a copy.
+  virtual KernelInput prepare_block(const GatheredBlock& gathered, std::size_t width, const double* fills,
+                                    const ImputedDosages& imputed, std::vector<double>& scratch) const = 0;
+  // `genotype` holds the variant's imputed dosages over the analysis samples.
+  virtual Confirmation confirm(const Eigen::VectorXd& genotype, double minor_allele_count) const = 0;
+};
+
+// Least squares or logistic regression of independent samples; binary hits
+// are refitted by Firth's penalised likelihood where the standard refit
+// cannot be trusted (see PenalizedRefit).
+std::unique_ptr<TraitModel> make_plain_model(const NullModel& model, PenalizedRefit penalized_refit);
+
+}  // namespace tamis
