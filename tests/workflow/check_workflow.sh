@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Runs scripts/workflow/Snakefile with 4 shards on a small simulated cohort
 # under `snakemake --cores 2` and checks that the merged results equal the
-# same scan run whole (decompressed, byte for byte).
+# same scan run whole (decompressed, byte for byte), and that the 3 parts of
+# the relatedness matrix hold the rows of the whole matrix.
 # Usage: check_workflow.sh TAMIS WORKDIR
 set -euo pipefail
 tamis=$(realpath "$1"); work=$2
@@ -17,6 +18,7 @@ covariates: [age, sex, village, pc1, pc2]
 shards: 4
 out: $work/sharded/cohort
 extra: "--genome-assembly GRCh38"
+relatedness_parts: 3
 YAML
 snakemake -s "$root/scripts/workflow/Snakefile" --configfile "$work/config.yaml" --cores 2 \
   --directory "$work" --quiet > "$work/snakemake.out" 2>&1 || { cat "$work/snakemake.out"; exit 1; }
@@ -28,4 +30,8 @@ for trait in fev1_litres winter_wheeze; do
   echo "$trait: 4-shard workflow equals the whole run"
 done
 test -s "$work/sharded/cohort.report.html"
+"$tamis" relatedness --genotypes "$work/cohort.vcf.gz" --out "$work/whole" --quiet
+cmp <(zcat "$work/whole.relatedness.tsv.gz" | tail -n +2 | sort) \
+    <(for part in 1 2 3; do zcat "$work/sharded/cohort_relatedness/matrix.relatedness.part$part-of-3.tsv.gz" | tail -n +2; done | sort)
+echo "relatedness: 3 parts hold the rows of the whole matrix"
 echo "workflow ok"
