@@ -2,7 +2,9 @@
 // of h2) on a cohort of 50,000 samples, 30% of them in families of 2 to 6
 // whose relatedness comes from their pedigrees (0.5 parent-offspring and
 // full siblings, 0.25 half-siblings, 0.125 first cousins), 5 covariates
-// plus the intercept, one thread. Also the cost of one confirmation refit.
+// plus the intercept, one thread. Also the cost of one confirmation refit,
+// and of whitening one block of dosages (the scan's width at this sample
+// count) beside the score kernel's cost for the same block.
 //
 // Build: cmake -B build-bench -DTAMIS_BUILD_BENCH=ON && cmake --build build-bench --target mixed_model_bench
 // Run:   build-bench/scripts/bench/mixed_model_bench [SAMPLES] [ROUNDS]
@@ -17,6 +19,7 @@
 #include <vector>
 
 #include "tamis/mixed_model.hpp"
+#include "tamis/score_kernel.hpp"
 
 namespace {
 
@@ -115,6 +118,36 @@ double median(std::vector<double> values) {
   return values[values.size() / 2];
 }
 
+// The scan's block width at this sample count (src/scan/scan.cpp: 1 MiB of
+// doubles, 8 to 256 variants), whitened and then tested, 200 times each.
+void time_block_whitening(const tamis::MixedModel& model, const Eigen::VectorXd& y, const Eigen::MatrixXd& design) {
+  const std::size_t n = static_cast<std::size_t>(y.size());
+  const std::size_t width = std::clamp<std::size_t>((std::size_t{1} << 20) / (8 * n) / 8 * 8, 8, 256);
+  const tamis::NullModel whitened = tamis::fit_null_model("bench", tamis::TraitKind::quantitative, model.whiten(y),
+                                                          model.whiten(design), std::vector<std::string>(
+                                                              static_cast<std::size_t>(design.cols()), "x"));
+  Random random(7);
+  std::vector<double> dosages(n * width), block;
+  for (double& dosage : dosages) dosage = random.below(3);
+  std::vector<std::size_t> identity(n);
+  for (std::size_t sample = 0; sample < n; ++sample) identity[sample] = sample;
+  tamis::ScoreKernel kernel(whitened);
+  tamis::ScoreScratch scratch;
+  std::vector<tamis::ScoreResult> results(width);
+  std::vector<double> whiten_seconds, kernel_seconds;
+  for (int round = 0; round < 200; ++round) {
+    block = dosages;
+    auto start = std::chrono::steady_clock::now();
+    model.whiten_block(block.data(), width, identity);
+    whiten_seconds.push_back(seconds_since(start));
+    start = std::chrono::steady_clock::now();
+    kernel.compute(block.data(), width, scratch, results.data());
+    kernel_seconds.push_back(seconds_since(start));
+  }
+  std::printf("block of %zu variants: whiten_block median %.3f ms, score kernel median %.3f ms\n", width,
+              1e3 * median(whiten_seconds), 1e3 * median(kernel_seconds));
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -182,6 +215,7 @@ int main(int argc, char** argv) {
         confirm_seconds.push_back(seconds_since(confirm_start));
       }
       std::printf("confirmation refit (ML, h2 re-estimated): median %.3f s\n", median(confirm_seconds));
+      time_block_whitening(model, y, design);
     }
   }
   std::printf("samples %zu, in %zu families: %zu, related pairs %zu, covariates %d + intercept\n",

@@ -5,8 +5,17 @@
 #include <cmath>
 #include <limits>
 
+#include "tamis/errors.hpp"
+
 namespace tamis::detail {
 namespace {
+
+// Components above this size are whitened by a sparse Cholesky factor of H_c
+// at the REML h2 rather than by the dense D^-1/2 U': per variant that costs
+// the factor's nonzeros instead of k^2, which for a pedigree's sparse A is far
+// less (the likelihood still uses the eigendecomposition, whose evaluations
+// cost O(k) at any h2).
+constexpr std::size_t kDenseWhiteningLimit = 12;
 
 // The largest admissible h2 for a block whose A has smallest eigenvalue
 // lambda: the eigenvalues of H, 1 + h2 (lambda - 1), stay at or above
@@ -17,24 +26,82 @@ double admissible_h2_for(double smallest_eigenvalue) {
   return std::min(cap, (1.0 - kSmallestEigenvalueOfH) / (1.0 - smallest_eigenvalue));
 }
 
-// Copies the rows of `samples` out of a sample-major block into `buffer`
-// (samples.size() x width, row-major), and back.
+// Copies the rows of `samples` (count of them from `samples`) out of a
+// sample-major block into `buffer` (count x width, row-major), and back.
 void gather_rows(const double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
-                 const std::vector<std::uint32_t>& samples, double* buffer) {
-  for (std::size_t local = 0; local < samples.size(); ++local) {
+                 const std::uint32_t* samples, std::size_t count, double* buffer) {
+  for (std::size_t local = 0; local < count; ++local) {
     const double* source = genotypes + row_of_sample[samples[local]] * width;
     std::copy(source, source + width, buffer + local * width);
   }
 }
 void scatter_rows(const double* buffer, std::size_t width, const std::vector<std::size_t>& row_of_sample,
-                  const std::vector<std::uint32_t>& samples, double* genotypes) {
-  for (std::size_t local = 0; local < samples.size(); ++local) {
+                  const std::uint32_t* samples, std::size_t count, double* genotypes) {
+  for (std::size_t local = 0; local < count; ++local) {
     std::copy(buffer + local * width, buffer + (local + 1) * width,
               genotypes + row_of_sample[samples[local]] * width);
   }
 }
 
 using RowMajorMatrix = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
+using SparseFactor = Eigen::SimplicialLLT<Eigen::SparseMatrix<double>, Eigen::Lower, Eigen::AMDOrdering<int>>;
+
+// H_c(h2) = h2 A_c + (1 - h2) I of one component as a sparse matrix, and
+// its Cholesky factor P'LL'P at any h2.
+class SparseH {
+ public:
+  explicit SparseH(const RelatedComponent& component) {
+    const int size = static_cast<int>(component.samples.size());
+    std::vector<Eigen::Triplet<double>> entries = component.pairs;
+    for (int local = 0; local < size; ++local) {
+      entries.emplace_back(local, local, component.diagonal[static_cast<std::size_t>(local)]);
+    }
+    lower_a_.resize(size, size);
+    lower_a_.setFromTriplets(entries.begin(), entries.end());
+    identity_.resize(size, size);
+    identity_.setIdentity();
+  }
+
+  // The factor at an h2 where H must be positive definite.
+  std::unique_ptr<SparseFactor> whitening_factor_at(double h2) const {
+    std::unique_ptr<SparseFactor> factor = factor_at(h2);
+    if (!factor) throw Error(ExitCode::internal, "mixed model", "H is not positive definite at the fitted h2");
+    return factor;
+  }
+
+  // Null where H is not positive definite at h2.
+  std::unique_ptr<SparseFactor> factor_at(double h2) const {
+    const Eigen::SparseMatrix<double> h = h2 * lower_a_ + (1.0 - h2) * identity_;
+    auto factor = std::make_unique<SparseFactor>(h);
+    if (factor->info() != Eigen::Success) return nullptr;
+    const Eigen::VectorXd pivots = factor->matrixL().nestedExpression().diagonal();
+    if (!(pivots.array() > 0.0).all() || !pivots.allFinite()) return nullptr;
+    return factor;
+  }
+
+ private:
+  Eigen::SparseMatrix<double> lower_a_;  // A's lower triangle, diagonal included, in local numbering
+  Eigen::SparseMatrix<double> identity_;
+};
+
+double log_determinant(const SparseFactor& factor) {
+  return 2.0 * factor.matrixL().nestedExpression().diagonal().array().log().sum();
+}
+
+// Replaces the component's rows of a sample-major block by L^-1 P of them.
+// The sparse triangular solve treats each column on its own, so a variant's
+// values do not depend on the others in the block.
+void whiten_by_factor(const SparseFactor& factor, const std::vector<std::uint32_t>& samples, double* genotypes,
+                      std::size_t width, const std::vector<std::size_t>& row_of_sample, std::vector<double>& scratch) {
+  const auto size = static_cast<Eigen::Index>(samples.size());
+  const auto columns = static_cast<Eigen::Index>(width);
+  scratch.resize(samples.size() * width);
+  gather_rows(genotypes, width, row_of_sample, samples.data(), samples.size(), scratch.data());
+  Eigen::MatrixXd whitened = factor.permutationP() * Eigen::Map<const RowMajorMatrix>(scratch.data(), size, columns);
+  factor.matrixL().solveInPlace(whitened);
+  Eigen::Map<RowMajorMatrix>(scratch.data(), size, columns) = whitened;
+  scatter_rows(scratch.data(), width, row_of_sample, samples.data(), samples.size(), genotypes);
+}
 
 class EigenComponents final : public CovarianceFactor {
  public:
@@ -49,6 +116,7 @@ class EigenComponents final : public CovarianceFactor {
       limit_range(singleton_diagonal[single_idx], {singletons_[single_idx]});
     }
     Eigen::Index offset = static_cast<Eigen::Index>(singletons_.size());
+    dense_starts_.push_back(0);
     for (RelatedComponent& component : components) {
       const Eigen::Index size = static_cast<Eigen::Index>(component.samples.size());
       Eigen::MatrixXd block = Eigen::MatrixXd::Zero(size, size);
@@ -59,12 +127,18 @@ class EigenComponents final : public CovarianceFactor {
       }
       Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> solver(block);
       eigenvalues_.segment(offset, size) = solver.eigenvalues();
-      offset += size;
       limit_range(solver.eigenvalues()[0], component.samples);
-      largest_ = std::max(largest_, component.samples.size());
-      components_.push_back({std::move(component.samples), solver.eigenvectors(), Eigen::MatrixXd()});
+      Decomposed decomposed{component.samples, solver.eigenvectors(), offset, nullptr, nullptr};
+      if (component.samples.size() > kDenseWhiteningLimit) {
+        decomposed.sparse = std::make_unique<SparseH>(component);
+      } else {
+        dense_samples_.insert(dense_samples_.end(), component.samples.begin(), component.samples.end());
+        dense_starts_.push_back(dense_samples_.size());
+        largest_dense_ = std::max(largest_dense_, component.samples.size());
+      }
+      components_.push_back(std::move(decomposed));
+      offset += size;
     }
-    singleton_scale_ = Eigen::VectorXd::Ones(static_cast<Eigen::Index>(singletons_.size()));
   }
 
   Eigen::Index row_count() const override { return eigenvalues_.size(); }
@@ -75,10 +149,8 @@ class EigenComponents final : public CovarianceFactor {
     Eigen::Index offset = 0;
     for (std::uint32_t sample : singletons_) working.row(offset++) = columns.row(sample);
     for (const Decomposed& component : components_) {
-      const Eigen::Index size = static_cast<Eigen::Index>(component.samples.size());
-      working.middleRows(offset, size).noalias() =
+      working.middleRows(component.offset, component.eigenvectors.rows()).noalias() =
           component.eigenvectors.transpose() * columns(component.samples, Eigen::all);
-      offset += size;
     }
     return working;
   }
@@ -91,44 +163,78 @@ class EigenComponents final : public CovarianceFactor {
     return h_eigenvalues.log().sum();
   }
 
+  // W_c = D^-1/2 U' (row-major, for whiten_block's loop) for the small
+  // components, L^-1 P for the larger ones.
   void set_whitening(double h2) override {
-    const Eigen::Index single_count = static_cast<Eigen::Index>(singletons_.size());
     const Eigen::ArrayXd scale = (1.0 + h2 * (eigenvalues_.array() - 1.0)).rsqrt();
-    singleton_scale_ = scale.head(single_count);
-    Eigen::Index offset = single_count;
+    // A singleton with A_jj = 1 (the usual case) has H_jj = 1: nothing to do.
+    scaled_singletons_.clear();
+    singleton_scales_.clear();
+    for (std::size_t single_idx = 0; single_idx < singletons_.size(); ++single_idx) {
+      if (scale[static_cast<Eigen::Index>(single_idx)] == 1.0) continue;
+      scaled_singletons_.push_back(singletons_[single_idx]);
+      singleton_scales_.push_back(scale[static_cast<Eigen::Index>(single_idx)]);
+    }
+    dense_whitening_.clear();
     for (Decomposed& component : components_) {
-      const Eigen::Index size = static_cast<Eigen::Index>(component.samples.size());
-      component.whitening = scale.segment(offset, size).matrix().asDiagonal() * component.eigenvectors.transpose();
-      offset += size;
+      if (component.sparse) {
+        component.factor = component.sparse->whitening_factor_at(h2);
+        continue;
+      }
+      const Eigen::Index size = component.eigenvectors.rows();
+      const RowMajorMatrix whitening =
+          scale.segment(component.offset, size).matrix().asDiagonal() * component.eigenvectors.transpose();
+      dense_whitening_.insert(dense_whitening_.end(), whitening.data(), whitening.data() + size * size);
     }
   }
 
   void whiten_block(double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
                     std::vector<double>& scratch) const override {
-    for (std::size_t single_idx = 0; single_idx < singletons_.size(); ++single_idx) {
-      double* row = genotypes + row_of_sample[singletons_[single_idx]] * width;
-      const double scale = singleton_scale_[static_cast<Eigen::Index>(single_idx)];
+    for (std::size_t scaled_idx = 0; scaled_idx < scaled_singletons_.size(); ++scaled_idx) {
+      double* row = genotypes + row_of_sample[scaled_singletons_[scaled_idx]] * width;
+      const double scale = singleton_scales_[scaled_idx];
       for (std::size_t col = 0; col < width; ++col) row[col] *= scale;
     }
-    scratch.resize(2 * largest_ * width);
+    whiten_small_components(genotypes, width, row_of_sample, scratch);
     for (const Decomposed& component : components_) {
-      const Eigen::Index size = static_cast<Eigen::Index>(component.samples.size());
-      const Eigen::Index columns = static_cast<Eigen::Index>(width);
-      double* gathered = scratch.data();
-      double* whitened = scratch.data() + largest_ * width;
-      gather_rows(genotypes, width, row_of_sample, component.samples, gathered);
-      Eigen::Map<RowMajorMatrix>(whitened, size, columns).noalias() =
-          component.whitening * Eigen::Map<const RowMajorMatrix>(gathered, size, columns);
-      scatter_rows(whitened, width, row_of_sample, component.samples, genotypes);
+      if (component.sparse) whiten_by_factor(*component.factor, component.samples, genotypes, width, row_of_sample, scratch);
     }
   }
 
  private:
   struct Decomposed {
     std::vector<std::uint32_t> samples;
-    Eigen::MatrixXd eigenvectors;  // U, columns in the order of eigenvalues_
-    Eigen::MatrixXd whitening;     // D^-1/2 U' at the fixed h2
+    Eigen::MatrixXd eigenvectors;         // U, columns in the order of its eigenvalues
+    Eigen::Index offset = 0;              // its first working row
+    std::unique_ptr<SparseH> sparse;      // above kDenseWhiteningLimit: H_c for the whitening factor
+    std::unique_ptr<SparseFactor> factor; // ... and the factor at the fixed h2
   };
+
+  // out_j = sum_l W_jl in_l over each small component's rows, one fixed
+  // sequence of rounded operations per value: a variant's whitened values do
+  // not depend on the block's other variants or its width.
+  void whiten_small_components(double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
+                               std::vector<double>& scratch) const {
+    scratch.resize(largest_dense_ * width);
+    double* gathered = scratch.data();
+    const double* whitening = dense_whitening_.data();
+    for (std::size_t comp_idx = 0; comp_idx + 1 < dense_starts_.size(); ++comp_idx) {
+      const std::uint32_t* samples = dense_samples_.data() + dense_starts_[comp_idx];
+      const std::size_t size = dense_starts_[comp_idx + 1] - dense_starts_[comp_idx];
+      gather_rows(genotypes, width, row_of_sample, samples, size, gathered);
+      for (std::size_t out_idx = 0; out_idx < size; ++out_idx) {
+        const double* weights = whitening + out_idx * size;
+        double* out = genotypes + row_of_sample[samples[out_idx]] * width;
+        for (std::size_t col = 0; col < width; ++col) out[col] = weights[0] * gathered[col];
+        for (std::size_t in_idx = 1; in_idx < size; ++in_idx) {
+          const double weight = weights[in_idx];
+          const double* in = gathered + in_idx * width;
+          for (std::size_t col = 0; col < width; ++col) out[col] += weight * in[col];
+        }
+      }
+      whitening += size * size;
+    }
+  }
 
   void limit_range(double smallest_eigenvalue, std::vector<std::uint32_t> samples) {
     const double h2_max = admissible_h2_for(smallest_eigenvalue);
@@ -136,27 +242,23 @@ class EigenComponents final : public CovarianceFactor {
   }
 
   std::vector<std::uint32_t> singletons_;
-  Eigen::VectorXd singleton_scale_;  // D^-1/2 of the singletons at the fixed h2
+  // The singletons whose H_jj is not 1 at the fixed h2, and their H_jj^-1/2.
+  std::vector<std::uint32_t> scaled_singletons_;
+  std::vector<double> singleton_scales_;
   std::vector<Decomposed> components_;
   Eigen::VectorXd eigenvalues_;  // of A, in working-row order: singletons, then each component's
-  std::size_t largest_ = 0;
+  // The small components whitened by W_c: their samples back to back, where
+  // each starts, and their W_c (row-major) back to back.
+  std::vector<std::uint32_t> dense_samples_;
+  std::vector<std::size_t> dense_starts_;
+  std::vector<double> dense_whitening_;
+  std::size_t largest_dense_ = 0;
   AdmissibleRange range_;
 };
 
 class SparseComponent final : public CovarianceFactor {
-  using Factor = Eigen::SimplicialLLT<Eigen::SparseMatrix<double>, Eigen::Lower, Eigen::AMDOrdering<int>>;
-
  public:
-  explicit SparseComponent(RelatedComponent component) : samples_(std::move(component.samples)) {
-    const int size = static_cast<int>(samples_.size());
-    std::vector<Eigen::Triplet<double>> entries = std::move(component.pairs);
-    for (int local = 0; local < size; ++local) {
-      entries.emplace_back(local, local, component.diagonal[static_cast<std::size_t>(local)]);
-    }
-    lower_a_.resize(size, size);
-    lower_a_.setFromTriplets(entries.begin(), entries.end());
-    identity_.resize(size, size);
-    identity_.setIdentity();
+  explicit SparseComponent(const RelatedComponent& component) : samples_(component.samples), h_(component) {
     find_admissible_range();
   }
 
@@ -171,59 +273,41 @@ class SparseComponent final : public CovarianceFactor {
 
   double add_whitened_gram(double h2, const Eigen::Ref<const Eigen::MatrixXd>& working,
                            Eigen::MatrixXd& gram) const override {
-    const std::unique_ptr<Factor> factor = factor_at(h2);
+    const std::unique_ptr<SparseFactor> factor = h_.factor_at(h2);
     if (!factor) return std::numeric_limits<double>::quiet_NaN();
     Eigen::MatrixXd whitened = factor->permutationP() * working;
     factor->matrixL().solveInPlace(whitened);
     gram.noalias() += whitened.transpose() * whitened;
-    return 2.0 * factor->matrixL().nestedExpression().diagonal().array().log().sum();
+    return log_determinant(*factor);
   }
 
-  void set_whitening(double h2) override { whitening_ = factor_at(h2); }
+  void set_whitening(double h2) override { whitening_ = h_.whitening_factor_at(h2); }
 
   void whiten_block(double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
                     std::vector<double>& scratch) const override {
-    const Eigen::Index size = row_count();
-    scratch.resize(samples_.size() * width);
-    gather_rows(genotypes, width, row_of_sample, samples_, scratch.data());
-    Eigen::MatrixXd whitened =
-        whitening_->permutationP() * Eigen::Map<const RowMajorMatrix>(scratch.data(), size, static_cast<Eigen::Index>(width));
-    whitening_->matrixL().solveInPlace(whitened);
-    Eigen::Map<RowMajorMatrix>(scratch.data(), size, static_cast<Eigen::Index>(width)) = whitened;
-    scatter_rows(scratch.data(), width, row_of_sample, samples_, genotypes);
+    whiten_by_factor(*whitening_, samples_, genotypes, width, row_of_sample, scratch);
   }
 
  private:
-  // H(h2) = h2 A + (1 - h2) I, factored; null where it is not positive definite.
-  std::unique_ptr<Factor> factor_at(double h2) const {
-    const Eigen::SparseMatrix<double> h = h2 * lower_a_ + (1.0 - h2) * identity_;
-    auto factor = std::make_unique<Factor>(h);
-    if (factor->info() != Eigen::Success) return nullptr;
-    const Eigen::VectorXd pivots = factor->matrixL().nestedExpression().diagonal();
-    if (!(pivots.array() > 0.0).all() || !pivots.allFinite()) return nullptr;
-    return factor;
-  }
-
   // H is positive definite on [0, h*) (it is linear in h2 and H(0) = I), so
   // h* is found by bisection when H does not factor at the cap; then
   // lambda_min(A) = 1 - 1 / h*, and the range ends where the dense path's
   // would (admissible_h2_for).
   void find_admissible_range() {
     const double cap = 1.0 - kSmallestEigenvalueOfH;
-    if (factor_at(cap)) return;
+    if (h_.factor_at(cap)) return;
     double factorable = 0.0, failing = cap;
     while (failing - factorable > 1e-10 * failing) {
       const double middle = 0.5 * (factorable + failing);
-      (factor_at(middle) ? factorable : failing) = middle;
+      (h_.factor_at(middle) ? factorable : failing) = middle;
     }
     const double smallest_eigenvalue = 1.0 - 1.0 / failing;
     range_ = {admissible_h2_for(smallest_eigenvalue), samples_, smallest_eigenvalue};
   }
 
   std::vector<std::uint32_t> samples_;
-  Eigen::SparseMatrix<double> lower_a_;  // A's lower triangle, diagonal included, in local numbering
-  Eigen::SparseMatrix<double> identity_;
-  std::unique_ptr<Factor> whitening_;    // the factor at the fixed h2
+  SparseH h_;
+  std::unique_ptr<SparseFactor> whitening_;  // the factor at the fixed h2
   AdmissibleRange range_;
 };
 
@@ -237,7 +321,7 @@ std::unique_ptr<CovarianceFactor> make_eigen_components(std::vector<std::uint32_
 }
 
 std::unique_ptr<CovarianceFactor> make_sparse_component(RelatedComponent component) {
-  return std::make_unique<SparseComponent>(std::move(component));
+  return std::make_unique<SparseComponent>(component);
 }
 
 }  // namespace tamis::detail
