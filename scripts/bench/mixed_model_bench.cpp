@@ -7,15 +7,19 @@
 // count) beside the score kernel's cost for the same block.
 //
 // Build: cmake -B build-bench -DTAMIS_BUILD_BENCH=ON && cmake --build build-bench --target mixed_model_bench
-// Run:   build-bench/scripts/bench/mixed_model_bench [SAMPLES] [ROUNDS]
-// Prints the median wall time of ROUNDS fits (default 5). Run it on an
-// otherwise idle machine: the figures are wall times.
+// Run:   build-bench/scripts/bench/mixed_model_bench [SAMPLES] [ROUNDS] [linked]
+// Prints the median wall time of ROUNDS fits (default 5). With `linked`,
+// consecutive families are joined by one pair of 0.0625 (second cousins),
+// so that all related samples form one component, which is then factored by
+// the sparse Cholesky at each h2. Run it on an otherwise idle machine: the
+// figures are wall times.
 #include <algorithm>
 #include <chrono>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
 #include <random>
+#include <string>
 #include <vector>
 
 #include "tamis/mixed_model.hpp"
@@ -153,6 +157,7 @@ void time_block_whitening(const tamis::MixedModel& model, const Eigen::VectorXd&
 int main(int argc, char** argv) {
   const std::size_t samples = argc > 1 ? std::strtoul(argv[1], nullptr, 10) : 50000;
   const int rounds = argc > 2 ? std::atoi(argv[2]) : 5;
+  const bool linked = argc > 3 && std::string(argv[3]) == "linked";
   Random random(20260303);
 
   tamis::SparseRelatedness relatedness;
@@ -175,6 +180,7 @@ int main(int argc, char** argv) {
         }
       }
     }
+    if (linked && base > 0) relatedness.pairs.push_back({base - 1, base, 0.0625});
     in_families += sampled.size();
     ++family_count;
   }
@@ -218,8 +224,9 @@ int main(int argc, char** argv) {
       time_block_whitening(model, y, design);
     }
   }
-  std::printf("samples %zu, in %zu families: %zu, related pairs %zu, covariates %d + intercept\n",
-              relatedness.sample_count, family_count, in_families, relatedness.pairs.size(), kCovariates);
+  std::printf("samples %zu, in %zu families: %zu%s, related pairs %zu, covariates %d + intercept\n",
+              relatedness.sample_count, family_count, in_families, linked ? " (linked into one component)" : "",
+              relatedness.pairs.size(), kCovariates);
   std::printf("REML h2 %.6f (%d evaluations), ML h2 evaluated as well\n", reml.h2, reml.iterations);
   std::printf("MixedModel::fit (REML + ML null fits), one thread: median of %d rounds %.3f s\n", rounds,
               median(fit_seconds));

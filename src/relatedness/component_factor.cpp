@@ -44,10 +44,11 @@ void scatter_rows(const double* buffer, std::size_t width, const std::vector<std
 }
 
 using RowMajorMatrix = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
-using SparseFactor = Eigen::SimplicialLLT<Eigen::SparseMatrix<double>, Eigen::Lower, Eigen::AMDOrdering<int>>;
+using SparseFactor = Eigen::SimplicialLLT<Eigen::SparseMatrix<double>, Eigen::Lower, Eigen::NaturalOrdering<int>>;
 
-// H_c(h2) = h2 A_c + (1 - h2) I of one component as a sparse matrix, and
-// its Cholesky factor P'LL'P at any h2.
+// H_c(h2) = h2 A_c + (1 - h2) I of one component as a sparse matrix, its
+// rows and columns permuted once by a fill-reducing ordering P (AMD), and its
+// Cholesky factor P H P' = L L' at any h2: W = L^-1 P whitens.
 class SparseH {
  public:
   explicit SparseH(const RelatedComponent& component) {
@@ -56,10 +57,35 @@ class SparseH {
     for (int local = 0; local < size; ++local) {
       entries.emplace_back(local, local, component.diagonal[static_cast<std::size_t>(local)]);
     }
-    lower_a_.resize(size, size);
-    lower_a_.setFromTriplets(entries.begin(), entries.end());
-    identity_.resize(size, size);
-    identity_.setIdentity();
+    Eigen::SparseMatrix<double> lower(size, size);
+    lower.setFromTriplets(entries.begin(), entries.end());
+    const Eigen::SparseMatrix<double> full = lower.selfadjointView<Eigen::Lower>();
+    Eigen::PermutationMatrix<Eigen::Dynamic, Eigen::Dynamic, int> inverse;
+    Eigen::AMDOrdering<int>()(full, inverse);
+    permutation_ = inverse.inverse();
+    permuted_lower_a_.resize(size, size);
+    permuted_lower_a_.selfadjointView<Eigen::Lower>() = lower.selfadjointView<Eigen::Lower>().twistedBy(permutation_);
+    permuted_lower_a_.makeCompressed();
+    const int* starts = permuted_lower_a_.outerIndexPtr();
+    const int* rows = permuted_lower_a_.innerIndexPtr();
+    for (int col = 0; col < size; ++col) {
+      for (int position = starts[col]; position < starts[col + 1]; ++position) {
+        if (rows[position] == col) diagonal_positions_.push_back(position);
+      }
+    }
+  }
+
+  // Null where H is not positive definite at h2.
+  std::unique_ptr<SparseFactor> factor_at(double h2) const {
+    Eigen::SparseMatrix<double> h = permuted_lower_a_;
+    double* values = h.valuePtr();
+    for (Eigen::Index entry = 0; entry < h.nonZeros(); ++entry) values[entry] *= h2;
+    for (Eigen::Index position : diagonal_positions_) values[position] += 1.0 - h2;
+    auto factor = std::make_unique<SparseFactor>(h);
+    if (factor->info() != Eigen::Success) return nullptr;
+    const Eigen::VectorXd pivots = factor->matrixL().nestedExpression().diagonal();
+    if (!(pivots.array() > 0.0).all() || !pivots.allFinite()) return nullptr;
+    return factor;
   }
 
   // The factor at an h2 where H must be positive definite.
@@ -69,19 +95,19 @@ class SparseH {
     return factor;
   }
 
-  // Null where H is not positive definite at h2.
-  std::unique_ptr<SparseFactor> factor_at(double h2) const {
-    const Eigen::SparseMatrix<double> h = h2 * lower_a_ + (1.0 - h2) * identity_;
-    auto factor = std::make_unique<SparseFactor>(h);
-    if (factor->info() != Eigen::Success) return nullptr;
-    const Eigen::VectorXd pivots = factor->matrixL().nestedExpression().diagonal();
-    if (!(pivots.array() > 0.0).all() || !pivots.allFinite()) return nullptr;
-    return factor;
+  // L^-1 P z for columns z over the component's samples in their own order.
+  // The triangular solve treats each column on its own, so a variant's
+  // values do not depend on the others beside it.
+  Eigen::MatrixXd whiten(const SparseFactor& factor, const Eigen::Ref<const Eigen::MatrixXd>& columns) const {
+    Eigen::MatrixXd whitened = permutation_ * columns;
+    factor.matrixL().solveInPlace(whitened);
+    return whitened;
   }
 
  private:
-  Eigen::SparseMatrix<double> lower_a_;  // A's lower triangle, diagonal included, in local numbering
-  Eigen::SparseMatrix<double> identity_;
+  Eigen::PermutationMatrix<Eigen::Dynamic, Eigen::Dynamic, int> permutation_;
+  Eigen::SparseMatrix<double> permuted_lower_a_;  // lower triangle of P A P', diagonal included
+  std::vector<Eigen::Index> diagonal_positions_;  // of its diagonal entries among its values
 };
 
 double log_determinant(const SparseFactor& factor) {
@@ -89,17 +115,15 @@ double log_determinant(const SparseFactor& factor) {
 }
 
 // Replaces the component's rows of a sample-major block by L^-1 P of them.
-// The sparse triangular solve treats each column on its own, so a variant's
-// values do not depend on the others in the block.
-void whiten_by_factor(const SparseFactor& factor, const std::vector<std::uint32_t>& samples, double* genotypes,
-                      std::size_t width, const std::vector<std::size_t>& row_of_sample, std::vector<double>& scratch) {
+void whiten_by_factor(const SparseH& h, const SparseFactor& factor, const std::vector<std::uint32_t>& samples,
+                      double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
+                      std::vector<double>& scratch) {
   const auto size = static_cast<Eigen::Index>(samples.size());
   const auto columns = static_cast<Eigen::Index>(width);
   scratch.resize(samples.size() * width);
   gather_rows(genotypes, width, row_of_sample, samples.data(), samples.size(), scratch.data());
-  Eigen::MatrixXd whitened = factor.permutationP() * Eigen::Map<const RowMajorMatrix>(scratch.data(), size, columns);
-  factor.matrixL().solveInPlace(whitened);
-  Eigen::Map<RowMajorMatrix>(scratch.data(), size, columns) = whitened;
+  Eigen::Map<RowMajorMatrix> rows(scratch.data(), size, columns);
+  rows = h.whiten(factor, Eigen::MatrixXd(rows));
   scatter_rows(scratch.data(), width, row_of_sample, samples.data(), samples.size(), genotypes);
 }
 
@@ -197,7 +221,10 @@ class EigenComponents final : public CovarianceFactor {
     }
     whiten_small_components(genotypes, width, row_of_sample, scratch);
     for (const Decomposed& component : components_) {
-      if (component.sparse) whiten_by_factor(*component.factor, component.samples, genotypes, width, row_of_sample, scratch);
+      if (component.sparse) {
+        whiten_by_factor(*component.sparse, *component.factor, component.samples, genotypes, width, row_of_sample,
+                         scratch);
+      }
     }
   }
 
@@ -275,8 +302,7 @@ class SparseComponent final : public CovarianceFactor {
                            Eigen::MatrixXd& gram) const override {
     const std::unique_ptr<SparseFactor> factor = h_.factor_at(h2);
     if (!factor) return std::numeric_limits<double>::quiet_NaN();
-    Eigen::MatrixXd whitened = factor->permutationP() * working;
-    factor->matrixL().solveInPlace(whitened);
+    const Eigen::MatrixXd whitened = h_.whiten(*factor, working);
     gram.noalias() += whitened.transpose() * whitened;
     return log_determinant(*factor);
   }
@@ -285,7 +311,7 @@ class SparseComponent final : public CovarianceFactor {
 
   void whiten_block(double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
                     std::vector<double>& scratch) const override {
-    whiten_by_factor(*whitening_, samples_, genotypes, width, row_of_sample, scratch);
+    whiten_by_factor(h_, *whitening_, samples_, genotypes, width, row_of_sample, scratch);
   }
 
  private:
