@@ -201,8 +201,19 @@ void GrmAccumulator::State::add_to_tile(Tile& tile, std::size_t width, bool indi
   tile.co_missing += both.cast<std::uint32_t>();
 }
 
+// Eigen blocks its products by the cache sizes it reads from the CPU, and
+// for a short block of markers (16 or fewer against a tile of 256) the
+// blocking decides which register kernel, with which order of additions,
+// takes a row. Fixed sizes make a tile's sums the same on every machine, so
+// that the parts of one matrix can run on different cluster nodes. The
+// setting is process-wide; only the speed of other products could change.
+void fix_product_blocking() {
+  Eigen::setCpuCacheSizes(32 * 1024, 512 * 1024, 8 * 1024 * 1024);
+}
+
 GrmAccumulator::GrmAccumulator(std::size_t sample_count, int part, int part_count, std::size_t tile_size)
     : state_(std::make_unique<State>()) {
+  fix_product_blocking();
   State& state = *state_;
   state.sample_count = sample_count;
   state.tile_size = std::max<std::size_t>(tile_size, 1);
