@@ -31,7 +31,11 @@ struct VarianceComponents {
   double h2 = 0.0;            // s2_g / (s2_g + s2_e)
   double sigma2_g = 0.0;
   double sigma2_e = 0.0;
-  double log_likelihood = 0.0;  // the maximised REML (or ML) log-likelihood, full constants included
+  // The maximised log-likelihood, full constants included. REML:
+  // -1/2 [(n-p) log s2 + log|H| + log|X'H^-1 X| + (n-p)(1 + log 2 pi)] with the
+  // design's own columns, which is lme4's -REMLcrit/2 exactly; ML:
+  // -1/2 [n log s2 + log|H| + n (1 + log 2 pi)], lme4's logLik of an ML fit.
+  double log_likelihood = 0.0;
   int iterations = 0;           // evaluations of the 1-D optimiser
   bool at_boundary = false;     // h2 = 0 (or the largest admissible h2)
 };
