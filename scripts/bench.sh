@@ -50,20 +50,8 @@ small_cohort="$data/cohort_${samples}x${small_variants}"
 make_cohort "$cohort" "$variants"
 make_cohort "$small_cohort" "$small_variants"
 
-# Runs a command under GNU time -v; prints "WALL_SECONDS PEAK_KB".
-measure() {
-  local report
-  report=$(mktemp)
-  /usr/bin/time -v "$@" > /dev/null 2> "$report"
-  awk -F': ' '
-    /Elapsed \(wall clock\)/ {
-      n = split($2, part, ":"); wall = 0
-      for (i = 1; i <= n; i++) wall = wall * 60 + part[i]
-    }
-    /Maximum resident set size/ { peak = $2 }
-    END { printf "%.3f %d\n", wall, peak }' "$report"
-  rm -f "$report"
-}
+# measure (wall time and peak memory under GNU time -v) and median.
+. "$root/scripts/bench_common.sh"
 
 # The scan's command line in the array `scan_args` (GNU time runs programs,
 # not shell functions).
@@ -71,8 +59,6 @@ set_scan_args() {  # TRAITS GENOTYPES OUT
   scan_args=("$tamis" scan --genotypes "$2" --traits "$1" --trait fev1_litres --trait winter_wheeze
     --covariates age,sex,village,pc1,pc2,pc3,pc4 --out "$3" --threads "$threads" --quiet)
 }
-
-median() { sort -g | awk '{ value[NR] = $1 } END { print value[int((NR + 1) / 2)] }'; }
 
 echo "cohort: $samples samples x $variants variants (GT:DS), scan with $threads threads, $rounds rounds"
 for format in vcf.gz bcf; do

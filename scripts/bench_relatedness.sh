@@ -48,21 +48,8 @@ small="$data/relatedness_${cohort_samples}x${small_variants}"
 make_cohort "$large" "$variants"
 make_cohort "$small" "$small_variants"
 
-# Runs a command under GNU time -v; prints "WALL_SECONDS PEAK_KB".
-measure() {
-  local report
-  report=$(mktemp)
-  /usr/bin/time -v "$@" > /dev/null 2> "$report"
-  awk -F': ' '
-    /Elapsed \(wall clock\)/ {
-      n = split($2, part, ":"); wall = 0
-      for (i = 1; i <= n; i++) wall = wall * 60 + part[i]
-    }
-    /Maximum resident set size/ { peak = $2 }
-    END { printf "%.3f %d\n", wall, peak }' "$report"
-  rm -f "$report"
-}
-median() { sort -g | awk '{ value[NR] = $1 } END { print value[int((NR + 1) / 2)] }'; }
+# measure (wall time and peak memory under GNU time -v) and median.
+. "$root/scripts/bench_common.sh"
 
 echo "== peak memory: $cohort_samples samples, $small_variants and $variants variants, $threads threads"
 small_peaks=() large_peaks=() small_walls=() large_walls=()

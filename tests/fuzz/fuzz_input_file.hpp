@@ -4,6 +4,7 @@
 #pragma once
 
 #include <unistd.h>
+#include <zlib.h>
 
 #include <cmath>
 #include <cstddef>
@@ -43,6 +44,16 @@ class FuzzInputFile {
     }
   }
   void write(const std::string& text) const { write(text.data(), text.size()); }
+  // The text gzipped (readers that take BGZF take gzip too). Needs zlib.
+  void write_gzip(const std::string& text) const {
+    gzFile file = gzopen(path_.c_str(), "wb1");
+    const bool written =
+        file && gzwrite(file, text.data(), static_cast<unsigned>(text.size())) == static_cast<int>(text.size());
+    if (!file || gzclose(file) != Z_OK || !(written || text.empty())) {
+      std::fprintf(stderr, "tamis fuzz: cannot write the gzip input (disk full?)\n");
+      std::abort();
+    }
+  }
 
  private:
   std::string path_;

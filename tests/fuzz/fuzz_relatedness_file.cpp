@@ -6,8 +6,6 @@
 // A tamis::Error is the expected answer to bad input; a crash, a sanitizer
 // report, a leak, a hang, any other exception or a matrix that breaks the
 // reader's promises is a bug.
-#include <zlib.h>
-
 #include <cmath>
 #include <cstddef>
 #include <cstdint>
@@ -23,15 +21,6 @@ namespace {
 
 constexpr std::uint8_t kWithHeader = 1;
 constexpr std::uint8_t kGzipped = 2;
-
-void write_gzip(const std::string& path, const std::string& text) {
-  gzFile file = gzopen(path.c_str(), "wb1");
-  const bool written = file && gzwrite(file, text.data(), static_cast<unsigned>(text.size())) ==
-                                   static_cast<int>(text.size());
-  if (!file || gzclose(file) != Z_OK || !(written || text.empty())) {
-    report_broken_invariant("could not write the gzip input (disk full?)");
-  }
-}
 
 // What the reader promises of a matrix it accepts.
 void check_contents(const RelatednessFileContents& contents) {
@@ -62,7 +51,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
   std::string text(reinterpret_cast<const char*>(data + 1), size - 1);
   if (switches & fuzzing::kWithHeader) text = "sample_1\tsample_2\trelatedness\n" + text;
   if (switches & fuzzing::kGzipped) {
-    fuzzing::write_gzip(input.path(), text);
+    input.write_gzip(text);
   } else {
     input.write(text);
   }

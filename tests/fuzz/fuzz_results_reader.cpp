@@ -5,8 +5,6 @@
 //   bit 2  require only two columns instead of every results column
 // A tamis::Error is the expected answer to bad input; a crash, a sanitizer
 // report, a leak, a hang or any other exception is a bug.
-#include <zlib.h>
-
 #include <cstddef>
 #include <cstdint>
 #include <string>
@@ -24,15 +22,6 @@ constexpr std::uint8_t kWithHeader = 1;
 constexpr std::uint8_t kGzipped = 2;
 constexpr std::uint8_t kFewColumns = 4;
 constexpr std::size_t kRowsRead = 200;
-
-void write_gzip(const std::string& path, const std::string& text) {
-  gzFile file = gzopen(path.c_str(), "wb1");
-  const bool written = file && gzwrite(file, text.data(), static_cast<unsigned>(text.size())) ==
-                                   static_cast<int>(text.size());
-  if (!file || gzclose(file) != Z_OK || !(written || text.empty())) {
-    report_broken_invariant("could not write the gzip input (disk full?)");
-  }
-}
 
 // Every typed accessor on every field: each either answers or throws tamis::Error.
 void read_fields(const ResultsReader& reader) {
@@ -84,7 +73,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
   std::string text(reinterpret_cast<const char*>(data + 1), size - 1);
   if (switches & fuzzing::kWithHeader) text = result_header_line() + text;
   if (switches & fuzzing::kGzipped) {
-    fuzzing::write_gzip(input.path(), text);
+    input.write_gzip(text);
   } else {
     input.write(text);
   }
