@@ -46,6 +46,35 @@ void scatter_rows(const double* buffer, std::size_t width, const std::vector<std
 using RowMajorMatrix = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
 using SparseFactor = Eigen::SimplicialLLT<Eigen::SparseMatrix<double>, Eigen::Lower, Eigen::NaturalOrdering<int>>;
 
+// x <- L^-1 x for the rows of a row-major block (L lower, compressed
+// column-major: Eigen's factor). All columns of the block go through each
+// nonzero of L together, while every column still sees the same operations
+// in the same order as it would alone: a variant's values do not depend on
+// the others in the block.
+void solve_lower_in_place(const SparseFactor& factor, double* rows, std::size_t width) {
+  const Eigen::SparseMatrix<double>& lower = factor.matrixL().nestedExpression();
+  const int* starts = lower.outerIndexPtr();
+  const int* row_of_entry = lower.innerIndexPtr();
+  const int* stored = lower.innerNonZeroPtr();  // null when compressed
+  const double* values = lower.valuePtr();
+  for (Eigen::Index col = 0; col < lower.outerSize(); ++col) {
+    const int begin = starts[col];
+    const int end = stored ? begin + stored[col] : starts[col + 1];
+    double* pivot_row = rows + static_cast<std::size_t>(col) * width;
+    for (int entry = begin; entry < end; ++entry) {
+      if (row_of_entry[entry] != col) continue;
+      const double pivot = values[entry];
+      for (std::size_t column = 0; column < width; ++column) pivot_row[column] /= pivot;
+    }
+    for (int entry = begin; entry < end; ++entry) {
+      if (row_of_entry[entry] <= col) continue;
+      double* target = rows + static_cast<std::size_t>(row_of_entry[entry]) * width;
+      const double weight = values[entry];
+      for (std::size_t column = 0; column < width; ++column) target[column] -= weight * pivot_row[column];
+    }
+  }
+}
+
 // H_c(h2) = h2 A_c + (1 - h2) I of one component as a sparse matrix, its
 // rows and columns permuted once by a fill-reducing ordering P (AMD), and its
 // Cholesky factor P H P' = L L' at any h2: W = L^-1 P whitens.
@@ -95,13 +124,28 @@ class SparseH {
     return factor;
   }
 
-  // L^-1 P z for columns z over the component's samples in their own order.
-  // The triangular solve treats each column on its own, so a variant's
-  // values do not depend on the others beside it.
-  Eigen::MatrixXd whiten(const SparseFactor& factor, const Eigen::Ref<const Eigen::MatrixXd>& columns) const {
-    Eigen::MatrixXd whitened = permutation_ * columns;
-    factor.matrixL().solveInPlace(whitened);
-    return whitened;
+  // L^-1 P z for columns z over the component's samples in their own order,
+  // as rows (row-major, one row per whitened coordinate).
+  RowMajorMatrix whiten(const SparseFactor& factor, const Eigen::Ref<const Eigen::MatrixXd>& columns) const {
+    RowMajorMatrix rows(columns.rows(), columns.cols());
+    const int* position = permutation_.indices().data();
+    for (Eigen::Index local = 0; local < columns.rows(); ++local) rows.row(position[local]) = columns.row(local);
+    solve_lower_in_place(factor, rows.data(), static_cast<std::size_t>(columns.cols()));
+    return rows;
+  }
+
+  // The same for the component's rows of a sample-major block, in place.
+  void whiten_block(const SparseFactor& factor, const std::vector<std::uint32_t>& samples, double* genotypes,
+                    std::size_t width, const std::vector<std::size_t>& row_of_sample,
+                    std::vector<double>& scratch) const {
+    scratch.resize(samples.size() * width);
+    const int* position = permutation_.indices().data();
+    for (std::size_t local = 0; local < samples.size(); ++local) {
+      const double* source = genotypes + row_of_sample[samples[local]] * width;
+      std::copy(source, source + width, scratch.data() + static_cast<std::size_t>(position[local]) * width);
+    }
+    solve_lower_in_place(factor, scratch.data(), width);
+    scatter_rows(scratch.data(), width, row_of_sample, samples.data(), samples.size(), genotypes);
   }
 
  private:
@@ -112,19 +156,6 @@ class SparseH {
 
 double log_determinant(const SparseFactor& factor) {
   return 2.0 * factor.matrixL().nestedExpression().diagonal().array().log().sum();
-}
-
-// Replaces the component's rows of a sample-major block by L^-1 P of them.
-void whiten_by_factor(const SparseH& h, const SparseFactor& factor, const std::vector<std::uint32_t>& samples,
-                      double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
-                      std::vector<double>& scratch) {
-  const auto size = static_cast<Eigen::Index>(samples.size());
-  const auto columns = static_cast<Eigen::Index>(width);
-  scratch.resize(samples.size() * width);
-  gather_rows(genotypes, width, row_of_sample, samples.data(), samples.size(), scratch.data());
-  Eigen::Map<RowMajorMatrix> rows(scratch.data(), size, columns);
-  rows = h.whiten(factor, Eigen::MatrixXd(rows));
-  scatter_rows(scratch.data(), width, row_of_sample, samples.data(), samples.size(), genotypes);
 }
 
 class EigenComponents final : public CovarianceFactor {
@@ -222,8 +253,8 @@ class EigenComponents final : public CovarianceFactor {
     whiten_small_components(genotypes, width, row_of_sample, scratch);
     for (const Decomposed& component : components_) {
       if (component.sparse) {
-        whiten_by_factor(*component.sparse, *component.factor, component.samples, genotypes, width, row_of_sample,
-                         scratch);
+        component.sparse->whiten_block(*component.factor, component.samples, genotypes, width, row_of_sample,
+                                       scratch);
       }
     }
   }
@@ -302,7 +333,7 @@ class SparseComponent final : public CovarianceFactor {
                            Eigen::MatrixXd& gram) const override {
     const std::unique_ptr<SparseFactor> factor = h_.factor_at(h2);
     if (!factor) return std::numeric_limits<double>::quiet_NaN();
-    const Eigen::MatrixXd whitened = h_.whiten(*factor, working);
+    const RowMajorMatrix whitened = h_.whiten(*factor, working);
     gram.noalias() += whitened.transpose() * whitened;
     return log_determinant(*factor);
   }
@@ -311,7 +342,7 @@ class SparseComponent final : public CovarianceFactor {
 
   void whiten_block(double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
                     std::vector<double>& scratch) const override {
-    whiten_by_factor(h_, *whitening_, samples_, genotypes, width, row_of_sample, scratch);
+    h_.whiten_block(*whitening_, samples_, genotypes, width, row_of_sample, scratch);
   }
 
  private:
