@@ -26,8 +26,8 @@ double admissible_h2_for(double smallest_eigenvalue) {
   return std::min(cap, (1.0 - kSmallestEigenvalueOfH) / (1.0 - smallest_eigenvalue));
 }
 
-// Copies the rows of `samples` (count of them from `samples`) out of a
-// sample-major block into `buffer` (count x width, row-major), and back.
+// Copies the rows of samples[0 .. count-1] out of a sample-major block into
+// `buffer` (count x width, row-major), and back.
 void gather_rows(const double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
                  const std::uint32_t* samples, std::size_t count, double* buffer) {
   for (std::size_t local = 0; local < count; ++local) {
