@@ -119,8 +119,6 @@ class GrmAccumulator {
   // Samples whose diagonal entry belongs to this share: [first, end)
   // (first = end when the share holds no diagonal tile).
   std::pair<std::size_t, std::size_t> diagonal_samples() const;
-  // Bytes held by the share's tiles.
-  std::size_t tile_bytes() const;
 
   // This share's entries, in a fixed order (by first, then second): every
   // diagonal entry whose sample's tile is in the share (NaN for a sample

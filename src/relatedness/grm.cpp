@@ -37,21 +37,18 @@ std::size_t tiles_before_row(std::size_t row, std::size_t tile_rows) {
   return row * (2 * tile_rows - row + 1) / 2;
 }
 
-// One marker's summary over the samples that have it.
-struct MarkerMoments {
+// A marker's allele frequency: its mean dosage / 2 over the samples that
+// have it (NaN when none has).
+double frequency_of(const double* dosages, std::size_t sample_count) {
   std::size_t called = 0;
   double sum = 0.0;
-};
-
-MarkerMoments moments_of(const double* dosages, std::size_t sample_count) {
-  MarkerMoments moments;
   for (std::size_t sample_idx = 0; sample_idx < sample_count; ++sample_idx) {
     const double value = dosages[sample_idx];
     if (std::isnan(value)) continue;
-    ++moments.called;
-    moments.sum += value;
+    ++called;
+    sum += value;
   }
-  return moments;
+  return called ? sum / (2.0 * static_cast<double>(called)) : std::numeric_limits<double>::quiet_NaN();
 }
 
 // Whether the co-missing counts of a tile are cheaper as increments, one per
@@ -84,7 +81,7 @@ struct GrmAccumulator::State {
   Eigen::MatrixXd standardised;        // sample_count x width, 0 where missing
   Eigen::MatrixXf missing_indicator;   // 1 where missing; filled only for blocks that use it
   std::vector<std::vector<std::uint32_t>> missing_samples;  // per kept marker, ascending
-  std::vector<MarkerMoments> moments;
+  std::vector<double> frequencies;
   std::vector<std::size_t> kept_columns;
 
   std::size_t rows_in_tile(std::size_t tile_row) const {
@@ -98,17 +95,14 @@ struct GrmAccumulator::State {
 };
 
 void GrmAccumulator::State::standardise(const double* dosages, std::size_t width) {
-  moments.resize(width);
+  frequencies.resize(width);
   tbb::parallel_for(std::size_t{0}, width, [&](std::size_t marker_idx) {
-    moments[marker_idx] = moments_of(dosages + marker_idx * sample_count, sample_count);
+    frequencies[marker_idx] = frequency_of(dosages + marker_idx * sample_count, sample_count);
   });
   kept_columns.clear();
   for (std::size_t marker_idx = 0; marker_idx < width; ++marker_idx) {
-    const MarkerMoments& marker = moments[marker_idx];
-    // A marker without variation has no standardised value.
-    if (marker.called == 0) continue;
-    const double frequency = marker.sum / (2.0 * static_cast<double>(marker.called));
-    if (frequency > 0.0 && frequency < 1.0) kept_columns.push_back(marker_idx);
+    // A marker without variation (or without calls) has no standardised value.
+    if (frequencies[marker_idx] > 0.0 && frequencies[marker_idx] < 1.0) kept_columns.push_back(marker_idx);
   }
   const std::size_t kept = kept_columns.size();
   if (standardised.cols() < static_cast<Eigen::Index>(kept)) {
@@ -118,8 +112,7 @@ void GrmAccumulator::State::standardise(const double* dosages, std::size_t width
   tbb::parallel_for(std::size_t{0}, kept, [&](std::size_t column_idx) {
     const std::size_t marker_idx = kept_columns[column_idx];
     const double* values = dosages + marker_idx * sample_count;
-    const MarkerMoments& marker = moments[marker_idx];
-    const double frequency = marker.sum / (2.0 * static_cast<double>(marker.called));
+    const double frequency = frequencies[marker_idx];
     const double twice_frequency = 2.0 * frequency;
     const double scale = std::sqrt(2.0 * frequency * (1.0 - frequency));
     double* column = standardised.col(static_cast<Eigen::Index>(column_idx)).data();
@@ -293,15 +286,6 @@ std::pair<std::size_t, std::size_t> GrmAccumulator::diagonal_samples() const {
     end = tile.row_tile * state.tile_size + state.rows_in_tile(tile.row_tile);
   }
   return {first, end};
-}
-
-std::size_t GrmAccumulator::tile_bytes() const {
-  std::size_t bytes = 0;
-  for (const Tile& tile : state_->tiles) {
-    bytes += static_cast<std::size_t>(tile.sums.size()) * sizeof(double) +
-             static_cast<std::size_t>(tile.co_missing.size()) * sizeof(std::uint32_t);
-  }
-  return bytes;
 }
 
 std::vector<RelatednessEntry> GrmAccumulator::entries(double keep_above) const {

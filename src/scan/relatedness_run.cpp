@@ -59,10 +59,11 @@ std::vector<std::size_t> taken_samples(const RelatednessOptions& options, const 
 
 // The first QC floor a marker fails over the taken samples (the scan's
 // floors, in the scan's order), or qc_reason_count when it passes them all.
-// `column` holds its dosages over those samples; p is the mean dosage / 2,
-// as in the matrix itself.
-int failed_floor(const QcFloors& floors, const VariantSite& site, const double* column, std::size_t taken,
+// `column` holds its dosages over those samples (genotype samples
+// `samples`); p is the mean dosage / 2, as in the matrix itself.
+int failed_floor(const QcFloors& floors, const VariantSite& site, const double* column,
                  const std::int8_t* diploid_calls, const std::vector<std::size_t>& samples) {
+  const std::size_t taken = samples.size();
   std::size_t called = 0;
   double sum = 0.0, squares = 0.0;
   for (std::size_t row = 0; row < taken; ++row) {
@@ -114,7 +115,6 @@ void select_markers(const RelatednessOptions& options, const std::vector<std::si
   work.passing_sites.clear();
   work.tally = MarkerTally{};
   work.tally.records = work.batch.size();
-  std::vector<double> column(taken);
   for (std::size_t site_idx = 0; site_idx < work.block.size(); ++site_idx) {
     const VariantSite& site = work.block.sites[site_idx];
     ++work.tally.alleles;
@@ -127,14 +127,17 @@ void select_markers(const RelatednessOptions& options, const std::vector<std::si
       continue;
     }
     const double* dosages = work.block.site_dosages(site_idx);
+    const std::size_t start = work.columns.size();
+    work.columns.resize(start + taken);
+    double* column = work.columns.data() + start;
     for (std::size_t row = 0; row < taken; ++row) column[row] = dosages[samples[row]];
-    const int floor = failed_floor(options.floors, site, column.data(), taken,
+    const int floor = failed_floor(options.floors, site, column,
                                    site.has_hard_calls ? work.block.site_diploid_calls(site_idx) : nullptr, samples);
     if (floor != qc_reason_count) {
       ++work.tally.filtered[floor];
+      work.columns.resize(start);
       continue;
     }
-    work.columns.insert(work.columns.end(), column.begin(), column.end());
     work.passing_sites.push_back(site_idx);
   }
 }
@@ -271,7 +274,12 @@ GrmAccumulator make_accumulator(const RelatednessOptions& options, std::size_t s
                      std::to_string(tile_size) + " x " + std::to_string(tile_size) + " sample pairs, up to " +
                      number_text(std::ceil(gigabytes * 100) / 100) + " GB");
   try {
-    return GrmAccumulator(samples, options.part, options.part_count, tile_size);
+    GrmAccumulator accumulator(samples, options.part, options.part_count, tile_size);
+    const auto [first, end] = accumulator.diagonal_samples();
+    current_log().detail(first == end ? "the part holds no diagonal rows"
+                                      : "the part holds the diagonal rows of samples " + std::to_string(first + 1) +
+                                            " to " + std::to_string(end) + " (in the matrix's order)");
+    return accumulator;
   } catch (const std::bad_alloc&) {
     throw Error(ExitCode::usage, "--part " + part_text(options.part, options.part_count),
                 "the share's tiles of sample pairs (about " + number_text(gigabytes) +
