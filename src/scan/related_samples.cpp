@@ -163,7 +163,8 @@ SparseRelatedness relatedness_among(const ScanRelatedness& relatedness, const st
   return among;
 }
 
-void fit_mixed_null_model(const ScanRelatedness& relatedness, TraitContext& trait) {
+void fit_mixed_null_model(const ScanRelatedness& relatedness, const std::vector<std::string>& genotype_samples,
+                          TraitContext& trait) {
   const std::string& name = trait.set.trait;
   if (trait.set.kind == TraitKind::binary) {
     throw Error(ExitCode::usage, "--relatedness, trait " + name,
@@ -172,7 +173,11 @@ void fit_mixed_null_model(const ScanRelatedness& relatedness, TraitContext& trai
   }
   const SparseRelatedness among = relatedness_among(relatedness, trait.set.genotype_index);
   try {
-    trait.mixed = std::make_unique<MixedModel>(MixedModel::fit(trait.set.y, trait.model.design, among));
+    MixedModelOptions options;
+    options.sample_label = [&](std::uint32_t analysis_idx) {
+      return genotype_samples[trait.set.genotype_index[analysis_idx]];
+    };
+    trait.mixed = std::make_unique<MixedModel>(MixedModel::fit(trait.set.y, trait.model.design, among, options));
   } catch (const Error& error) {
     throw Error(error.code(), join_paths(relatedness.paths) + ", trait " + name,
                 error.where().empty() ? error.problem() : error.where() + ": " + error.problem(), error.fix());

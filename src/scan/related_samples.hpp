@@ -33,7 +33,8 @@ SparseRelatedness relatedness_among(const ScanRelatedness& relatedness, const st
 // variance components, and sets trait.mixed and replaces trait.model by the
 // least-squares fit of the whitened data, which the score kernel then uses
 // unchanged. Throws tamis::Error (usage) for a binary trait.
-void fit_mixed_null_model(const ScanRelatedness& relatedness, TraitContext& trait);
+void fit_mixed_null_model(const ScanRelatedness& relatedness, const std::vector<std::string>& genotype_samples,
+                          TraitContext& trait);
 
 // The linear mixed model's part in the per-trait stage: the kernel reads the
 // block with its missing dosages imputed and its rows whitened

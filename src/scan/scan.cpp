@@ -201,7 +201,7 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
                   error.where().empty() ? error.problem() : error.where() + ": " + error.problem(), error.fix());
     }
     if (relatedness) {
-      fit_mixed_null_model(*relatedness, trait);
+      fit_mixed_null_model(*relatedness, samples, trait);
     } else {
       log_null_model(request.trait, trait.model);
     }

@@ -1,0 +1,244 @@
+// Mixed-model scans end to end: `tamis relatedness` then `tamis scan
+// --relatedness` on simulated family cohorts. A plain scan of a null family
+// cohort with a heritable trait is inflated; the mixed model is calibrated.
+// The comparisons with lme4 and a dense oracle are in tests/reference and
+// tests/test_mixed_model.cpp.
+#include <gtest/gtest.h>
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+
+#include "support/test_support.hpp"
+
+namespace tamis::testing {
+namespace {
+
+constexpr int kSeeds[] = {3, 4, 5};
+const std::string kCovariates = "age,sex,village,pc1,pc2,pc3,pc4";
+
+class MixedScan : public ::testing::Test {
+ protected:
+  // Three null cohorts (no planted variant) of 2,000 samples, 60% of them in
+  // families, with a polygenic component of h^2 = 0.6 on loci outside the
+  // VCF: every variant written is null, and relatives share the trait.
+  static void SetUpTestSuite() {
+    dir_ = make_temp_dir("mixed_scan");
+    for (int seed : kSeeds) {
+      const std::string cohort = cohort_prefix(seed);
+      ASSERT_EQ(run_command(tamis_binary() + " simulate --out " + cohort + " --samples 2000 --variants 6000" +
+                            " --causal 0 --families 0.6 --heritability 0.6 --seed " + std::to_string(seed) +
+                            " 2>/dev/null"),
+                0);
+      // With only 6,000 markers an unrelated pair's estimate has an SD of
+      // about 1/sqrt(6000) = 0.013, so the default floor of 0.05 would keep
+      // many chance pairs; 0.1 keeps the relatives down to most cousins.
+      ASSERT_EQ(run_command(tamis_binary() + " relatedness --genotypes " + cohort + ".vcf.gz --keep-above 0.1" +
+                            " --threads 2 --quiet --out " + cohort),
+                0);
+      ASSERT_EQ(run_command(scan_command(seed, "plain", "")), 0);
+      ASSERT_EQ(run_command(scan_command(seed, "mixed", "--relatedness " + cohort + ".relatedness.tsv.gz")), 0);
+    }
+  }
+  static std::string cohort_prefix(int seed) { return dir_ + "/cohort" + std::to_string(seed); }
+  static std::string scan_command(int seed, const std::string& name, const std::string& extra, int threads = 2) {
+    return tamis_binary() + " scan --genotypes " + cohort_prefix(seed) + ".vcf.gz --traits " + cohort_prefix(seed) +
+           ".traits.tsv --trait fev1_litres --covariates " + kCovariates + " --threads " + std::to_string(threads) +
+           " --quiet --out " + dir_ + "/" + name + std::to_string(seed) + " " + extra;
+  }
+  static std::string results_of(const std::string& name, int seed) {
+    return dir_ + "/" + name + std::to_string(seed) + ".fev1_litres.tsv.gz";
+  }
+  static std::string dir_;
+};
+std::string MixedScan::dir_;
+
+std::size_t column_of(const std::string& header, const std::string& name) {
+  const std::vector<std::string> names = split_fields(header);
+  return static_cast<std::size_t>(std::find(names.begin(), names.end(), name) - names.begin());
+}
+
+// The score statistics and p-values of every row of the scans of all seeds.
+struct Pooled {
+  std::vector<double> chisq;
+  std::size_t below_one_percent = 0;
+};
+
+Pooled pool_scans(const std::vector<std::string>& paths) {
+  Pooled pooled;
+  for (const std::string& path : paths) {
+    const std::string text = read_gzip_file(path);
+    const std::string header = text.substr(0, text.find('\n'));
+    const std::size_t chisq_column = column_of(header, "score_chisq");
+    const std::size_t p_column = column_of(header, "score_p");
+    for (const auto& fields : data_rows(text)) {
+      pooled.chisq.push_back(std::stod(fields.at(chisq_column)));
+      if (std::stod(fields.at(p_column)) < 0.01) ++pooled.below_one_percent;
+    }
+  }
+  return pooled;
+}
+
+// Genomic control: median(T) / 0.454936, the median of chi2(1) (Devlin &
+// Roeder 1999, Biometrics 55:997-1004).
+double lambda_gc(std::vector<double> chisq) {
+  std::sort(chisq.begin(), chisq.end());
+  const std::size_t n = chisq.size();
+  const double median = n % 2 ? chisq[n / 2] : 0.5 * (chisq[n / 2 - 1] + chisq[n / 2]);
+  return median / 0.454936;
+}
+
+// P(X <= k) for X ~ Binomial(n, p), summed in log space.
+double binomial_cdf(std::size_t k, std::size_t n, double p) {
+  double total = 0.0;
+  for (std::size_t x = 0; x <= k; ++x) {
+    const double log_term = std::lgamma(n + 1.0) - std::lgamma(x + 1.0) - std::lgamma(n - x + 1.0) +
+                            x * std::log(p) + (n - x) * std::log1p(-p);
+    total += std::exp(log_term);
+  }
+  return total;
+}
+
+// The central 99.9% interval of Binomial(n, p): [lo, hi] with
+// P(X < lo) <= 0.0005 and P(X > hi) <= 0.0005.
+std::pair<std::size_t, std::size_t> binomial_bounds(std::size_t n, double p) {
+  std::size_t lo = 0;
+  while (binomial_cdf(lo, n, p) <= 0.0005) ++lo;
+  std::size_t hi = lo;
+  while (1.0 - binomial_cdf(hi, n, p) > 0.0005) ++hi;
+  return {lo, hi};
+}
+
+std::vector<std::string> scans_named(const std::string& name, const std::string& dir) {
+  std::vector<std::string> paths;
+  for (int seed : kSeeds) paths.push_back(dir + "/" + name + std::to_string(seed) + ".fev1_litres.tsv.gz");
+  return paths;
+}
+
+TEST_F(MixedScan, PlainScanIsInflatedAndTheMixedModelIsCalibrated) {
+  const Pooled plain = pool_scans(scans_named("plain", dir_));
+  const Pooled mixed = pool_scans(scans_named("mixed", dir_));
+  ASSERT_GT(mixed.chisq.size(), 15000u);
+  EXPECT_EQ(plain.chisq.size(), mixed.chisq.size());
+  const double plain_lambda = lambda_gc(plain.chisq);
+  const double mixed_lambda = lambda_gc(mixed.chisq);
+  std::printf("lambda_gc over %zu variants: plain %.4f, mixed %.4f\n", mixed.chisq.size(), plain_lambda,
+              mixed_lambda);
+  EXPECT_GT(plain_lambda, 1.1) << "relatives share genotypes and trait";
+  EXPECT_GE(mixed_lambda, 0.95);
+  EXPECT_LE(mixed_lambda, 1.05);
+
+  // Type-I error at 0.01: every variant is null, so the count below 0.01 is
+  // Binomial(n, 0.01) up to the correlation of neighbouring variants.
+  const auto [lo, hi] = binomial_bounds(mixed.chisq.size(), 0.01);
+  std::printf("p < 0.01: plain %zu, mixed %zu; binomial 99.9%% bounds [%zu, %zu]\n", plain.below_one_percent,
+              mixed.below_one_percent, lo, hi);
+  EXPECT_GE(mixed.below_one_percent, lo);
+  EXPECT_LE(mixed.below_one_percent, hi);
+  EXPECT_GT(plain.below_one_percent, hi) << "the plain scan's excess of small p-values";
+}
+
+TEST_F(MixedScan, LogReportsTheVarianceComponents) {
+  const std::string log = read_text_file(dir_ + "/mixed3.log");
+  EXPECT_NE(log.find("relatedness: " + cohort_prefix(3) + ".relatedness.tsv.gz: 2000 samples"), std::string::npos)
+      << log;
+  EXPECT_NE(log.find("null model fev1_litres: linear mixed model by REML, h^2 = "), std::string::npos) << log;
+  EXPECT_NE(log.find("related groups (largest "), std::string::npos);
+  const std::string sidecar = read_text_file(results_of("mixed", 3) + "-meta.yaml");
+  EXPECT_NE(sidecar.find("tamis_relatedness: cohort3.relatedness.tsv.gz md5 "), std::string::npos) << sidecar;
+}
+
+TEST_F(MixedScan, OneAndFourThreadsGiveIdenticalFiles) {
+  const std::string matrix = "--relatedness " + cohort_prefix(4) + ".relatedness.tsv.gz --confirm-below 0.01";
+  ASSERT_EQ(run_command(scan_command(4, "one", matrix, 1)), 0);
+  ASSERT_EQ(run_command(scan_command(4, "four", matrix, 4)), 0);
+  EXPECT_TRUE(read_text_file(results_of("one", 4)) == read_text_file(results_of("four", 4)));
+  EXPECT_TRUE(read_text_file(results_of("one", 4) + ".tbi") == read_text_file(results_of("four", 4) + ".tbi"));
+}
+
+TEST_F(MixedScan, ShardsMergeToTheWholeScan) {
+  const std::string matrix = "--relatedness " + cohort_prefix(5) + ".relatedness.tsv.gz";
+  for (const std::string shard : {"1/2", "2/2"}) {
+    const std::string name = std::string("shard") + shard[0] + "_";
+    ASSERT_EQ(run_command(scan_command(5, name, matrix + " --shard " + shard)), 0);
+  }
+  ASSERT_EQ(run_command(tamis_binary() + " merge --out " + dir_ + "/merged5 " + dir_ + "/shard1_5 " + dir_ +
+                        "/shard2_5 2>/dev/null"),
+            0);
+  EXPECT_TRUE(read_gzip_file(results_of("mixed", 5)) == read_gzip_file(results_of("merged", 5)));
+}
+
+TEST_F(MixedScan, ResumeAfterAKillGivesTheWholeScan) {
+  const std::string matrix = "--relatedness " + cohort_prefix(3) + ".relatedness.tsv.gz --checkpoint-blocks 2";
+  ASSERT_EQ(run_command(scan_command(3, "whole", matrix)), 0);
+  EXPECT_EQ(run_command("TAMIS_TEST_SIGNAL_AFTER_BLOCK=30:KILL " + scan_command(3, "killed", matrix) + " 2>/dev/null"),
+            137);
+  ASSERT_EQ(run_command(scan_command(3, "killed", matrix + " --resume")), 0);
+  EXPECT_TRUE(read_text_file(results_of("whole", 3)) == read_text_file(results_of("killed", 3)));
+}
+
+TEST_F(MixedScan, ConfirmRefitsChosenVariantsUnderTheMixedModel) {
+  const std::string list = dir_ + "/chosen.txt";
+  const std::string text = read_gzip_file(results_of("mixed", 4));
+  const auto rows = data_rows(text);
+  const std::size_t id_column = column_of(text.substr(0, text.find('\n')), "variant_id");
+  std::string chosen;
+  for (std::size_t row_idx = 0; row_idx < 5; ++row_idx) {
+    const std::vector<std::string> parts = split_fields(rows.at(row_idx * 100).at(id_column), '_');
+    chosen += parts.at(0) + ":" + parts.at(1) + ":" + parts.at(2) + ":" + parts.at(3) + "\n";
+  }
+  write_text_file(list, chosen);
+  ASSERT_EQ(run_command(tamis_binary() + " confirm --genotypes " + cohort_prefix(4) + ".vcf.gz --traits " +
+                        cohort_prefix(4) + ".traits.tsv --trait fev1_litres --covariates " + kCovariates +
+                        " --relatedness " + cohort_prefix(4) + ".relatedness.tsv.gz --variants " + list +
+                        " --quiet --out " + dir_ + "/confirmed4"),
+            0);
+  const auto confirmed = data_rows(read_gzip_file(results_of("confirmed", 4)));
+  ASSERT_EQ(confirmed.size(), 5u);
+  const std::size_t test_column = column_of(text.substr(0, text.find('\n')), "test");
+  for (const auto& fields : confirmed) EXPECT_EQ(fields.at(test_column), "lrt");
+}
+
+TEST_F(MixedScan, BinaryTraitsAreRefusedForNow) {
+  int code = 0;
+  const std::string message = capture_command(
+      tamis_binary() + " scan --genotypes " + cohort_prefix(3) + ".vcf.gz --traits " + cohort_prefix(3) +
+          ".traits.tsv --trait winter_wheeze --covariates age,sex --relatedness " + cohort_prefix(3) +
+          ".relatedness.tsv.gz --quiet --out " + dir_ + "/binary 2>&1",
+      &code);
+  EXPECT_EQ(code, 2) << message;
+  EXPECT_NE(message.find("binary traits are not available yet"), std::string::npos) << message;
+  EXPECT_FALSE(file_exists(dir_ + "/binary.winter_wheeze.tsv.gz"));
+}
+
+TEST_F(MixedScan, SamplesTheGenotypesLackAreCountedAndIgnored) {
+  const std::string matrix = dir_ + "/with_strangers.tsv";
+  write_text_file(matrix, "sample_1\tsample_2\trelatedness\n"
+                          "SR00001\tSR00002\t0.5\n"
+                          "SR00001\tvisitor_01\t0.5\n"
+                          "visitor_02\tvisitor_02\t1.0\n");
+  ASSERT_EQ(run_command(scan_command(3, "strangers", "--relatedness " + matrix)), 0);
+  const std::string log = read_text_file(dir_ + "/strangers3.log");
+  EXPECT_NE(log.find("note: 2 sample IDs of the relatedness matrix are not in the genotype files and are ignored "
+                     "(visitor_01, visitor_02)"),
+            std::string::npos)
+      << log;
+  EXPECT_NE(log.find("note: 1998 genotype samples have no entry in the relatedness matrix"), std::string::npos);
+}
+
+TEST_F(MixedScan, AMatrixThatCannotBeFactoredNamesItsSamples) {
+  // Relatedness 3 between two samples gives A the eigenvalue -2, so
+  // V = s2_e I + s2_g A is not positive definite beyond h^2 = 1/3.
+  const std::string matrix = dir_ + "/impossible.tsv";
+  write_text_file(matrix, "sample_1\tsample_2\trelatedness\nSR00001\tSR00002\t3\n");
+  int code = 0;
+  const std::string message =
+      capture_command(scan_command(3, "impossible", "--relatedness " + matrix) + " 2>&1", &code);
+  EXPECT_NE(code, 0) << message;
+  EXPECT_NE(message.find("SR00001"), std::string::npos) << message;
+  EXPECT_NE(message.find("--keep-above"), std::string::npos) << message;
+  EXPECT_FALSE(file_exists(results_of("impossible", 3)));
+}
+
+}  // namespace
+}  // namespace tamis::testing
