@@ -12,6 +12,10 @@
 namespace tamis {
 namespace {
 
+// Families rarely link more samples than this; a larger group is worth a
+// word in the log (it is also slower to factor).
+constexpr std::size_t kLargeRelatedGroup = 1000;
+
 std::string format_number(double value) {
   char text[64];
   std::snprintf(text, sizeof text, "%.6g", value);
@@ -43,6 +47,12 @@ void log_structure(const std::string& trait, const SparseRelatedness& relatednes
                      std::to_string(in_families) + " samples in " + std::to_string(components.size()) +
                      " related groups (largest " + std::to_string(largest) + "), " +
                      std::to_string(relatedness.sample_count - in_families) + " with no relative");
+  if (largest >= kLargeRelatedGroup) {
+    current_log().line("note: trait " + trait + ": one related group holds " + std::to_string(largest) +
+                       " samples; relatedness this widespread usually comes from population structure, or from "
+                       "estimates on too few markers, rather than from families. A higher --keep-above in "
+                       "`tamis relatedness` (0.1 keeps most cousins) keeps families apart and the fit fast");
+  }
 }
 
 void log_variance_components(const std::string& trait, const MixedModel& mixed) {
