@@ -1,6 +1,6 @@
 // `tamis relatedness` through the executable: threads and parts change no
-// byte, options are checked before any input is read, marker choice, bad
-// input, and relatives in a simulated pedigree.
+// byte, options are checked before any input is read, marker choice (floors,
+// thinning), bad input, and relatives in a simulated pedigree.
 #include <gtest/gtest.h>
 
 #include <cmath>
@@ -149,6 +149,42 @@ TEST_F(RelatednessEndToEnd, ThinningKeepsMarkersApart) {
   const std::string log = read_text_file(file("thin.log"));
   EXPECT_NE(log.find(std::to_string(used) + " markers used"), std::string::npos) << log;
   EXPECT_NE(log.find(std::to_string(thinned) + " thinned out by distance"), std::string::npos) << log;
+}
+
+// The info floor, recomputed from the VCF's DS text: r^2 = var(DS) /
+// (2p(1 - p)) over the samples with a value (DS read as htslib reads a
+// Float), taken after the minor allele frequency floor, as in the scan.
+TEST_F(RelatednessEndToEnd, InfoAndHardyWeinbergFloorsTakeMarkersOut) {
+  ASSERT_EQ(relatedness("floors", "--info-floor 0.9 --hwe-floor 1e-3 --threads 2"), 0);
+  std::uint64_t below_info = 0;
+  for (const std::string& line : lines_of(read_gzip_file(file("cohort.vcf.gz")))) {
+    if (line.empty() || line[0] == '#') continue;
+    const std::vector<std::string> fields = split_fields(line);
+    if (fields[4].find(',') != std::string::npos) continue;
+    double called = 0.0, sum = 0.0, squares = 0.0;
+    for (std::size_t column = 9; column < fields.size(); ++column) {
+      const std::string ds = fields[column].substr(fields[column].find(':') + 1);
+      if (ds == ".") continue;
+      const double value = static_cast<float>(std::strtod(ds.c_str(), nullptr));
+      called += 1.0;
+      sum += value;
+      squares += value * value;
+    }
+    const double p = sum / (2.0 * called);
+    if (std::min(p, 1.0 - p) < 0.01) continue;
+    const double mean = sum / called;
+    if (std::max(0.0, squares / called - mean * mean) / (2.0 * p * (1.0 - p)) < 0.9) ++below_info;
+  }
+  ASSERT_GT(below_info, 0u);
+  const std::string log = read_text_file(file("floors.log"));
+  EXPECT_NE(log.find(std::to_string(below_info) + " below the info floor"), std::string::npos) << log;
+  EXPECT_NE(log.find("below the Hardy-Weinberg p floor"), std::string::npos) << log;
+}
+
+TEST_F(RelatednessEndToEnd, NoMarkerLeftIsAnErrorAndNothingIsWritten) {
+  EXPECT_EQ(relatedness("nothing", "--region 9"), static_cast<int>(ExitCode::genotype_input));
+  EXPECT_NE(read_text_file(file("nothing.stderr")).find("no marker is left"), std::string::npos);
+  EXPECT_FALSE(file_exists(file("nothing.relatedness.tsv.gz")));
 }
 
 TEST_F(RelatednessEndToEnd, KeepSamplesGivesTheMatrixOfThoseSamples) {
