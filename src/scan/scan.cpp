@@ -10,15 +10,15 @@
 #include <optional>
 #include <cmath>
 #include <algorithm>
-#include <fstream>
 #include <memory>
 #include <mutex>
-#include <set>
 #include <sstream>
 
+#include "scan/block_sizing.hpp"
 #include "scan/checkpoint.hpp"
 #include "scan/progress.hpp"
 #include "scan/related_samples.hpp"
+#include "scan/sample_lists.hpp"
 #include "scan/trait_pass.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/trait_transform.hpp"
@@ -97,61 +97,6 @@ void log_null_model(const std::string& trait, const NullModel& model) {
   }
 }
 
-std::set<std::string> read_sample_list(const std::string& path) {
-  std::ifstream input(path);
-  if (!input) {
-    throw Error(ExitCode::usage, path, "cannot read the sample list", "give a file with one sample ID per line");
-  }
-  std::set<std::string> ids;
-  std::string line;
-  while (std::getline(input, line)) {
-    while (!line.empty() && (line.back() == '\r' || line.back() == ' ' || line.back() == '\t')) line.pop_back();
-    const std::size_t start = line.find_first_not_of(" \t");
-    if (start != std::string::npos && line[start] != '#') ids.insert(line.substr(start));
-  }
-  return ids;
-}
-
-// Reports list entries that name no sample of the genotype files: a typo
-// there would otherwise go unnoticed.
-void report_unknown_samples(const std::string& option, const std::set<std::string>& listed,
-                            const std::vector<std::string>& samples) {
-  const std::set<std::string> present(samples.begin(), samples.end());
-  std::vector<std::string> unknown;
-  for (const std::string& id : listed) {
-    if (!present.count(id)) unknown.push_back(id);
-  }
-  if (unknown.empty()) return;
-  std::string shown;
-  for (std::size_t id_idx = 0; id_idx < unknown.size() && id_idx < 5; ++id_idx) shown += (id_idx ? ", " : "") + unknown[id_idx];
-  current_log().line("note: " + std::to_string(unknown.size()) + " of the " + std::to_string(listed.size()) +
-                     " IDs in " + option + " are not in the genotype files (" + shown +
-                     (unknown.size() > 5 ? ", ..." : "") + ")");
-}
-
-// True for each genotype sample that --keep-samples leaves out or
-// --drop-samples names.
-std::vector<bool> excluded_samples(const ScanOptions& options, const std::vector<std::string>& samples) {
-  std::vector<bool> excluded;
-  if (options.keep_samples_path.empty() && options.drop_samples_path.empty()) return excluded;
-  excluded.assign(samples.size(), false);
-  if (!options.keep_samples_path.empty()) {
-    const std::set<std::string> keep = read_sample_list(options.keep_samples_path);
-    report_unknown_samples("--keep-samples", keep, samples);
-    for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) {
-      if (!keep.count(samples[sample_idx])) excluded[sample_idx] = true;
-    }
-  }
-  if (!options.drop_samples_path.empty()) {
-    const std::set<std::string> drop = read_sample_list(options.drop_samples_path);
-    report_unknown_samples("--drop-samples", drop, samples);
-    for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) {
-      if (drop.count(samples[sample_idx])) excluded[sample_idx] = true;
-    }
-  }
-  return excluded;
-}
-
 void apply_rank_normalization(const ScanOptions& options, AnalysisSet& set) {
   if (std::find(options.rank_normalize.begin(), options.rank_normalize.end(), set.trait) ==
       options.rank_normalize.end()) {
@@ -180,7 +125,7 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
                                          const std::vector<std::string>& samples,
                                          const ScanRelatedness* relatedness) {
   std::vector<TraitContext> traits(options.traits.size());
-  const std::vector<bool> excluded = excluded_samples(options, samples);
+  const std::vector<bool> excluded = excluded_samples(options.keep_samples_path, options.drop_samples_path, samples);
   for (std::size_t trait_idx = 0; trait_idx < options.traits.size(); ++trait_idx) {
     AnalysisRequest request;
     request.trait = options.traits[trait_idx];
