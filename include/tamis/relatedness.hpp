@@ -10,6 +10,7 @@
 
 #include <cstddef>
 #include <cstdint>
+#include <functional>
 #include <memory>
 #include <string>
 #include <utility>
@@ -123,7 +124,10 @@ class GrmAccumulator {
   // This share's entries, in a fixed order (by first, then second): every
   // diagonal entry whose sample's tile is in the share (NaN for a sample
   // without any called marker), and every off-diagonal pair with at least
-  // one shared marker whose relatedness is at least keep_above.
+  // one shared marker whose relatedness is at least keep_above. Visiting
+  // them holds none in memory (all pairs of a large share would weigh more
+  // than the tiles).
+  void visit_entries(double keep_above, const std::function<void(const RelatednessEntry&)>& visit) const;
   std::vector<RelatednessEntry> entries(double keep_above) const;
 
  private:

@@ -12,6 +12,7 @@
 #pragma once
 
 #include <cstdint>
+#include <memory>
 #include <string>
 #include <vector>
 
@@ -26,9 +27,28 @@ const std::vector<std::string>& relatedness_columns();
 // PREFIX.relatedness.partK-of-N.tsv.gz.
 std::string relatedness_file_path(const std::string& prefix, int part, int part_count);
 
-// Writes `entries` (indices into sample_ids) as rows, each labelled with its
-// degree ("self" on the diagonal), under a temporary name that is renamed
-// when complete. Throws tamis::Error (output).
+// Writes entries (indices into sample_ids) as rows, one at a time, each
+// labelled with its degree ("self" on the diagonal), under a temporary name
+// that commit() renames (the destructor removes an uncommitted file).
+// `sample_ids` must outlive the writer. Throws tamis::Error (output).
+class RelatednessFileWriter {
+ public:
+  RelatednessFileWriter(const std::string& path, const std::vector<std::string>& sample_ids);
+  ~RelatednessFileWriter();
+  RelatednessFileWriter(const RelatednessFileWriter&) = delete;
+  RelatednessFileWriter& operator=(const RelatednessFileWriter&) = delete;
+
+  void add(const RelatednessEntry& entry);
+  void commit();
+  std::uint64_t rows() const { return rows_; }
+
+ private:
+  struct Impl;
+  std::unique_ptr<Impl> impl_;
+  std::uint64_t rows_ = 0;
+};
+
+// All of `entries` at once.
 void write_relatedness_file(const std::string& path, const std::vector<std::string>& sample_ids,
                             const std::vector<RelatednessEntry>& entries);
 

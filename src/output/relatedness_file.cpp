@@ -310,31 +310,52 @@ std::string relatedness_file_path(const std::string& prefix, int part, int part_
   return prefix + ".relatedness.part" + std::to_string(part) + "-of-" + std::to_string(part_count) + ".tsv.gz";
 }
 
+struct RelatednessFileWriter::Impl {
+  Impl(const std::string& path, const std::vector<std::string>& ids) : file(path), sample_ids(ids) {}
+  BgzfTextFile file;
+  const std::vector<std::string>& sample_ids;
+  std::string text;  // rows not yet handed to the file
+};
+
+RelatednessFileWriter::RelatednessFileWriter(const std::string& path, const std::vector<std::string>& sample_ids)
+    : impl_(std::make_unique<Impl>(path, sample_ids)) {
+  for (const std::string& column : relatedness_columns()) impl_->text += (impl_->text.empty() ? "" : "\t") + column;
+  impl_->text += '\n';
+}
+
+RelatednessFileWriter::~RelatednessFileWriter() = default;
+
+void RelatednessFileWriter::add(const RelatednessEntry& entry) {
+  std::string& text = impl_->text;
+  text += impl_->sample_ids[entry.first];
+  text += '\t';
+  text += impl_->sample_ids[entry.second];
+  text += '\t';
+  append_number(entry.relatedness, text);
+  text += '\t';
+  text += std::to_string(entry.markers);
+  text += '\t';
+  text += entry.first == entry.second ? kSelfLabel : degree_label(degree_of(entry.relatedness));
+  text += '\n';
+  ++rows_;
+  constexpr std::size_t kChunk = 1 << 20;
+  if (text.size() >= kChunk) {
+    impl_->file.write(text);
+    text.clear();
+  }
+}
+
+void RelatednessFileWriter::commit() {
+  impl_->file.write(impl_->text);
+  impl_->text.clear();
+  impl_->file.commit(IndexKind::none);
+}
+
 void write_relatedness_file(const std::string& path, const std::vector<std::string>& sample_ids,
                             const std::vector<RelatednessEntry>& entries) {
-  BgzfTextFile file(path);
-  std::string text;
-  for (const std::string& column : relatedness_columns()) text += (text.empty() ? "" : "\t") + column;
-  text += '\n';
-  constexpr std::size_t kChunk = 1 << 20;
-  for (const RelatednessEntry& entry : entries) {
-    text += sample_ids[entry.first];
-    text += '\t';
-    text += sample_ids[entry.second];
-    text += '\t';
-    append_number(entry.relatedness, text);
-    text += '\t';
-    text += std::to_string(entry.markers);
-    text += '\t';
-    text += entry.first == entry.second ? kSelfLabel : degree_label(degree_of(entry.relatedness));
-    text += '\n';
-    if (text.size() >= kChunk) {
-      file.write(text);
-      text.clear();
-    }
-  }
-  file.write(text);
-  file.commit(IndexKind::none);
+  RelatednessFileWriter writer(path, sample_ids);
+  for (const RelatednessEntry& entry : entries) writer.add(entry);
+  writer.commit();
 }
 
 void write_relatedness_sidecar(const std::string& data_path, const RelatednessProvenance& provenance) {

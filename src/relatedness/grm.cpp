@@ -289,8 +289,14 @@ std::pair<std::size_t, std::size_t> GrmAccumulator::diagonal_samples() const {
 }
 
 std::vector<RelatednessEntry> GrmAccumulator::entries(double keep_above) const {
-  const State& state = *state_;
   std::vector<RelatednessEntry> kept;
+  visit_entries(keep_above, [&kept](const RelatednessEntry& entry) { kept.push_back(entry); });
+  return kept;
+}
+
+void GrmAccumulator::visit_entries(double keep_above,
+                                   const std::function<void(const RelatednessEntry&)>& visit) const {
+  const State& state = *state_;
   // Tiles are held row by row, so the tiles of one row tile are adjacent.
   std::size_t row_start = 0;
   while (row_start < state.tiles.size()) {
@@ -316,13 +322,12 @@ std::vector<RelatednessEntry> GrmAccumulator::entries(double keep_above) const {
           const bool self = other == sample;
           const double value = markers ? tile.sums(row_index, column_index) / static_cast<double>(markers)
                                        : std::numeric_limits<double>::quiet_NaN();
-          if (self || (markers > 0 && value >= keep_above)) kept.push_back({sample, other, value, markers});
+          if (self || (markers > 0 && value >= keep_above)) visit({sample, other, value, markers});
         }
       }
     }
     row_start = row_stop;
   }
-  return kept;
 }
 
 }  // namespace tamis

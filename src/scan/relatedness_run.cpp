@@ -242,7 +242,7 @@ void stream_markers(const RelatednessOptions& options, GenotypeReader& reader, c
 // that a part computed from a copy on another node still matches) and every
 // option that changes an entry, but not K of --part K/N.
 std::string fingerprint_run(const RelatednessOptions& options, const GenotypeReader& reader,
-                            const std::vector<std::size_t>& samples, const std::vector<std::string>& used_keys,
+                            const std::vector<std::string>& sample_ids, const std::vector<std::string>& used_keys,
                             std::size_t tile_size) {
   std::vector<std::string> lines;
   lines.push_back(std::string("version=") + TAMIS_VERSION);
@@ -254,13 +254,11 @@ std::string fingerprint_run(const RelatednessOptions& options, const GenotypeRea
                     dosage_field_name(reader.resolved_field(file_idx)));
   }
   lines.push_back("haploid_dosage=" + std::to_string(options.haploid_dosage));
-  std::vector<std::string> sample_ids;
-  for (std::size_t sample : samples) sample_ids.push_back(reader.sample_ids()[sample]);
-  lines.push_back("samples=" + std::to_string(samples.size()) + " " + fingerprint_of(sample_ids));
+  lines.push_back("samples=" + std::to_string(sample_ids.size()) + " " + fingerprint_of(sample_ids));
   lines.push_back("markers=" + std::to_string(used_keys.size()) + " " + fingerprint_of(used_keys));
   lines.push_back("keep_above=" + number_text(options.keep_above));
   lines.push_back("parts=" + std::to_string(options.part_count) + " tiles of " + std::to_string(tile_size));
-  lines.push_back("block_width=" + std::to_string(GrmAccumulator::preferred_block_width(samples.size())));
+  lines.push_back("block_width=" + std::to_string(GrmAccumulator::preferred_block_width(sample_ids.size())));
   return fingerprint_of(lines);
 }
 
@@ -345,24 +343,41 @@ void check_every_sample_has_markers(const GrmAccumulator& accumulator, const std
               "leave them out with --drop-samples");
 }
 
-void log_entries(const std::vector<RelatednessEntry>& entries, double keep_above) {
+// Rows written, by kind, for the log.
+struct RowTally {
   std::uint64_t diagonal = 0;
   std::uint64_t by_degree[5] = {0, 0, 0, 0, 0};
-  for (const RelatednessEntry& entry : entries) {
+
+  void add(const RelatednessEntry& entry) {
     if (entry.first == entry.second) {
       ++diagonal;
     } else {
       ++by_degree[static_cast<int>(degree_of(entry.relatedness))];
     }
   }
+};
+
+// Streams this share's entries into the file: they are never all in memory.
+std::uint64_t write_entries(const GrmAccumulator& accumulator, const std::vector<std::string>& sample_ids,
+                            const std::string& path, double keep_above, RowTally& tally) {
+  RelatednessFileWriter writer(path, sample_ids);
+  accumulator.visit_entries(keep_above, [&](const RelatednessEntry& entry) {
+    writer.add(entry);
+    tally.add(entry);
+  });
+  writer.commit();
+  return writer.rows();
+}
+
+void log_rows(const RowTally& tally, std::uint64_t rows, double keep_above) {
   std::ostringstream text;
-  text << "rows: " << diagonal << " diagonal, " << entries.size() - diagonal << " pairs with relatedness >= "
+  text << "rows: " << tally.diagonal << " diagonal, " << rows - tally.diagonal << " pairs with relatedness >= "
        << number_text(keep_above) << " (";
   const RelationshipDegree degrees[] = {RelationshipDegree::duplicate, RelationshipDegree::first,
                                         RelationshipDegree::second, RelationshipDegree::third,
                                         RelationshipDegree::unrelated};
   for (RelationshipDegree degree : degrees) {
-    text << (degree == RelationshipDegree::duplicate ? "" : ", ") << by_degree[static_cast<int>(degree)] << " "
+    text << (degree == RelationshipDegree::duplicate ? "" : ", ") << tally.by_degree[static_cast<int>(degree)] << " "
          << degree_label(degree);
   }
   text << ")";
@@ -402,25 +417,24 @@ RelatednessSummary run_relatedness(const RelatednessOptions& options) {
   }
   check_every_sample_has_markers(accumulator, samples, reader);
 
-  const std::vector<RelatednessEntry> entries = accumulator.entries(options.keep_above);
-  log_entries(entries, options.keep_above);
   std::vector<std::string> sample_ids;
   for (std::size_t sample : samples) sample_ids.push_back(reader.sample_ids()[sample]);
   summary.data_path = relatedness_file_path(options.out_prefix, options.part, options.part_count);
-  write_relatedness_file(summary.data_path, sample_ids, entries);
+  RowTally rows;
+  summary.rows = write_entries(accumulator, sample_ids, summary.data_path, options.keep_above, rows);
+  log_rows(rows, summary.rows, options.keep_above);
   RelatednessProvenance provenance;
   provenance.sample_count = samples.size();
   provenance.marker_count = accumulator.marker_count();
   provenance.part = options.part;
   provenance.part_count = options.part_count;
   provenance.keep_above = options.keep_above;
-  provenance.fingerprint = fingerprint_run(options, reader, samples, used_keys, tile_size);
+  provenance.fingerprint = fingerprint_run(options, reader, sample_ids, used_keys, tile_size);
   current_log().detail("run fingerprint: " + provenance.fingerprint);
   write_relatedness_sidecar(summary.data_path, provenance);
 
   summary.sample_count = samples.size();
   summary.marker_count = accumulator.marker_count();
-  summary.rows = entries.size();
   const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   current_log().line("wall time: " + number_text(std::round(seconds * 100) / 100) + " s");
   return summary;
