@@ -40,12 +40,25 @@ struct VarianceComponents {
   bool at_boundary = false;     // h2 = 0 (or the largest admissible h2)
 };
 
-// Components of more samples than this are factored by a sparse Cholesky
-// at each h2 rather than eigendecomposed once (O(k^3) time, k^2 memory).
-inline constexpr std::size_t kDenseComponentLimit = 2000;
+// How a component of k samples is factored (component_factor.hpp):
+//   - k <= kEigenComponentLimit: eigendecomposed once, every h2 then O(k);
+//   - up to kDenseComponentLimit: reduced once to tridiagonal form (4/3 k^3
+//     flops, a fraction of the eigendecomposition's), every h2 then O(k), and
+//     whitened by a dense Cholesky factor (2.5 k^2 doubles in all) -- unless
+//     a sparse Cholesky factor stays sparse: when one sparse factorisation
+//     costs less than kSparseWorkShare of a dense one, the fit's few dozen
+//     of them cost less than the reduction;
+//   - larger: a sparse Cholesky at each h2.
+// The limits are measured crossovers; scripts/bench_mixed.sh and the README's
+// performance section give the figures.
+inline constexpr std::size_t kEigenComponentLimit = 200;
+inline constexpr std::size_t kDenseComponentLimit = 6000;
+inline constexpr double kSparseWorkShare = 0.02;
 
 struct MixedModelOptions {
+  std::size_t eigen_component_limit = kEigenComponentLimit;
   std::size_t dense_component_limit = kDenseComponentLimit;
+  double sparse_work_share = kSparseWorkShare;
   // Names analysis sample i in error messages; "#i" (from 0) when empty.
   std::function<std::string(std::uint32_t)> sample_label;
 };

@@ -8,6 +8,29 @@
 #include "tamis/errors.hpp"
 
 namespace tamis::detail {
+
+double admissible_h2_for(double smallest_eigenvalue) {
+  const double cap = 1.0 - kSmallestEigenvalueOfH;
+  if (smallest_eigenvalue >= kSmallestEigenvalueOfH) return cap;
+  return std::min(cap, (1.0 - kSmallestEigenvalueOfH) / (1.0 - smallest_eigenvalue));
+}
+
+void gather_rows(const double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
+                 const std::uint32_t* samples, std::size_t count, double* buffer) {
+  for (std::size_t local = 0; local < count; ++local) {
+    const double* source = genotypes + row_of_sample[samples[local]] * width;
+    std::copy(source, source + width, buffer + local * width);
+  }
+}
+
+void scatter_rows(const double* buffer, std::size_t width, const std::vector<std::size_t>& row_of_sample,
+                  const std::uint32_t* samples, std::size_t count, double* genotypes) {
+  for (std::size_t local = 0; local < count; ++local) {
+    std::copy(buffer + local * width, buffer + (local + 1) * width,
+              genotypes + row_of_sample[samples[local]] * width);
+  }
+}
+
 namespace {
 
 // Components above this size are whitened by a sparse Cholesky factor of H_c
@@ -16,32 +39,6 @@ namespace {
 // less (the likelihood still uses the eigendecomposition, whose evaluations
 // cost O(k) at any h2).
 constexpr std::size_t kDenseWhiteningLimit = 12;
-
-// The largest admissible h2 for a block whose A has smallest eigenvalue
-// lambda: the eigenvalues of H, 1 + h2 (lambda - 1), stay at or above
-// kSmallestEigenvalueOfH.
-double admissible_h2_for(double smallest_eigenvalue) {
-  const double cap = 1.0 - kSmallestEigenvalueOfH;
-  if (smallest_eigenvalue >= kSmallestEigenvalueOfH) return cap;
-  return std::min(cap, (1.0 - kSmallestEigenvalueOfH) / (1.0 - smallest_eigenvalue));
-}
-
-// Copies the rows of samples[0 .. count-1] out of a sample-major block into
-// `buffer` (count x width, row-major), and back.
-void gather_rows(const double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
-                 const std::uint32_t* samples, std::size_t count, double* buffer) {
-  for (std::size_t local = 0; local < count; ++local) {
-    const double* source = genotypes + row_of_sample[samples[local]] * width;
-    std::copy(source, source + width, buffer + local * width);
-  }
-}
-void scatter_rows(const double* buffer, std::size_t width, const std::vector<std::size_t>& row_of_sample,
-                  const std::uint32_t* samples, std::size_t count, double* genotypes) {
-  for (std::size_t local = 0; local < count; ++local) {
-    std::copy(buffer + local * width, buffer + (local + 1) * width,
-              genotypes + row_of_sample[samples[local]] * width);
-  }
-}
 
 using RowMajorMatrix = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
 using SparseFactor = Eigen::SimplicialLLT<Eigen::SparseMatrix<double>, Eigen::Lower, Eigen::NaturalOrdering<int>>;
@@ -75,26 +72,71 @@ void solve_lower_in_place(const SparseFactor& factor, double* rows, std::size_t 
   }
 }
 
+using Permutation = Eigen::PermutationMatrix<Eigen::Dynamic, Eigen::Dynamic, int>;
+
+// The lower triangle (diagonal included) of P A_c P', compressed, with P a
+// fill-reducing ordering (AMD) of A_c's graph.
+Eigen::SparseMatrix<double> ordered_lower_triangle(const RelatedComponent& component, Permutation& permutation) {
+  const int size = static_cast<int>(component.samples.size());
+  std::vector<Eigen::Triplet<double>> entries = component.pairs;
+  for (int local = 0; local < size; ++local) {
+    entries.emplace_back(local, local, component.diagonal[static_cast<std::size_t>(local)]);
+  }
+  Eigen::SparseMatrix<double> lower(size, size);
+  lower.setFromTriplets(entries.begin(), entries.end());
+  const Eigen::SparseMatrix<double> full = lower.selfadjointView<Eigen::Lower>();
+  Permutation inverse;
+  Eigen::AMDOrdering<int>()(full, inverse);
+  permutation = inverse.inverse();
+  Eigen::SparseMatrix<double> ordered(size, size);
+  ordered.selfadjointView<Eigen::Lower>() = lower.selfadjointView<Eigen::Lower>().twistedBy(permutation);
+  ordered.makeCompressed();
+  return ordered;
+}
+
+// The column counts of the Cholesky factor of a matrix with this lower
+// triangle (diagonal included), from its elimination tree: row i of L holds
+// the nodes on the tree paths from each j < i with A_ij != 0 up to i (Liu
+// 1990, SIAM J. Matrix Anal. Appl. 11:134-172). O(nnz(L)) time.
+std::vector<std::int64_t> cholesky_column_counts(const Eigen::SparseMatrix<double>& lower) {
+  const Eigen::SparseMatrix<double> upper = lower.transpose();  // column i: the rows j <= i of row i of A
+  const Eigen::Index size = upper.cols();
+  std::vector<Eigen::Index> parent(static_cast<std::size_t>(size), -1), ancestor(static_cast<std::size_t>(size), -1);
+  for (Eigen::Index row = 0; row < size; ++row) {
+    for (Eigen::SparseMatrix<double>::InnerIterator entry(upper, row); entry; ++entry) {
+      // Walk from the entry's column up to the root of its current subtree
+      // (compressing the path to `row`); that root's parent is `row`.
+      for (Eigen::Index node = entry.row(), next; node != -1 && node < row; node = next) {
+        next = ancestor[static_cast<std::size_t>(node)];
+        ancestor[static_cast<std::size_t>(node)] = row;
+        if (next == -1) parent[static_cast<std::size_t>(node)] = row;
+      }
+    }
+  }
+  std::vector<std::int64_t> counts(static_cast<std::size_t>(size), 0);
+  std::vector<Eigen::Index> visited_by(static_cast<std::size_t>(size), -1);
+  for (Eigen::Index row = 0; row < size; ++row) {
+    visited_by[static_cast<std::size_t>(row)] = row;
+    ++counts[static_cast<std::size_t>(row)];
+    for (Eigen::SparseMatrix<double>::InnerIterator entry(upper, row); entry; ++entry) {
+      for (Eigen::Index node = entry.row(); visited_by[static_cast<std::size_t>(node)] != row;
+           node = parent[static_cast<std::size_t>(node)]) {
+        visited_by[static_cast<std::size_t>(node)] = row;
+        ++counts[static_cast<std::size_t>(node)];
+      }
+    }
+  }
+  return counts;
+}
+
 // H_c(h2) = h2 A_c + (1 - h2) I of one component as a sparse matrix, its
 // rows and columns permuted once by a fill-reducing ordering P (AMD), and its
 // Cholesky factor P H P' = L L' at any h2: W = L^-1 P whitens.
 class SparseH {
  public:
-  explicit SparseH(const RelatedComponent& component) {
+  explicit SparseH(const RelatedComponent& component)
+      : permuted_lower_a_(ordered_lower_triangle(component, permutation_)) {
     const int size = static_cast<int>(component.samples.size());
-    std::vector<Eigen::Triplet<double>> entries = component.pairs;
-    for (int local = 0; local < size; ++local) {
-      entries.emplace_back(local, local, component.diagonal[static_cast<std::size_t>(local)]);
-    }
-    Eigen::SparseMatrix<double> lower(size, size);
-    lower.setFromTriplets(entries.begin(), entries.end());
-    const Eigen::SparseMatrix<double> full = lower.selfadjointView<Eigen::Lower>();
-    Eigen::PermutationMatrix<Eigen::Dynamic, Eigen::Dynamic, int> inverse;
-    Eigen::AMDOrdering<int>()(full, inverse);
-    permutation_ = inverse.inverse();
-    permuted_lower_a_.resize(size, size);
-    permuted_lower_a_.selfadjointView<Eigen::Lower>() = lower.selfadjointView<Eigen::Lower>().twistedBy(permutation_);
-    permuted_lower_a_.makeCompressed();
     const int* starts = permuted_lower_a_.outerIndexPtr();
     const int* rows = permuted_lower_a_.innerIndexPtr();
     for (int col = 0; col < size; ++col) {
@@ -149,7 +191,7 @@ class SparseH {
   }
 
  private:
-  Eigen::PermutationMatrix<Eigen::Dynamic, Eigen::Dynamic, int> permutation_;
+  Permutation permutation_;
   Eigen::SparseMatrix<double> permuted_lower_a_;  // lower triangle of P A P', diagonal included
   std::vector<Eigen::Index> diagonal_positions_;  // of its diagonal entries among its values
 };
@@ -379,6 +421,18 @@ std::unique_ptr<CovarianceFactor> make_eigen_components(std::vector<std::uint32_
 
 std::unique_ptr<CovarianceFactor> make_sparse_component(RelatedComponent component) {
   return std::make_unique<SparseComponent>(component);
+}
+
+double sparse_factor_work_share(const RelatedComponent& component) {
+  Permutation permutation;
+  double sparse_work = 0.0, dense_work = 0.0;
+  const std::vector<std::int64_t> counts = cholesky_column_counts(ordered_lower_triangle(component, permutation));
+  for (std::size_t col = 0; col < counts.size(); ++col) {
+    const auto count = static_cast<double>(counts[col]), dense_count = static_cast<double>(counts.size() - col);
+    sparse_work += count * count;
+    dense_work += dense_count * dense_count;
+  }
+  return sparse_work / dense_work;
 }
 
 }  // namespace tamis::detail

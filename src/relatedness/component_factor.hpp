@@ -4,9 +4,15 @@
 //     limit, each decomposed once as A_c = U diag(lambda) U'. In the rotated
 //     coordinates U' z, H_c is diagonal (1 + h2 (lambda - 1)), so any h2 costs
 //     one weighted pass over the rotated rows.
-//   - SparseComponent: one large component, H_c factored as P' L L' P by a
-//     sparse Cholesky at each h2 (the eigendecomposition would be O(k^3)).
-// The whitening W = D^-1/2 U' (or L^-1 P) gives W'W = H^-1.
+//   - DenseComponent: one larger component whose sparse Cholesky factor would
+//     fill in: A_c reduced once to tridiagonal form Q' A_c Q = T (blocked
+//     Householder reflections, 4/3 k^3 flops against the eigendecomposition's
+//     many times that), so that any h2 costs one O(k) factorisation of the
+//     tridiagonal (1 - h2) I + h2 T; the whitening is the dense Cholesky
+//     factor of H_c at the fixed h2.
+//   - SparseComponent: one large component with a sparse factor, H_c factored
+//     as P' L L' P by a sparse Cholesky at each h2.
+// The whitening W = D^-1/2 U' (or L^-1 P, or L^-1) gives W'W = H^-1.
 #pragma once
 
 #include <Eigen/Dense>
@@ -57,6 +63,18 @@ class CovarianceFactor {
                             std::vector<double>& scratch) const = 0;
 };
 
+// The largest admissible h2 for a block of H whose A has this smallest
+// eigenvalue: the eigenvalues of H, 1 + h2 (lambda - 1), stay at or above
+// kSmallestEigenvalueOfH.
+double admissible_h2_for(double smallest_eigenvalue);
+
+// Copies the rows of samples[0 .. count-1] out of a sample-major block into
+// `buffer` (count x width, row-major), and back.
+void gather_rows(const double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
+                 const std::uint32_t* samples, std::size_t count, double* buffer);
+void scatter_rows(const double* buffer, std::size_t width, const std::vector<std::size_t>& row_of_sample,
+                  const std::uint32_t* samples, std::size_t count, double* genotypes);
+
 // One connected component of A in its own local numbering.
 struct RelatedComponent {
   std::vector<std::uint32_t> samples;               // model indices, ascending
@@ -70,7 +88,16 @@ std::unique_ptr<CovarianceFactor> make_eigen_components(std::vector<std::uint32_
                                                         std::vector<double> singleton_diagonal,
                                                         std::vector<RelatedComponent> components);
 
+// One component, reduced once to tridiagonal form (k^2 doubles twice over).
+std::unique_ptr<CovarianceFactor> make_dense_component(RelatedComponent component);
+
 // One component, factored by a sparse Cholesky at each h2.
 std::unique_ptr<CovarianceFactor> make_sparse_component(RelatedComponent component);
+
+// The work of one sparse Cholesky factorisation of H_c in the fill-reducing
+// order (the sum of its factor's squared column counts, from the symbolic
+// analysis alone) as a share of a dense one's, k^3 / 3: near 1 where the
+// factor fills in, tiny for a pedigree.
+double sparse_factor_work_share(const RelatedComponent& component);
 
 }  // namespace tamis::detail

@@ -13,6 +13,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <map>
 #include <numeric>
 #include <sstream>
 
@@ -157,6 +158,25 @@ std::vector<std::vector<std::uint32_t>> related_components(const SparseRelatedne
   return components;
 }
 
+// The whitened fits of one set of working columns by h2: the REML and ML
+// searches share their grid, and each search's estimate is looked up again
+// afterwards, so each h2 is factored once (for a large component, a
+// factorisation is most of a fit's cost).
+template <typename Evaluate>
+class FitsByH2 {
+ public:
+  explicit FitsByH2(Evaluate evaluate) : evaluate_(std::move(evaluate)) {}
+  const WhitenedFit& at(double h2) {
+    auto found = fits_.find(h2);
+    if (found == fits_.end()) found = fits_.emplace(h2, evaluate_(h2)).first;
+    return found->second;
+  }
+
+ private:
+  Evaluate evaluate_;
+  std::map<double, WhitenedFit> fits_;
+};
+
 struct MixedModel::State {
   Eigen::Index sample_count = 0;
   Eigen::Index column_count = 0;  // p: the design's independent columns
@@ -241,10 +261,14 @@ MixedModel MixedModel::fit(const Eigen::VectorXd& y, const Eigen::MatrixXd& desi
   {
     std::vector<detail::RelatedComponent> dense;
     for (detail::RelatedComponent& component : gather_components(relatedness, state.components)) {
-      if (component.samples.size() > options.dense_component_limit) {
-        state.factors.push_back(detail::make_sparse_component(std::move(component)));
-      } else {
+      const std::size_t size = component.samples.size();
+      if (size <= std::min(options.eigen_component_limit, options.dense_component_limit)) {
         dense.push_back(std::move(component));
+      } else if (size <= options.dense_component_limit &&
+                 detail::sparse_factor_work_share(component) >= options.sparse_work_share) {
+        state.factors.push_back(detail::make_dense_component(std::move(component)));
+      } else {
+        state.factors.push_back(detail::make_sparse_component(std::move(component)));
       }
     }
     std::vector<bool> related(relatedness.sample_count, false);
@@ -284,11 +308,11 @@ MixedModel MixedModel::fit(const Eigen::VectorXd& y, const Eigen::MatrixXd& desi
   columns << ols.basis, ols.residuals;
   state.working = state.to_working_rows(columns);
 
+  FitsByH2 fits([&state](double h2) { return state.whitened_fit(state.working, h2); });
   auto fit_by = [&](auto objective, VarianceComponents& out, Eigen::Index residual_df) {
     const detail::IntervalMaximum best = detail::maximise_on_interval(
-        [&](double h2) { return objective(state.whitened_fit(state.working, h2)); }, 0.0, state.h2_max,
-        kH2Tolerance);
-    const double s2 = state.whitened_fit(state.working, best.x).rss() / static_cast<double>(residual_df);
+        [&](double h2) { return objective(fits.at(h2)); }, 0.0, state.h2_max, kH2Tolerance);
+    const double s2 = fits.at(best.x).rss() / static_cast<double>(residual_df);
     out.h2 = best.x;
     out.sigma2_g = best.x * s2;
     out.sigma2_e = (1.0 - best.x) * s2;
@@ -303,7 +327,7 @@ MixedModel MixedModel::fit(const Eigen::VectorXd& y, const Eigen::MatrixXd& desi
   // GLS at the REML h2: with L11 the regressors' block of the Cholesky
   // factor and l the response's row, beta_Q = L11^-T l and
   // Cov(beta_Q) = s2 (L11 L11')^-1; back to the design by beta = R^-1 beta_Q.
-  const WhitenedFit at_reml = state.whitened_fit(state.working, model.reml_.h2);
+  const WhitenedFit& at_reml = fits.at(model.reml_.h2);
   const Eigen::MatrixXd l11 = at_reml.cholesky.topLeftCorner(p, p);
   const Eigen::VectorXd response_row = at_reml.cholesky.row(p).head(p).transpose();
   const Eigen::MatrixXd l11_inverse_t =
@@ -366,7 +390,8 @@ ConfirmResult MixedModel::confirm(const Eigen::VectorXd& genotype) const {
   Eigen::MatrixXd working(state.working.rows(), p + 2);
   working << state.working.leftCols(p), state.to_working_rows(adjusted / adjusted_norm), state.working.col(p);
 
-  auto full_ml = [&](double h2) { return profile_ml(state.whitened_fit(working, h2), n); };
+  FitsByH2 fits([&state, &working](double h2) { return state.whitened_fit(working, h2); });
+  auto full_ml = [&](double h2) { return profile_ml(fits.at(h2), n); };
   detail::IntervalMaximum best = detail::maximise_on_interval(full_ml, 0.0, state.h2_max, kH2Tolerance);
   // Adding a column cannot lower the likelihood at a given h2, so the null
   // fit's h2 is a floor for the full fit: it keeps LR >= 0 exactly.
@@ -375,7 +400,7 @@ ConfirmResult MixedModel::confirm(const Eigen::VectorXd& genotype) const {
     best.x = null_ml_.h2;
     best.value = at_null_h2;
   }
-  const WhitenedFit fit = state.whitened_fit(working, best.x);
+  const WhitenedFit& fit = fits.at(best.x);
   const double l_gg = fit.cholesky(p, p), l_yg = fit.cholesky(p + 1, p), l_yy = fit.cholesky(p + 1, p + 1);
   const double s2_ml = l_yy * l_yy / static_cast<double>(n);
   out.beta = l_yg / (l_gg * adjusted_norm);
