@@ -186,6 +186,15 @@ TEST_F(RelatednessFile, SidecarsTieThePartsOfOneRun) {
   write_relatedness_sidecar(stranger, provenance);
   expect_refused({first, stranger}, stranger, "other inputs or options");
 
+  // Two whole matrices are not one.
+  provenance.part = provenance.part_count = 1;
+  const std::string whole_a = path("whole_a.tsv.gz"), whole_b = path("whole_b.tsv.gz");
+  write_relatedness_file(whole_a, ids, {{0, 0, 1.0, 100}});
+  write_relatedness_sidecar(whole_a, provenance);
+  write_relatedness_file(whole_b, ids, {{1, 1, 1.0, 100}});
+  write_relatedness_sidecar(whole_b, provenance);
+  expect_refused({whole_a, whole_b}, whole_b, "two whole matrices");
+
   // A part edited after it was written no longer matches its sidecar's md5.
   write_relatedness_file(second, ids, {{1, 1, 1.5, 100}});
   expect_refused({first, second}, second, "changed after tamis wrote it");

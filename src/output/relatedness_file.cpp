@@ -69,7 +69,7 @@ struct PartTag {
   int part = 1;
   int part_count = 1;
   std::string fingerprint;  // empty when only the name told
-  std::string source;       // "sidecar" or "name"
+  std::string source;       // what told: "its metadata FILE" or "its name"
 };
 
 std::optional<std::pair<int, int>> parse_part_text(std::string_view text) {
@@ -165,6 +165,10 @@ void check_part_set(const std::vector<std::string>& paths, const std::vector<std
              "rebuild every part with the same command, changing only --part");
     }
     const auto [earlier, added] = file_of_part.emplace(tag.part, file_idx);
+    if (!added && tag.part_count == 1) {
+      refuse(paths[file_idx], "this and " + paths[earlier->second] + " are two whole matrices of tamis relatedness",
+             "give one matrix, or the parts of one --part K/N run");
+    }
     if (!added) {
       refuse(paths[file_idx],
              "part " + std::to_string(tag.part) + " of " + std::to_string(tag.part_count) + " is given twice (also " +
