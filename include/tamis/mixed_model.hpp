@@ -43,22 +43,25 @@ struct VarianceComponents {
 // How a component of k samples is factored (component_factor.hpp):
 //   - k <= kEigenComponentLimit: eigendecomposed once, every h2 then O(k);
 //   - up to kDenseComponentLimit: reduced once to tridiagonal form (4/3 k^3
-//     flops, a fraction of the eigendecomposition's), every h2 then O(k), and
-//     whitened by a dense Cholesky factor (2.5 k^2 doubles in all) -- unless
-//     a sparse Cholesky factor stays sparse: when one sparse factorisation
-//     costs less than kSparseWorkShare of a dense one, the fit's few dozen
-//     of them cost less than the reduction;
+//     flops, a fraction of the eigendecomposition's), every h2 then O(k),
+//     unless a sparse Cholesky factor stays sparse: when one sparse
+//     factorisation costs less than kSparseWorkShare of a dense one, the
+//     fit's few dozen of them cost less than the reduction. The whitening
+//     is the dense Cholesky factor's when the sparse one would hold at least
+//     kSparseWhiteningEntries of its entries (the dense loop runs faster);
 //   - larger: a sparse Cholesky at each h2.
-// The limits are measured crossovers; scripts/bench_mixed.sh and the README's
-// performance section give the figures.
+// The limits are crossovers measured on this project's machine (README,
+// "Performance"); the dense path holds 2.5 k^2 doubles at its peak.
 inline constexpr std::size_t kEigenComponentLimit = 200;
 inline constexpr std::size_t kDenseComponentLimit = 6000;
 inline constexpr double kSparseWorkShare = 0.02;
+inline constexpr double kSparseWhiteningEntries = 0.6;
 
 struct MixedModelOptions {
   std::size_t eigen_component_limit = kEigenComponentLimit;
   std::size_t dense_component_limit = kDenseComponentLimit;
   double sparse_work_share = kSparseWorkShare;
+  double sparse_whitening_entries = kSparseWhiteningEntries;
   // Names analysis sample i in error messages; "#i" (from 0) when empty.
   std::function<std::string(std::uint32_t)> sample_label;
 };

@@ -5,6 +5,7 @@
 #include <cmath>
 #include <limits>
 
+#include "common/vector_clones.hpp"
 #include "tamis/errors.hpp"
 
 namespace tamis::detail {
@@ -15,6 +16,10 @@ double admissible_h2_for(double smallest_eigenvalue) {
   return std::min(cap, (1.0 - kSmallestEigenvalueOfH) / (1.0 - smallest_eigenvalue));
 }
 
+namespace {
+
+// Copies the rows of samples[0 .. count-1] out of a sample-major block into
+// `buffer` (count x width, row-major), and back.
 void gather_rows(const double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
                  const std::uint32_t* samples, std::size_t count, double* buffer) {
   for (std::size_t local = 0; local < count; ++local) {
@@ -31,8 +36,6 @@ void scatter_rows(const double* buffer, std::size_t width, const std::vector<std
   }
 }
 
-namespace {
-
 // Components above this size are whitened by a sparse Cholesky factor of H_c
 // at the REML h2 rather than by the dense D^-1/2 U': per variant that costs
 // the factor's nonzeros instead of k^2, which for a pedigree's sparse A is far
@@ -48,6 +51,7 @@ using SparseFactor = Eigen::SimplicialLLT<Eigen::SparseMatrix<double>, Eigen::Lo
 // nonzero of L together, while every column still sees the same operations
 // in the same order as it would alone: a variant's values do not depend on
 // the others in the block.
+TAMIS_VECTOR_CLONES
 void solve_lower_in_place(const SparseFactor& factor, double* rows, std::size_t width) {
   const Eigen::SparseMatrix<double>& lower = factor.matrixL().nestedExpression();
   const int* starts = lower.outerIndexPtr();
@@ -356,6 +360,22 @@ class EigenComponents final : public CovarianceFactor {
   AdmissibleRange range_;
 };
 
+class SparseWhitening final : public ComponentWhitening {
+ public:
+  SparseWhitening(const RelatedComponent& component, double h2)
+      : samples_(component.samples), h_(component), factor_(h_.whitening_factor_at(h2)) {}
+
+  void whiten_block(double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
+                    std::vector<double>& scratch) const override {
+    h_.whiten_block(*factor_, samples_, genotypes, width, row_of_sample, scratch);
+  }
+
+ private:
+  std::vector<std::uint32_t> samples_;
+  SparseH h_;
+  std::unique_ptr<SparseFactor> factor_;
+};
+
 class SparseComponent final : public CovarianceFactor {
  public:
   explicit SparseComponent(const RelatedComponent& component) : samples_(component.samples), h_(component) {
@@ -423,16 +443,22 @@ std::unique_ptr<CovarianceFactor> make_sparse_component(RelatedComponent compone
   return std::make_unique<SparseComponent>(component);
 }
 
-double sparse_factor_work_share(const RelatedComponent& component) {
+SparseFactorShares sparse_factor_shares(const RelatedComponent& component) {
   Permutation permutation;
-  double sparse_work = 0.0, dense_work = 0.0;
   const std::vector<std::int64_t> counts = cholesky_column_counts(ordered_lower_triangle(component, permutation));
+  double entries = 0.0, dense_entries = 0.0, work = 0.0, dense_work = 0.0;
   for (std::size_t col = 0; col < counts.size(); ++col) {
     const auto count = static_cast<double>(counts[col]), dense_count = static_cast<double>(counts.size() - col);
-    sparse_work += count * count;
+    entries += count;
+    dense_entries += dense_count;
+    work += count * count;
     dense_work += dense_count * dense_count;
   }
-  return sparse_work / dense_work;
+  return {entries / dense_entries, work / dense_work};
+}
+
+std::unique_ptr<ComponentWhitening> make_sparse_whitening(const RelatedComponent& component, double h2) {
+  return std::make_unique<SparseWhitening>(component, h2);
 }
 
 }  // namespace tamis::detail

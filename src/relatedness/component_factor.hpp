@@ -68,13 +68,6 @@ class CovarianceFactor {
 // kSmallestEigenvalueOfH.
 double admissible_h2_for(double smallest_eigenvalue);
 
-// Copies the rows of samples[0 .. count-1] out of a sample-major block into
-// `buffer` (count x width, row-major), and back.
-void gather_rows(const double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
-                 const std::uint32_t* samples, std::size_t count, double* buffer);
-void scatter_rows(const double* buffer, std::size_t width, const std::vector<std::size_t>& row_of_sample,
-                  const std::uint32_t* samples, std::size_t count, double* genotypes);
-
 // One connected component of A in its own local numbering.
 struct RelatedComponent {
   std::vector<std::uint32_t> samples;               // model indices, ascending
@@ -88,16 +81,36 @@ std::unique_ptr<CovarianceFactor> make_eigen_components(std::vector<std::uint32_
                                                         std::vector<double> singleton_diagonal,
                                                         std::vector<RelatedComponent> components);
 
-// One component, reduced once to tridiagonal form (k^2 doubles twice over).
-std::unique_ptr<CovarianceFactor> make_dense_component(RelatedComponent component);
+// What the sparse Cholesky factor of H_c in the fill-reducing order would
+// cost, from the symbolic analysis alone, as shares of a dense factor's: its
+// entries (k (k + 1) / 2 dense), which set the whitening's cost per variant,
+// and the work of one factorisation (the sum of its squared column counts;
+// about k^3 / 3 dense). Near 1 where the factor fills in, tiny for a pedigree.
+struct SparseFactorShares {
+  double entries = 1.0;
+  double work = 1.0;
+};
+SparseFactorShares sparse_factor_shares(const RelatedComponent& component);
+
+// The rows of one component in a sample-major block replaced by their
+// whitened values at a fixed h2, as CovarianceFactor::whiten_block does.
+class ComponentWhitening {
+ public:
+  virtual ~ComponentWhitening() = default;
+  virtual void whiten_block(double* genotypes, std::size_t width, const std::vector<std::size_t>& row_of_sample,
+                            std::vector<double>& scratch) const = 0;
+};
+
+// W = L^-1 P by the sparse Cholesky factor of H_c(h2) in the fill-reducing
+// order; throws where H_c is not positive definite at h2.
+std::unique_ptr<ComponentWhitening> make_sparse_whitening(const RelatedComponent& component, double h2);
+
+// One component, reduced once to tridiagonal form (k^2 doubles), whitened by
+// its sparse Cholesky factor when `whiten_by_sparse_factor`, by the dense
+// one (k^2 / 2 doubles more) otherwise.
+std::unique_ptr<CovarianceFactor> make_dense_component(RelatedComponent component, bool whiten_by_sparse_factor);
 
 // One component, factored by a sparse Cholesky at each h2.
 std::unique_ptr<CovarianceFactor> make_sparse_component(RelatedComponent component);
-
-// The work of one sparse Cholesky factorisation of H_c in the fill-reducing
-// order (the sum of its factor's squared column counts, from the symbolic
-// analysis alone) as a share of a dense one's, k^3 / 3: near 1 where the
-// factor fills in, tiny for a pedigree.
-double sparse_factor_work_share(const RelatedComponent& component);
 
 }  // namespace tamis::detail

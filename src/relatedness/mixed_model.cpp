@@ -124,6 +124,46 @@ std::vector<detail::RelatedComponent> gather_components(const SparseRelatedness&
   return gathered;
 }
 
+// The factors of H: first the singletons and the components small enough to
+// eigendecompose, then each larger component, reduced to tridiagonal form
+// where its sparse Cholesky factor would fill in, sparse otherwise
+// (kEigenComponentLimit and the other limits in mixed_model.hpp).
+std::vector<std::unique_ptr<detail::CovarianceFactor>> make_factors(
+    const SparseRelatedness& relatedness, const std::vector<std::vector<std::uint32_t>>& components,
+    const MixedModelOptions& options) {
+  std::vector<std::unique_ptr<detail::CovarianceFactor>> factors(1);
+  std::vector<detail::RelatedComponent> eigendecomposed;
+  for (detail::RelatedComponent& component : gather_components(relatedness, components)) {
+    const std::size_t size = component.samples.size();
+    if (size <= std::min(options.eigen_component_limit, options.dense_component_limit)) {
+      eigendecomposed.push_back(std::move(component));
+      continue;
+    }
+    if (size <= options.dense_component_limit) {
+      const detail::SparseFactorShares sparse = detail::sparse_factor_shares(component);
+      if (sparse.work >= options.sparse_work_share) {
+        const bool whiten_by_sparse_factor = sparse.entries < options.sparse_whitening_entries;
+        factors.push_back(detail::make_dense_component(std::move(component), whiten_by_sparse_factor));
+        continue;
+      }
+    }
+    factors.push_back(detail::make_sparse_component(std::move(component)));
+  }
+  std::vector<bool> related(relatedness.sample_count, false);
+  for (const auto& component : components)
+    for (std::uint32_t sample : component) related[sample] = true;
+  std::vector<std::uint32_t> singletons;
+  std::vector<double> singleton_diagonal;
+  for (std::uint32_t sample = 0; sample < relatedness.sample_count; ++sample) {
+    if (related[sample]) continue;
+    singletons.push_back(sample);
+    singleton_diagonal.push_back(relatedness.diagonal[sample]);
+  }
+  factors.front() =
+      detail::make_eigen_components(std::move(singletons), std::move(singleton_diagonal), std::move(eigendecomposed));
+  return factors;
+}
+
 }  // namespace
 
 std::vector<std::vector<std::uint32_t>> related_components(const SparseRelatedness& relatedness) {
@@ -258,33 +298,7 @@ MixedModel MixedModel::fit(const Eigen::VectorXd& y, const Eigen::MatrixXd& desi
   state.log_det_r_squared = 2.0 * r_factor.diagonal().array().abs().log().sum();
 
   state.components = related_components(relatedness);
-  {
-    std::vector<detail::RelatedComponent> dense;
-    for (detail::RelatedComponent& component : gather_components(relatedness, state.components)) {
-      const std::size_t size = component.samples.size();
-      if (size <= std::min(options.eigen_component_limit, options.dense_component_limit)) {
-        dense.push_back(std::move(component));
-      } else if (size <= options.dense_component_limit &&
-                 detail::sparse_factor_work_share(component) >= options.sparse_work_share) {
-        state.factors.push_back(detail::make_dense_component(std::move(component)));
-      } else {
-        state.factors.push_back(detail::make_sparse_component(std::move(component)));
-      }
-    }
-    std::vector<bool> related(relatedness.sample_count, false);
-    for (const auto& component : state.components)
-      for (std::uint32_t sample : component) related[sample] = true;
-    std::vector<std::uint32_t> singletons;
-    std::vector<double> singleton_diagonal;
-    for (std::uint32_t sample = 0; sample < relatedness.sample_count; ++sample) {
-      if (related[sample]) continue;
-      singletons.push_back(sample);
-      singleton_diagonal.push_back(relatedness.diagonal[sample]);
-    }
-    state.factors.insert(state.factors.begin(), detail::make_eigen_components(std::move(singletons),
-                                                                              std::move(singleton_diagonal),
-                                                                              std::move(dense)));
-  }
+  state.factors = make_factors(relatedness, state.components, options);
 
   const detail::AdmissibleRange* limiting = &state.factors.front()->admissible_range();
   for (const auto& factor : state.factors) {
