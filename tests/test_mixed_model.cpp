@@ -5,6 +5,7 @@
 #include <gtest/gtest.h>
 
 #include <Eigen/Eigenvalues>
+#include <Eigen/SparseCholesky>
 #include <algorithm>
 #include <cmath>
 #include <iomanip>
@@ -13,6 +14,7 @@
 #include <random>
 #include <sstream>
 
+#include "relatedness/component_factor.hpp"
 #include "support/test_support.hpp"
 #include "tamis/confirm.hpp"
 #include "tamis/errors.hpp"
@@ -212,6 +214,59 @@ Cohort thresholded_with_contradiction(Cohort cohort, double keep_above) {
   return cohort;
 }
 
+// Population structure and few markers: three villages whose allele
+// frequencies drift apart (p_v = p + N(0, F p (1 - p)), F = 0.02, clamped),
+// 150 markers, and the genomic relationship matrix with pairs below 0.05 left
+// out, as `tamis relatedness` writes it by default. Many pairs pass by drift
+// and noise alone, so the samples form one large component whose sparse
+// Cholesky factor fills in, and the thresholding leaves A with negative
+// eigenvalues (about -0.25). y has h2 = 0.5 of polygenic effects spread over
+// the markers (covariance 0.5 GRM) and a 0.5 effect of g1.
+Cohort structured_cohort(std::uint64_t seed, int sample_count) {
+  Random random(seed);
+  constexpr int kMarkers = 150, kVillages = 3;
+  constexpr double kDrift = 0.02;
+  Eigen::MatrixXd dosages(sample_count, kMarkers);
+  for (int marker = 0; marker < kMarkers; ++marker) {
+    const double ancestral = 0.1 + 0.8 * random.uniform();
+    double village_frequency[kVillages];
+    for (double& frequency : village_frequency) {
+      const double drifted = ancestral + std::sqrt(kDrift * ancestral * (1.0 - ancestral)) * random.normal();
+      frequency = std::clamp(drifted, 0.02, 0.98);
+    }
+    for (int sample = 0; sample < sample_count; ++sample) {
+      const double frequency = village_frequency[sample % kVillages];
+      dosages(sample, marker) = random.allele(frequency) + random.allele(frequency);
+    }
+  }
+  Eigen::MatrixXd standardised = dosages;
+  for (int marker = 0; marker < kMarkers; ++marker) {
+    const double p = dosages.col(marker).mean() / 2.0;
+    standardised.col(marker) = (dosages.col(marker).array() - 2.0 * p) / std::sqrt(2.0 * p * (1.0 - p));
+  }
+  const Eigen::MatrixXd grm = standardised * standardised.transpose() / kMarkers;
+  Cohort cohort;
+  cohort.y.resize(sample_count);
+  cohort.family.assign(static_cast<std::size_t>(sample_count), 0);
+  cohort.relatedness.sample_count = static_cast<std::size_t>(sample_count);
+  for (int first = 0; first < sample_count; ++first) {
+    cohort.relatedness.diagonal.push_back(grm(first, first));
+    for (int second = first + 1; second < sample_count; ++second) {
+      if (grm(first, second) < 0.05) continue;
+      cohort.relatedness.pairs.push_back({static_cast<std::uint32_t>(first), static_cast<std::uint32_t>(second),
+                                          grm(first, second)});
+    }
+  }
+  add_covariates(cohort, random);
+  cohort.variants = dosages.leftCols(5);
+  Eigen::VectorXd marker_effects(kMarkers), noise(sample_count);
+  for (double& effect : marker_effects) effect = std::sqrt(0.5 / kMarkers) * random.normal();
+  for (double& value : noise) value = std::sqrt(0.5) * random.normal();
+  cohort.y = 0.5 * Eigen::VectorXd::Ones(sample_count) + 0.01 * cohort.design.col(1) + 0.2 * cohort.design.col(2) +
+             0.5 * cohort.variants.col(0) + standardised * marker_effects + noise;
+  return cohort;
+}
+
 // The cohort with its samples in another order (model index s becomes order[s]).
 Cohort permuted(const Cohort& cohort, const std::vector<int>& new_index) {
   Cohort out = cohort;
@@ -229,6 +284,32 @@ Cohort permuted(const Cohort& cohort, const std::vector<int>& new_index) {
     pair.second = std::max(first, second);
   }
   return out;
+}
+
+// Options that send every component of more than `above` samples down one
+// path of component_factor.hpp: the eigendecomposition, the tridiagonal
+// reduction (whitened by the dense or by the sparse Cholesky factor), or the
+// sparse Cholesky at each h2.
+struct NamedOptions {
+  std::string name;
+  tamis::MixedModelOptions options;
+};
+
+std::vector<NamedOptions> every_factorisation(std::size_t above = 4) {
+  std::vector<NamedOptions> paths(4);
+  paths[0].name = "eigendecomposition";
+  paths[0].options.eigen_component_limit = paths[0].options.dense_component_limit = 100000;
+  for (int dense = 1; dense <= 2; ++dense) {
+    paths[dense].options.eigen_component_limit = above;
+    paths[dense].options.sparse_work_share = 0.0;
+  }
+  paths[1].name = "tridiagonal, dense whitening";
+  paths[1].options.sparse_whitening_entries = 0.0;
+  paths[2].name = "tridiagonal, sparse whitening";
+  paths[2].options.sparse_whitening_entries = 2.0;
+  paths[3].name = "sparse Cholesky";
+  paths[3].options.dense_component_limit = above;
+  return paths;
 }
 
 // ---------------------------------------------------------------------------
@@ -396,14 +477,8 @@ TEST(MixedModelReference, RandomFamilyInterceptMatchesLme4) {
   EXPECT_GT(model.confirm(cohort.variants.col(0)).lrt_chisq, 5.0);
 }
 
-// Source: the dense oracle in base R 4.2.2 (stats::optimize for h2, solve and
-// determinant on the full n x n H), tests/reference/mixed_model_dense_oracle.R.
-void check_against_dense_oracle(const Cohort& cohort, const std::string& name) {
-  const std::string dir = tamis::testing::make_temp_dir(name);
-  const auto oracle = run_reference("mixed_model_dense_oracle.R", "'" + write_data(cohort, dir) + "' '" +
-                                                                      write_pairs(cohort.relatedness, dir) + "'");
-  const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
-  ASSERT_LT(value_of(oracle, "reml_h2"), value_of(oracle, "h2_max") - 0.05) << "the test wants an interior optimum";
+void check_model_against_dense_oracle(const MixedModel& model, const Cohort& cohort,
+                                      const std::map<std::string, std::string>& oracle) {
   EXPECT_FALSE(model.reml().at_boundary);
   // R 4.2.2 dense oracle: h2, the REML log-likelihood and s2 to 1e-6.
   expect_reference(model.reml().h2, oracle, "reml_h2", 1e-6);
@@ -424,8 +499,23 @@ void check_against_dense_oracle(const Cohort& cohort, const std::string& name) {
     expect_reference(result.beta, oracle, key + "_beta", 1e-6);
     expect_reference(result.se, oracle, key + "_se", 1e-6);
   }
-  report_largest_deviation("the dense oracle in R");
   EXPECT_GT(scores[0].chisq, 10.0) << "the simulated effect of g1 is found";
+}
+
+// Source: the dense oracle in base R 4.2.2 (stats::optimize for h2, solve and
+// determinant on the full n x n H), tests/reference/mixed_model_dense_oracle.R.
+// Each way of factoring the components is checked against it.
+void check_against_dense_oracle(const Cohort& cohort, const std::string& name) {
+  const std::string dir = tamis::testing::make_temp_dir(name);
+  const auto oracle = run_reference("mixed_model_dense_oracle.R", "'" + write_data(cohort, dir) + "' '" +
+                                                                      write_pairs(cohort.relatedness, dir) + "'");
+  ASSERT_LT(value_of(oracle, "reml_h2"), value_of(oracle, "h2_max") - 0.05) << "the test wants an interior optimum";
+  for (const NamedOptions& path : every_factorisation()) {
+    SCOPED_TRACE(path.name);
+    check_model_against_dense_oracle(MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, path.options),
+                                     cohort, oracle);
+    report_largest_deviation("the dense oracle in R, " + path.name);
+  }
 }
 
 TEST(MixedModelReference, GenomicRelatednessMatchesDenseOracle) {
@@ -443,6 +533,13 @@ TEST(MixedModelReference, ThresholdedRelatednessWithANegativeEigenvalueMatchesDe
   ASSERT_LT(eigenvalues.minCoeff(), -0.05);
   ASSERT_GT(eigenvalues.minCoeff(), -0.5);
   check_against_dense_oracle(cohort, "mixed_model_oracle_negative");
+}
+
+TEST(MixedModelReference, OneLargeComponentFromPopulationStructureMatchesDenseOracle) {
+  if (!have_rscript()) GTEST_SKIP() << "Rscript is not installed";
+  const Cohort cohort = structured_cohort(20260304, 260);
+  ASSERT_EQ(tamis::related_components(cohort.relatedness).size(), 1u);
+  check_against_dense_oracle(cohort, "mixed_model_oracle_structured");
 }
 
 // ---------------------------------------------------------------------------
@@ -475,37 +572,65 @@ TEST(MixedModel, WhitenedScoreKernelIsTheMixedModelScoreTest) {
   EXPECT_NEAR(whitened.sigma2, s2, 1e-10 * s2);
 }
 
-TEST(MixedModel, SparseCholeskyPathAgreesWithTheEigendecomposition) {
-  const Cohort cohort = thresholded_with_contradiction(pedigree_cohort(12), 0.05);
-  tamis::MixedModelOptions sparse;
-  sparse.dense_component_limit = 4;  // the families of 5 and 6 and the three-generation pedigrees
-  const MixedModel dense_model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
-  const MixedModel sparse_model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, sparse);
-  EXPECT_NEAR(sparse_model.reml().h2, dense_model.reml().h2, 1e-7);
-  EXPECT_NEAR(sparse_model.reml().log_likelihood, dense_model.reml().log_likelihood, 1e-9);
-  EXPECT_NEAR(sparse_model.null_ml().h2, dense_model.null_ml().h2, 1e-7);
-  EXPECT_LT((sparse_model.coefficients() - dense_model.coefficients()).norm(), 1e-8);
-  const auto dense_scores = whitened_scores(dense_model, cohort);
-  const auto sparse_scores = whitened_scores(sparse_model, cohort);
-  for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant) {
-    // The two paths round differently, and the optimiser's tolerance on h2 (about 1e-8) carries into T.
-    EXPECT_NEAR(sparse_scores[variant].chisq, dense_scores[variant].chisq, 1e-6 * dense_scores[variant].chisq);
-    const auto dense_result = dense_model.confirm(cohort.variants.col(variant));
-    const auto sparse_result = sparse_model.confirm(cohort.variants.col(variant));
-    EXPECT_NEAR(sparse_result.lrt_chisq, dense_result.lrt_chisq, 1e-6);
-    EXPECT_NEAR(sparse_result.wald_chisq, dense_result.wald_chisq, 1e-6);
+// Every way of factoring the components gives the eigendecomposition's fit,
+// score tests and refits: the paths round differently, and the optimiser's
+// tolerance on h2 (about 1e-8) carries into T.
+void expect_every_factorisation_agrees(const Cohort& cohort) {
+  const std::vector<NamedOptions> paths = every_factorisation();
+  const MixedModel reference = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, paths[0].options);
+  const auto reference_scores = whitened_scores(reference, cohort);
+  for (std::size_t path_idx = 1; path_idx < paths.size(); ++path_idx) {
+    SCOPED_TRACE(paths[path_idx].name);
+    const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, paths[path_idx].options);
+    EXPECT_NEAR(model.reml().h2, reference.reml().h2, 1e-7);
+    EXPECT_NEAR(model.reml().log_likelihood, reference.reml().log_likelihood, 1e-9);
+    EXPECT_NEAR(model.null_ml().h2, reference.null_ml().h2, 1e-7);
+    EXPECT_NEAR(model.null_ml().log_likelihood, reference.null_ml().log_likelihood, 1e-9);
+    EXPECT_LT((model.coefficients() - reference.coefficients()).norm(), 1e-7 * reference.coefficients().norm());
+    const auto scores = whitened_scores(model, cohort);
+    for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant) {
+      EXPECT_NEAR(scores[variant].chisq, reference_scores[variant].chisq, 1e-6 * reference_scores[variant].chisq);
+      const auto expected = reference.confirm(cohort.variants.col(variant));
+      const auto result = model.confirm(cohort.variants.col(variant));
+      EXPECT_NEAR(result.lrt_chisq, expected.lrt_chisq, 1e-6);
+      EXPECT_NEAR(result.wald_chisq, expected.wald_chisq, 1e-6);
+    }
   }
 }
 
-TEST(MixedModel, WhitenBlockMatchesWhitenColumnByColumn) {
-  const Cohort cohort = pedigree_cohort(13);
-  tamis::MixedModelOptions sparse;
-  sparse.dense_component_limit = 4;
-  for (const auto& options : {tamis::MixedModelOptions(), sparse}) {
-    const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, options);
+TEST(MixedModel, EveryFactorisationAgreesOnFamilies) {
+  expect_every_factorisation_agrees(thresholded_with_contradiction(pedigree_cohort(12), 0.05));
+}
+
+// One component of a few hundred samples, linked by population structure,
+// whose sparse factor fills in: the case the tridiagonal reduction is for.
+TEST(MixedModel, EveryFactorisationAgreesOnOneLargeComponent) {
+  const Cohort cohort = structured_cohort(21, 260);
+  ASSERT_EQ(cohort.relatedness.diagonal.size(), 260u);
+  const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
+  ASSERT_EQ(model.components().size(), 1u);
+  ASSERT_GT(model.components()[0].size(), 250u);
+  EXPECT_GT(model.reml().h2, 0.2);
+  // The thresholding leaves A with a negative eigenvalue, so each path also
+  // finds its own bound on h2.
+  const Eigen::VectorXd eigenvalues = dense_relatedness(cohort.relatedness).selfadjointView<Eigen::Lower>().eigenvalues();
+  ASSERT_LT(eigenvalues.minCoeff(), -0.05);
+  expect_every_factorisation_agrees(cohort);
+}
+
+// Whitening a block gives each variant the values it gets alone (rows of the
+// block in any order, rows not the model's left alone, widths that are not
+// a multiple of the dense loop's 8), and W'W = H^-1 at the REML h2.
+void expect_block_whitening_is_per_variant(const Cohort& cohort) {
+  std::vector<NamedOptions> paths = every_factorisation();
+  paths.push_back({"default", tamis::MixedModelOptions()});
+  for (const NamedOptions& path : paths) {
+    SCOPED_TRACE(path.name);
+    const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, path.options);
     // The block holds two rows that are not the model's (left alone) and the
     // model's samples in reverse order.
-    const std::size_t n = static_cast<std::size_t>(cohort.size()), width = 4, rows = n + 2;
+    const std::size_t n = static_cast<std::size_t>(cohort.size()), width = static_cast<std::size_t>(cohort.variants.cols()),
+                      rows = n + 2;
     std::vector<std::size_t> row_of_sample(n);
     for (std::size_t sample = 0; sample < n; ++sample) row_of_sample[sample] = rows - 1 - sample;
     std::vector<double> block(rows * width, -7.0);
@@ -528,6 +653,13 @@ TEST(MixedModel, WhitenBlockMatchesWhitenColumnByColumn) {
         (1.0 - h2) * Eigen::MatrixXd::Identity(count, count) + h2 * dense_relatedness(cohort.relatedness);
     EXPECT_LT((w.transpose() * w * h - Eigen::MatrixXd::Identity(count, count)).cwiseAbs().maxCoeff(), 1e-9);
   }
+}
+
+TEST(MixedModel, WhitenBlockMatchesWhitenColumnByColumn) {
+  expect_block_whitening_is_per_variant(pedigree_cohort(13));
+  Cohort large = structured_cohort(22, 250);
+  large.variants.conservativeResize(Eigen::NoChange, 3);
+  expect_block_whitening_is_per_variant(large);
 }
 
 TEST(MixedModel, ResultsDoNotDependOnTheSampleOrder) {
@@ -627,19 +759,58 @@ TEST(MixedModel, AMatrixThatAdmitsNoUsefulH2IsRefusedNamingItsSamples) {
   Cohort cohort = family_cohort(19, 60);
   cohort.relatedness.pairs.clear();
   cohort.relatedness.pairs.push_back({3, 9, 2.5});  // eigenvalues 1 +- 2.5: H factors only for h2 < 0.4
-  tamis::MixedModelOptions options;
-  options.sample_label = [](std::uint32_t sample) { return "saltmarsh_" + std::to_string(sample); };
-  try {
-    MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, options);
-    FAIL() << "expected an error";
-  } catch (const tamis::Error& error) {
-    EXPECT_EQ(error.code(), tamis::ExitCode::model);
-    EXPECT_NE(error.problem().find("saltmarsh_3, saltmarsh_9"), std::string::npos) << error.problem();
-    EXPECT_NE(error.fix().find("--keep-above"), std::string::npos) << error.fix();
+  for (NamedOptions path : every_factorisation(1)) {
+    SCOPED_TRACE(path.name);
+    path.options.sample_label = [](std::uint32_t sample) { return "saltmarsh_" + std::to_string(sample); };
+    try {
+      MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, path.options);
+      ADD_FAILURE() << "expected an error";
+    } catch (const tamis::Error& error) {
+      EXPECT_EQ(error.code(), tamis::ExitCode::model);
+      EXPECT_NE(error.problem().find("saltmarsh_3, saltmarsh_9"), std::string::npos) << error.problem();
+      EXPECT_NE(error.fix().find("--keep-above"), std::string::npos) << error.fix();
+    }
   }
-  tamis::MixedModelOptions sparse = options;
-  sparse.dense_component_limit = 1;
-  EXPECT_THROW(MixedModel::fit(cohort.y, cohort.design, cohort.relatedness, sparse), tamis::Error);
+}
+
+// The choice between the dense and the sparse path reads the size of the
+// sparse factor from the symbolic analysis alone; Eigen's SimplicialLLT with
+// the same (AMD) ordering builds the factor itself.
+TEST(MixedModel, SparseFactorSharesMatchTheFactorEigenBuilds) {
+  for (const Cohort& cohort : {structured_cohort(23, 200), thresholded_with_contradiction(pedigree_cohort(24), 0.05)}) {
+    for (const auto& samples : tamis::related_components(cohort.relatedness)) {
+      tamis::detail::RelatedComponent component;
+      component.samples = samples;
+      std::vector<int> local(cohort.relatedness.sample_count, -1);
+      for (std::size_t local_idx = 0; local_idx < samples.size(); ++local_idx) {
+        local[samples[local_idx]] = static_cast<int>(local_idx);
+        component.diagonal.push_back(cohort.relatedness.diagonal[samples[local_idx]]);
+      }
+      std::vector<Eigen::Triplet<double>> h_entries;
+      for (const auto& pair : cohort.relatedness.pairs) {
+        if (local[pair.first] < 0) continue;
+        component.pairs.emplace_back(local[pair.second], local[pair.first], pair.value);
+        h_entries.emplace_back(local[pair.second], local[pair.first], 0.3 * pair.value);
+      }
+      const auto size = static_cast<int>(samples.size());
+      for (int local_idx = 0; local_idx < size; ++local_idx)
+        h_entries.emplace_back(local_idx, local_idx, 0.7 + 0.3 * component.diagonal[static_cast<std::size_t>(local_idx)]);
+      Eigen::SparseMatrix<double> h(size, size);
+      h.setFromTriplets(h_entries.begin(), h_entries.end());
+      const Eigen::SimplicialLLT<Eigen::SparseMatrix<double>, Eigen::Lower, Eigen::AMDOrdering<int>> factor(h);
+      ASSERT_EQ(factor.info(), Eigen::Success);
+      const Eigen::SparseMatrix<double> lower = factor.matrixL();
+      double work = 0.0, dense_work = 0.0;
+      for (int col = 0; col < size; ++col) {
+        const double count = lower.outerIndexPtr()[col + 1] - lower.outerIndexPtr()[col];
+        work += count * count;
+        dense_work += static_cast<double>(size - col) * (size - col);
+      }
+      const tamis::detail::SparseFactorShares shares = tamis::detail::sparse_factor_shares(component);
+      EXPECT_NEAR(shares.entries * size * (size + 1) / 2, static_cast<double>(lower.nonZeros()), 1e-6);
+      EXPECT_NEAR(shares.work, work / dense_work, 1e-12);
+    }
+  }
 }
 
 TEST(MixedModel, ConstantTraitIsRefusedAsByThePlainModel) {

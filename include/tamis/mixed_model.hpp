@@ -43,19 +43,21 @@ struct VarianceComponents {
 // How a component of k samples is factored (component_factor.hpp):
 //   - k <= kEigenComponentLimit: eigendecomposed once, every h2 then O(k);
 //   - up to kDenseComponentLimit: reduced once to tridiagonal form (4/3 k^3
-//     flops, a fraction of the eigendecomposition's), every h2 then O(k),
-//     unless a sparse Cholesky factor stays sparse: when one sparse
+//     flops, a fraction of the eigendecomposition's), every h2 then O(k) --
+//     unless its sparse Cholesky factor stays sparse: when one sparse
 //     factorisation costs less than kSparseWorkShare of a dense one, the
-//     fit's few dozen of them cost less than the reduction. The whitening
-//     is the dense Cholesky factor's when the sparse one would hold at least
-//     kSparseWhiteningEntries of its entries (the dense loop runs faster);
+//     fit's fifty or so (and a few confirmations' two dozen each) cost less
+//     than the reduction. The whitening is by the dense Cholesky factor, or
+//     by the sparse one when it would hold less than kSparseWhiteningEntries
+//     of the dense factor's entries (the dense loop runs about three times
+//     as fast per entry);
 //   - larger: a sparse Cholesky at each h2.
-// The limits are crossovers measured on this project's machine (README,
-// "Performance"); the dense path holds 2.5 k^2 doubles at its peak.
-inline constexpr std::size_t kEigenComponentLimit = 200;
+// The limits are crossovers measured on the machine of README's
+// "Performance"; the dense path holds 2.5 k^2 doubles at its peak.
+inline constexpr std::size_t kEigenComponentLimit = 128;
 inline constexpr std::size_t kDenseComponentLimit = 6000;
-inline constexpr double kSparseWorkShare = 0.02;
-inline constexpr double kSparseWhiteningEntries = 0.6;
+inline constexpr double kSparseWorkShare = 0.005;
+inline constexpr double kSparseWhiteningEntries = 0.35;
 
 struct MixedModelOptions {
   std::size_t eigen_component_limit = kEigenComponentLimit;
