@@ -6,10 +6,11 @@
 # builds its relatedness matrix with `tamis relatedness`, then runs the plain
 # scan and the mixed-model scan (`--relatedness`) of the quantitative trait,
 # interleaved ROUNDS times, and prints the median wall times, their ratio
-# and the median peak memory (GNU time -v).
+# and the median peak memory (GNU time -v). With BASELINE set to another
+# tamis binary (an earlier build), its mixed-model scan joins each round.
 #
 # Environment: SAMPLES, VARIANTS, ROUNDS (3), THREADS (2), KEEP_ABOVE (0.05),
-# TAMIS (the binary; default build/tamis), TAMIS_BENCH_DIR (data).
+# TAMIS (the binary; default build/tamis), BASELINE, TAMIS_BENCH_DIR (data).
 # Run it when the machine is otherwise idle: the figures are wall times.
 set -euo pipefail
 root=$(cd "$(dirname "$0")/.." && pwd)
@@ -20,6 +21,7 @@ variants=${VARIANTS:-20000}
 rounds=${ROUNDS:-3}
 threads=${THREADS:-2}
 keep_above=${KEEP_ABOVE:-0.05}
+baseline=${BASELINE:-}
 [ -x /usr/bin/time ] || { echo "GNU time is needed: apt-get install time" >&2; exit 1; }
 command -v bcftools > /dev/null || { echo "bcftools is needed: apt-get install bcftools" >&2; exit 1; }
 
@@ -38,15 +40,18 @@ echo "relatedness matrix: $(echo "$(date +%s.%N) - $start" | bc) s"
 covariates=age,sex,village,pc1,pc2,pc3,pc4
 run() {  # NAME EXTRA... ; prints "seconds peak_kb"
   local name=$1; shift
-  /usr/bin/time -f "%e %M" -o "$data/$name.time" "$tamis" scan --genotypes "$cohort.bcf" \
+  local binary=$tamis
+  [ "$name" = baseline ] && binary=$baseline
+  /usr/bin/time -f "%e %M" -o "$data/$name.time" "$binary" scan --genotypes "$cohort.bcf" \
     --traits "$cohort.traits.tsv" --trait fev1_litres --covariates "$covariates" --threads "$threads" \
     --quiet --out "$data/$name" "$@"
   cat "$data/$name.time"
 }
-: > "$data/plain.times"; : > "$data/mixed.times"
+: > "$data/plain.times"; : > "$data/mixed.times"; : > "$data/baseline.times"
 for round in $(seq "$rounds"); do
   run plain >> "$data/plain.times"
   run mixed --relatedness "$cohort.relatedness.tsv.gz" >> "$data/mixed.times"
+  [ -z "$baseline" ] || run baseline --relatedness "$cohort.relatedness.tsv.gz" >> "$data/baseline.times"
 done
 grep "linear mixed model\|related groups" "$data/mixed.log"
 median() { sort -g | awk '{ v[NR] = $1 } END { print (NR % 2) ? v[(NR + 1) / 2] : (v[NR / 2] + v[NR / 2 + 1]) / 2 }'; }
@@ -56,3 +61,8 @@ echo "samples $samples, variants $variants, threads $threads, rounds $rounds (BC
 echo "plain scan: median $plain s, peak $(cut -d' ' -f2 "$data/plain.times" | median) KB"
 echo "mixed scan: median $mixed s, peak $(cut -d' ' -f2 "$data/mixed.times" | median) KB"
 echo "mixed / plain: $(echo "scale=3; $mixed / $plain" | bc)"
+if [ -n "$baseline" ]; then
+  before=$(cut -d' ' -f1 "$data/baseline.times" | median)
+  echo "baseline mixed scan ($baseline): median $before s, peak $(cut -d' ' -f2 "$data/baseline.times" | median) KB"
+  echo "baseline / mixed: $(echo "scale=1; $before / $mixed" | bc)"
+fi

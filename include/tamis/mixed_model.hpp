@@ -4,7 +4,8 @@
 //
 // A is sparse and nearly block-diagonal: the samples fall into connected
 // components (families), and each is handled on its own. Nothing n x n is
-// ever dense. Pure computation: no I/O.
+// ever dense; a component is, up to kDenseComponentLimit samples, where its
+// sparse factor would fill in. Pure computation: no I/O.
 #pragma once
 
 #include <Eigen/Dense>

@@ -1,6 +1,6 @@
 // One connected component of A handled densely: reduced once to tridiagonal
 // form for the likelihood at any h2, whitened by the dense Cholesky factor
-// of H_c at the fixed h2.
+// of H_c at the fixed h2 (or by the sparse one, where that stays sparse).
 //
 // For a component whose sparse Cholesky factor fills in (relatedness spread
 // by population structure links most of a cohort into one group), each
@@ -347,7 +347,8 @@ class DenseComponent final : public CovarianceFactor {
       whitening_ = make_sparse_whitening(component_, h2);
       return;
     }
-    Eigen::MatrixXd h = h2 * dense_a();
+    Eigen::MatrixXd h = dense_a();
+    h *= h2;
     h.diagonal().array() += 1.0 - h2;
     whitening_ = std::make_unique<DenseWhitening>(component_.samples, std::move(h));
   }
