@@ -395,12 +395,8 @@ RelatednessSummary run_relatedness(const RelatednessOptions& options) {
   const auto start = std::chrono::steady_clock::now();
   tbb::global_control thread_limit(tbb::global_control::max_allowed_parallelism,
                                    static_cast<std::size_t>(options.threads));
-  GenotypeReaderOptions reader_options;
-  reader_options.paths = options.genotype_paths;
-  reader_options.field = options.dosage_field;
-  reader_options.io_threads = decompression_threads_for(options.threads);
-  reader_options.regions = options.regions;
-  reader_options.haploid_dosage = options.haploid_dosage;
+  GenotypeReaderOptions reader_options = reader_options_for(
+      options.genotype_paths, options.dosage_field, options.threads, options.regions, options.haploid_dosage);
   GenotypeReader reader(reader_options);
   const std::vector<std::size_t> samples = taken_samples(options, reader.sample_ids());
   log_inputs(options, reader, samples.size());

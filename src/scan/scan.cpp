@@ -478,6 +478,17 @@ std::string result_path(const std::string& out_prefix, const std::string& trait)
 // serial reader would not keep pace without them.
 int decompression_threads_for(int scan_threads) { return scan_threads >= 4 ? scan_threads / 4 : 0; }
 
+GenotypeReaderOptions reader_options_for(const std::vector<std::string>& paths, DosageField field, int threads,
+                                         const std::vector<GenomicRegion>& regions, int haploid_dosage) {
+  GenotypeReaderOptions reader_options;
+  reader_options.paths = paths;
+  reader_options.field = field;
+  reader_options.io_threads = decompression_threads_for(threads);
+  reader_options.regions = regions;
+  reader_options.haploid_dosage = haploid_dosage;
+  return reader_options;
+}
+
 // Records per block when the options leave it open: few enough that a
 // block's decoded dosages (and its sample-major copy) stay in a core's
 // cache, while the kernel still gets a few register-wide groups of variants.
@@ -492,12 +503,8 @@ ScanSummary run_scan(const ScanOptions& requested) {
   ScanOptions options = requested;
   tbb::global_control thread_limit(tbb::global_control::max_allowed_parallelism,
                                    static_cast<std::size_t>(options.threads));
-  GenotypeReaderOptions reader_options;
-  reader_options.paths = options.genotype_paths;
-  reader_options.field = options.dosage_field;
-  reader_options.io_threads = decompression_threads_for(options.threads);
-  reader_options.regions = options.regions;
-  reader_options.haploid_dosage = options.haploid_dosage;
+  GenotypeReaderOptions reader_options = reader_options_for(
+      options.genotype_paths, options.dosage_field, options.threads, options.regions, options.haploid_dosage);
   if (options.shard_count > 0) {
     reader_options.regions = plan_shard(options.genotype_paths, options.shard, options.shard_count);
     current_log().line("shard " + std::to_string(options.shard) + "/" + std::to_string(options.shard_count) +
