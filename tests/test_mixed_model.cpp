@@ -15,6 +15,8 @@
 #include <sstream>
 
 #include "relatedness/component_factor.hpp"
+#include "support/r_reference.hpp"
+#include "support/related_cohort.hpp"
 #include "support/test_support.hpp"
 #include "tamis/confirm.hpp"
 #include "tamis/errors.hpp"
@@ -26,47 +28,21 @@ namespace {
 
 using tamis::MixedModel;
 using tamis::SparseRelatedness;
+using tamis::testing::Cohort;
+using tamis::testing::dense_relatedness;
+using tamis::testing::design_names;
+using tamis::testing::expect_reference;
+using tamis::testing::expect_relative;
+using tamis::testing::have_rscript;
+using tamis::testing::Random;
+using tamis::testing::report_largest_deviation;
+using tamis::testing::run_reference;
+using tamis::testing::value_of;
+using tamis::testing::write_data;
+using tamis::testing::write_pairs;
 
 // ---------------------------------------------------------------------------
-// Data sets, generated deterministically (std::mt19937_64 is specified bit for
-// bit; the normal draws are our own Box-Muller so no library choice enters).
-
-class Random {
- public:
-  explicit Random(std::uint64_t seed) : engine_(seed) {}
-  double uniform() { return (static_cast<double>(engine_() >> 11) + 0.5) * 0x1.0p-53; }
-  double normal() {
-    const double radius = std::sqrt(-2.0 * std::log(uniform()));
-    return radius * std::cos(6.283185307179586 * uniform());
-  }
-  int below(int count) { return static_cast<int>(uniform() * count); }
-  int allele(double frequency) { return uniform() < frequency ? 1 : 0; }
-
- private:
-  std::mt19937_64 engine_;
-};
-
-struct Cohort {
-  Eigen::VectorXd y;
-  Eigen::MatrixXd design;    // intercept, c1, c2
-  Eigen::MatrixXd variants;  // n x K dosages
-  std::vector<int> family;   // group label per sample (the lme4 data set's random effect)
-  SparseRelatedness relatedness;
-  int size() const { return static_cast<int>(y.size()); }
-};
-
-std::vector<std::string> design_names() { return {"intercept", "c1", "c2"}; }
-
-Eigen::MatrixXd dense_relatedness(const SparseRelatedness& relatedness) {
-  const auto n = static_cast<Eigen::Index>(relatedness.sample_count);
-  Eigen::MatrixXd a = Eigen::MatrixXd::Zero(n, n);
-  for (Eigen::Index sample = 0; sample < n; ++sample) a(sample, sample) = relatedness.diagonal[sample];
-  for (const auto& pair : relatedness.pairs) {
-    a(pair.first, pair.second) = pair.value;
-    a(pair.second, pair.first) = pair.value;
-  }
-  return a;
-}
+// Data sets (the draws, the cohort and the files for R: support/related_cohort.hpp).
 
 // Covariates: c1 an age-like value, c2 a 0/1 indicator.
 void add_covariates(Cohort& cohort, Random& random) {
@@ -335,92 +311,7 @@ std::vector<tamis::ScoreResult> whitened_scores(const MixedModel& model, const C
 // ---------------------------------------------------------------------------
 // R reference runs.
 
-bool have_rscript() { return tamis::testing::run_command("command -v Rscript > /dev/null 2>&1") == 0; }
-
-std::string number_text(double value) {
-  std::ostringstream text;
-  text << std::setprecision(17) << value;
-  return text.str();
-}
-
-std::string write_data(const Cohort& cohort, const std::string& dir) {
-  std::ostringstream text;
-  text << "family\ty\tc1\tc2";
-  for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant) text << "\tg" << variant + 1;
-  text << "\n";
-  for (int sample = 0; sample < cohort.size(); ++sample) {
-    text << "f" << cohort.family[sample] << "\t" << number_text(cohort.y[sample]) << "\t"
-         << number_text(cohort.design(sample, 1)) << "\t" << number_text(cohort.design(sample, 2));
-    for (Eigen::Index variant = 0; variant < cohort.variants.cols(); ++variant)
-      text << "\t" << number_text(cohort.variants(sample, variant));
-    text << "\n";
-  }
-  const std::string path = dir + "/data.tsv";
-  tamis::testing::write_text_file(path, text.str());
-  return path;
-}
-
-std::string write_pairs(const SparseRelatedness& relatedness, const std::string& dir) {
-  std::ostringstream text;
-  text << "i\tj\tvalue\n";
-  for (std::size_t sample = 0; sample < relatedness.sample_count; ++sample)
-    text << sample + 1 << "\t" << sample + 1 << "\t" << number_text(relatedness.diagonal[sample]) << "\n";
-  for (const auto& pair : relatedness.pairs)
-    text << pair.first + 1 << "\t" << pair.second + 1 << "\t" << number_text(pair.value) << "\n";
-  const std::string path = dir + "/pairs.tsv";
-  tamis::testing::write_text_file(path, text.str());
-  return path;
-}
-
-// Runs tests/reference/SCRIPT with the arguments and reads its key/value lines.
-std::map<std::string, std::string> run_reference(const std::string& script, const std::string& arguments) {
-  int status = 0;
-  const std::string output = tamis::testing::capture_command(
-      "Rscript '" + tamis::testing::source_dir() + "/tests/reference/" + script + "' " + arguments, &status);
-  EXPECT_EQ(status, 0) << output;
-  std::map<std::string, std::string> values;
-  for (const std::string& line : tamis::testing::lines_of(output)) {
-    const auto fields = tamis::testing::split_fields(line);
-    if (fields.size() == 2) values[fields[0]] = fields[1];
-  }
-  return values;
-}
-
-double value_of(const std::map<std::string, std::string>& values, const std::string& key) {
-  const auto found = values.find(key);
-  if (found == values.end()) {
-    ADD_FAILURE() << "the reference run printed no " << key;
-    return std::nan("");
-  }
-  return std::stod(found->second);
-}
-
-// The largest relative deviation seen since the last report, printed by each
-// reference test so that the margins are on record.
-double largest_deviation = 0.0;
-std::string largest_deviation_key;
-
-// |actual - expected| <= tolerance |expected|.
-void expect_relative(double actual, double expected, double tolerance, const std::string& what) {
-  EXPECT_NEAR(actual, expected, tolerance * std::fabs(expected)) << what;
-  const double deviation = std::fabs(actual - expected) / std::fabs(expected);
-  if (deviation > largest_deviation) {
-    largest_deviation = deviation;
-    largest_deviation_key = what;
-  }
-}
-
-// The same against the reference run's value under `key`.
-void expect_reference(double actual, const std::map<std::string, std::string>& reference, const std::string& key,
-                      double tolerance) {
-  expect_relative(actual, value_of(reference, key), tolerance, key);
-}
-
-void report_largest_deviation(const std::string& reference) {
-  std::cout << "largest relative deviation from " << reference << ": " << largest_deviation << " ("
-            << largest_deviation_key << ")\n";
-  largest_deviation = 0.0;
-}
+// have_rscript, run_reference, expect_reference and the rest: support/r_reference.hpp.
 
 // ---------------------------------------------------------------------------
 
