@@ -10,7 +10,6 @@
 #include <cmath>
 #include <iostream>
 #include <map>
-#include <numeric>
 #include <string>
 #include <vector>
 
@@ -220,7 +219,7 @@ void expect_close(double actual, double expected, double tolerance, double floor
   EXPECT_NEAR(actual, expected, tolerance * std::max(std::fabs(expected), floor)) << what;
   const double deviation = std::fabs(actual - expected) / std::max(std::fabs(expected), floor);
   auto& largest = tamis::testing::largest_deviation;
-  if (!(deviation <= largest.largest)) largest = {deviation, what};
+  if (deviation > largest.largest) largest = {deviation, what};
 }
 
 std::string quoted(const std::string& path) { return "'" + path + "'"; }
@@ -438,8 +437,11 @@ std::string write_laplace_points(const std::vector<LaplacePoint>& points, const 
 // Source: the dense oracle in base R 4.2.2 (solve, determinant on n x n;
 // the conditional mode by Newton's method to 1e-12): the Laplace
 // log-likelihood at each fit's beta and tau to 1e-8, and each fit a maximum:
-// every derivative (central differences) below 1e-3 in size, the one in tau
-// at most 1e-3 where tau is 0 (a maximum on the boundary).
+// the derivatives (central differences) in beta and in log tau below 1e-3
+// in size, or, where tau is 0 (a maximum on the boundary), the one-sided
+// derivative in tau at most 1e-3. (In log tau, so that a fit stopped on a
+// slope at a large tau, where the likelihood changes little per unit of
+// tau, is not taken for a maximum.)
 void check_laplace_against_dense_oracle(const std::vector<LaplacePoint>& points, const ReferenceValues& r) {
   for (const LaplacePoint& point : points) {
     SCOPED_TRACE(point.name);
@@ -448,7 +450,7 @@ void check_laplace_against_dense_oracle(const std::vector<LaplacePoint>& points,
     tamis::testing::expect_reference(point.fit.log_likelihood, r, point.name + "_loglik", 1e-8);
     const double tau_slope = tamis::testing::value_of(r, point.name + "_gradient_tau");
     if (point.fit.tau > 0.0) {
-      EXPECT_LT(std::fabs(tau_slope), 1e-3);
+      EXPECT_LT(std::fabs(point.fit.tau * tau_slope), 1e-3);
     } else {
       EXPECT_LT(tau_slope, 1e-3);
     }
@@ -631,12 +633,10 @@ TEST(LogisticMixedModel, LaplaceFitsStayWithinTheirBounds) {
     for (double& dosage : genotype) dosage = random.allele(frequency) + random.allele(frequency);
     if (genotype.maxCoeff() == genotype.minCoeff()) continue;
     SCOPED_TRACE("draw " + std::to_string(draw) + ", allele frequency " + std::to_string(frequency));
-    const tamis::LaplaceFit full = model.laplace_fit_with(genotype);
-    EXPECT_LE(full.log_likelihood, 0.0);
-    EXPECT_GE(full.log_likelihood, null_log_likelihood - 1e-9 * std::fabs(null_log_likelihood));
+    // LR = 2 (l1 - l0): the bounds on l1 are bounds on LR.
     const tamis::ConfirmResult result = model.confirm(genotype);
     EXPECT_GE(result.lrt_chisq, 0.0);
-    EXPECT_LE(result.lrt_chisq, -2.0 * null_log_likelihood);
+    EXPECT_LE(result.lrt_chisq, -2.0 * null_log_likelihood) << "a full fit's log-likelihood above 0";
   }
 }
 

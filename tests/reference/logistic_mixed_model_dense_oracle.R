@@ -102,15 +102,17 @@ out("reml_loglik", -(log_det(fit$Sigma) + log_det(fit$XtSiX) + drop(crossprod(yw
                        (n - ncol(X)) * log(2 * pi)) / 2)
 
 # The Laplace approximation at given beta and tau (b = tau A alpha; Newton's
-# step is b = tau A (I + W tau A)^-1 (W b + y - mu)).
+# step is b = tau A (I + W tau A)^-1 (W b + y - mu)). Each point's
+# evaluations start from the previous mode (the same b), which is near.
 log_density <- function(eta) sum(y * eta - pmax(eta, 0) - log1p(exp(-abs(eta))))
+last_mode <- list(b = rep(0, n))
 laplace <- function(beta, tau, design) {
   offset <- drop(design %*% beta)
   if (tau == 0) return(log_density(offset))
   K <- tau * A
   objective <- function(alpha, b) log_density(offset + b) - sum(b * alpha) / 2
-  alpha <- rep(0, n)
-  b <- rep(0, n)
+  b <- last_mode$b
+  alpha <- solve(K, b)
   current <- objective(alpha, b)
   for (step in 1:500) {
     mu <- plogis(offset + b)
@@ -130,6 +132,7 @@ laplace <- function(beta, tau, design) {
     current <- value
     if (change < 1e-12 * (1 + max(abs(b)))) break
   }
+  last_mode$b <<- b
   mu <- plogis(offset + b)
   root_w <- sqrt(mu * (1 - mu))
   current - log_det(diag(n) + root_w * t(root_w * K)) / 2
@@ -141,6 +144,7 @@ if (length(args) >= 4) {
     design <- if (points$variant[row] == "none") X else cbind(X, data[[points$variant[row]]])
     beta <- as.numeric(strsplit(points$beta[row], ",")[[1]])
     point_tau <- points$tau[row]
+    last_mode <- list(b = rep(0, n))
     out(paste0(name, "_loglik"), laplace(beta, point_tau, design))
     step <- 1e-5 * max(point_tau, 1e-2)
     out(paste0(name, "_gradient_tau"),

@@ -50,7 +50,7 @@ inline Deviation largest_deviation;
 inline void expect_relative(double actual, double expected, double tolerance, const std::string& what) {
   EXPECT_NEAR(actual, expected, tolerance * std::fabs(expected)) << what;
   const double deviation = std::fabs(actual - expected) / std::fabs(expected);
-  if (!(deviation <= largest_deviation.largest)) largest_deviation = {deviation, what};
+  if (deviation > largest_deviation.largest) largest_deviation = {deviation, what};
 }
 
 // The same against the reference run's value under `key`.
