@@ -10,6 +10,33 @@
 
 namespace tamis::detail {
 
+// All columns of the block go through each nonzero of L together, while
+// every column still sees the same operations in the same order as it would
+// alone: a variant's values do not depend on the others in the block.
+TAMIS_VECTOR_CLONES
+void solve_sparse_lower_in_place(const Eigen::SparseMatrix<double>& lower, double* rows, std::size_t width) {
+  const int* starts = lower.outerIndexPtr();
+  const int* row_of_entry = lower.innerIndexPtr();
+  const int* stored = lower.innerNonZeroPtr();  // null when compressed
+  const double* values = lower.valuePtr();
+  for (Eigen::Index col = 0; col < lower.outerSize(); ++col) {
+    const int begin = starts[col];
+    const int end = stored ? begin + stored[col] : starts[col + 1];
+    double* pivot_row = rows + static_cast<std::size_t>(col) * width;
+    for (int entry = begin; entry < end; ++entry) {
+      if (row_of_entry[entry] != col) continue;
+      const double pivot = values[entry];
+      for (std::size_t column = 0; column < width; ++column) pivot_row[column] /= pivot;
+    }
+    for (int entry = begin; entry < end; ++entry) {
+      if (row_of_entry[entry] <= col) continue;
+      double* target = rows + static_cast<std::size_t>(row_of_entry[entry]) * width;
+      const double weight = values[entry];
+      for (std::size_t column = 0; column < width; ++column) target[column] -= weight * pivot_row[column];
+    }
+  }
+}
+
 double admissible_h2_for(double smallest_eigenvalue) {
   const double cap = 1.0 - kSmallestEigenvalueOfH;
   if (smallest_eigenvalue >= kSmallestEigenvalueOfH) return cap;
@@ -45,36 +72,6 @@ constexpr std::size_t kDenseWhiteningLimit = 12;
 
 using RowMajorMatrix = Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
 using SparseFactor = Eigen::SimplicialLLT<Eigen::SparseMatrix<double>, Eigen::Lower, Eigen::NaturalOrdering<int>>;
-
-// x <- L^-1 x for the rows of a row-major block (L lower, compressed
-// column-major: Eigen's factor). All columns of the block go through each
-// nonzero of L together, while every column still sees the same operations
-// in the same order as it would alone: a variant's values do not depend on
-// the others in the block.
-TAMIS_VECTOR_CLONES
-void solve_lower_in_place(const SparseFactor& factor, double* rows, std::size_t width) {
-  const Eigen::SparseMatrix<double>& lower = factor.matrixL().nestedExpression();
-  const int* starts = lower.outerIndexPtr();
-  const int* row_of_entry = lower.innerIndexPtr();
-  const int* stored = lower.innerNonZeroPtr();  // null when compressed
-  const double* values = lower.valuePtr();
-  for (Eigen::Index col = 0; col < lower.outerSize(); ++col) {
-    const int begin = starts[col];
-    const int end = stored ? begin + stored[col] : starts[col + 1];
-    double* pivot_row = rows + static_cast<std::size_t>(col) * width;
-    for (int entry = begin; entry < end; ++entry) {
-      if (row_of_entry[entry] != col) continue;
-      const double pivot = values[entry];
-      for (std::size_t column = 0; column < width; ++column) pivot_row[column] /= pivot;
-    }
-    for (int entry = begin; entry < end; ++entry) {
-      if (row_of_entry[entry] <= col) continue;
-      double* target = rows + static_cast<std::size_t>(row_of_entry[entry]) * width;
-      const double weight = values[entry];
-      for (std::size_t column = 0; column < width; ++column) target[column] -= weight * pivot_row[column];
-    }
-  }
-}
 
 using Permutation = Eigen::PermutationMatrix<Eigen::Dynamic, Eigen::Dynamic, int>;
 
@@ -176,7 +173,7 @@ class SparseH {
     RowMajorMatrix rows(columns.rows(), columns.cols());
     const int* position = permutation_.indices().data();
     for (Eigen::Index local = 0; local < columns.rows(); ++local) rows.row(position[local]) = columns.row(local);
-    solve_lower_in_place(factor, rows.data(), static_cast<std::size_t>(columns.cols()));
+    solve_sparse_lower_in_place(factor.matrixL().nestedExpression(), rows.data(), static_cast<std::size_t>(columns.cols()));
     return rows;
   }
 
@@ -190,7 +187,7 @@ class SparseH {
       const double* source = genotypes + row_of_sample[samples[local]] * width;
       std::copy(source, source + width, scratch.data() + static_cast<std::size_t>(position[local]) * width);
     }
-    solve_lower_in_place(factor, scratch.data(), width);
+    solve_sparse_lower_in_place(factor.matrixL().nestedExpression(), scratch.data(), width);
     scatter_rows(scratch.data(), width, row_of_sample, samples.data(), samples.size(), genotypes);
   }
 

@@ -63,6 +63,11 @@ class CovarianceFactor {
                             std::vector<double>& scratch) const = 0;
 };
 
+// x <- L^-1 x for the rows of a row-major block (`width` values per row),
+// with L lower triangular in compressed column-major storage (Eigen's
+// sparse Cholesky factor).
+void solve_sparse_lower_in_place(const Eigen::SparseMatrix<double>& lower, double* rows, std::size_t width);
+
 // The largest admissible h2 for a block of H whose A has this smallest
 // eigenvalue: the eigenvalues of H, 1 + h2 (lambda - 1), stay at or above
 // kSmallestEigenvalueOfH.
