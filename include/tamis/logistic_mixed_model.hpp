@@ -20,7 +20,8 @@
 // The confirmation of a hit compares the Laplace approximations of the
 // marginal likelihood of the null and the full model, each maximised over
 // beta and tau with b at its conditional mode (the objective of a GLMM fit
-// by adaptive quadrature with one node):
+// by adaptive quadrature with one node; tau at the local maximum that the
+// PQL estimate leads to, see LaplaceFit::tau_held):
 //   l(beta, tau) = sum_i log p(y_i | eta_i) - b'(tau A)^-1 b / 2 - log|M| / 2,
 // where b'(tau A)^-1 b = b' alpha for b = tau A alpha (A^-1 not needed).
 // Pure computation: no I/O.
@@ -72,6 +73,10 @@ struct LaplaceFit {
   double log_likelihood = 0.0;   // the Laplace approximation of the marginal log-likelihood
   int evaluations = 0;           // conditional modes computed
   bool converged = true;
+  // The likelihood had no maximum in tau near the start (it climbed on
+  // towards the degenerate fit of tau = infinity): tau was held at the PQL
+  // estimate (null fit) or the null fit's (full fits).
+  bool tau_held = false;
 };
 
 // Thrown as tamis::Error(ExitCode::model, ...) when PQL does not converge

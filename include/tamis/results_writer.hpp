@@ -160,5 +160,7 @@ inline constexpr const char* kShardRangesKey = "tamis_shard_ranges";
 inline constexpr const char* kFingerprintKey = "tamis_run_fingerprint";
 // The relatedness matrix of a mixed-model scan: its files and their md5.
 inline constexpr const char* kRelatednessKey = "tamis_relatedness";
+// A mixed-model scan's null fit of the trait (model, variance, iterations).
+inline constexpr const char* kNullModelKey = "tamis_null_model";
 
 }  // namespace tamis

@@ -42,6 +42,9 @@ class SaddlepointContext {
   // null model's sample order), written into `adjusted`. O(n p).
   void adjust_genotype(const Eigen::VectorXd& genotype, Eigen::VectorXd& adjusted) const;
 
+  // Var(gt'(Y - mu)) = sum_i gt_i^2 mu_i (1 - mu_i) for Y_i ~ Bernoulli(mu_i). O(n p).
+  double bernoulli_variance(const Eigen::VectorXd& genotype) const;
+
   const Eigen::VectorXd& mu() const { return mu_; }
   const Eigen::VectorXd& one_minus_mu() const { return one_minus_mu_; }
   int sample_count() const { return static_cast<int>(mu_.size()); }

@@ -355,6 +355,16 @@ void SaddlepointContext::adjust_genotype(const Eigen::VectorXd& genotype,
   adjusted = genotype - unweighted_basis_ * coordinates;
 }
 
+double SaddlepointContext::bernoulli_variance(const Eigen::VectorXd& genotype) const {
+  // With gt = g - X (X'WX)^-1 X'W g: gt'W gt = g'W g - |Q'W^1/2 g|^2.
+  const Eigen::VectorXd coordinates = weighted_basis_.transpose() * genotype;
+  double weighted_squares = 0.0;
+  for (Eigen::Index idx = 0; idx < genotype.size(); ++idx) {
+    weighted_squares += genotype[idx] * genotype[idx] * mu_[idx] * one_minus_mu_[idx];
+  }
+  return std::max(0.0, weighted_squares - coordinates.squaredNorm());
+}
+
 // The carriers' exact terms plus the normal part of the non-carriers: the
 // adjusted genotype is needed only where g != 0 (coordinates Q'W^1/2 g from
 // the carriers alone), and the non-carriers' variance is what is left of V.

@@ -35,11 +35,14 @@ constexpr double kSmallestWeight = 1e-12;
 // The conditional mode of b and the Laplace fits over beta stop when their
 // steps fall below these.
 constexpr double kModeTolerance = 1e-10;
-constexpr double kBetaTolerance = 1e-9;
+constexpr double kBetaTolerance = 1e-8;
 constexpr int kModeSteps = 100;
 constexpr int kBetaSteps = 50;
 constexpr int kHalvings = 30;
-constexpr int kWidenings = 4;
+constexpr int kWalkSteps = 8;
+// The Laplace likelihood is flat near its maximum in tau: this settles it
+// far below the precision any LR needs.
+constexpr double kLaplaceHTolerance = 1e-7;
 
 double tau_of(double h) { return h / (1.0 - h); }
 
@@ -194,7 +197,7 @@ Mode conditional_mode(detail::WorkingCovariance& covariance, const Eigen::Vector
   if (!covariance.factor(mode.point.root_w, tau)) return mode;
   mode.log_likelihood = objective - 0.5 * covariance.log_determinant();
   // A Bernoulli likelihood is at most 1 and M >= I: a positive value is rounding run away.
-  mode.ok = std::isfinite(mode.log_likelihood) && mode.log_likelihood <= 0.0 && current.penalty() >= -1e-8;
+  mode.ok = std::isfinite(mode.log_likelihood) && mode.log_likelihood <= 0.0;
   mode.effects = std::move(current);
   return mode;
 }
@@ -257,20 +260,45 @@ LaplaceAtTau laplace_at_tau(detail::WorkingCovariance& covariance, const Eigen::
   return fit;
 }
 
-// The maximum of a function of h = tau / (1 + tau) nearest tau_start: the
-// search interval reaches up to a few times tau_start and grows while the
-// maximum sits at its upper end. Local on purpose: with a full-rank A the
-// Laplace likelihood climbs again towards tau = infinity, where every
-// sample's own effect fits its own outcome (a degenerate fit, not an
-// estimate); the maximum that matters is the one the PQL estimate leads to.
-detail::IntervalMaximum local_maximum(const std::function<double(double)>& function, double tau_start) {
-  double tau_upper = 3.0 * tau_start + 0.5;
-  for (int widening = 0;; ++widening) {
-    const double h_upper = std::min(kLargestH, tau_upper / (1.0 + tau_upper));
-    const detail::IntervalMaximum maximum = detail::maximise_on_interval(function, 0.0, h_upper, kHTolerance);
-    if (!maximum.at_upper || h_upper >= kLargestH || widening == kWidenings) return maximum;
-    tau_upper *= 4.0;
+// The local maximum of the Laplace likelihood in tau that tau_start (the
+// PQL estimate, or the null fit's) leads to: a walk uphill over
+// tau_start x 1.5^k, then a search between the best point's neighbours.
+// Local on purpose: with samples that have their own random effect (A_jj with
+// no relative), the Laplace likelihood of Bernoulli outcomes climbs again
+// towards tau = infinity, where each such effect fits its own outcome (a
+// degenerate fit, not an estimate). When the walk finds no interior maximum
+// within kWalkSteps steps up, tau stays at tau_start and `held` says so.
+struct TauMaximum {
+  double tau = 0.0;
+  bool held = false;
+};
+
+TauMaximum local_tau_maximum(const std::function<double(double)>& at_tau, double tau_start) {
+  // The walk's points: 0, then tau_start x 1.5^k (k from -kWalkSteps), or
+  // 0.01 x 1.5^k from tau = 0.
+  const double base = tau_start > 0.0 ? tau_start : 0.01;
+  std::vector<double> taus{0.0};
+  for (int step = -kWalkSteps; step <= kWalkSteps; ++step) taus.push_back(base * std::pow(1.5, step));
+  std::vector<double> values(taus.size(), std::nan(""));
+  auto value_at = [&](std::size_t idx) {
+    if (std::isnan(values[idx])) values[idx] = at_tau(taus[idx]);
+    return values[idx];
+  };
+  std::size_t best = tau_start > 0.0 ? static_cast<std::size_t>(kWalkSteps + 1) : 0;
+  for (;;) {
+    if (best + 1 < taus.size() && value_at(best + 1) > value_at(best)) {
+      ++best;
+    } else if (best > 0 && value_at(best - 1) > value_at(best)) {
+      --best;
+    } else {
+      break;
+    }
   }
+  if (best + 1 == taus.size()) return {tau_start, true};
+  const double lower = best > 0 ? taus[best - 1] : 0.0, upper = taus[best + 1];
+  const detail::IntervalMaximum maximum = detail::maximise_on_interval(
+      [&](double h) { return at_tau(tau_of(h)); }, lower / (1.0 + lower), upper / (1.0 + upper), kLaplaceHTolerance);
+  return {maximum.value >= value_at(best) ? tau_of(maximum.x) : taus[best], false};
 }
 
 // The Laplace fit over tau (on h = tau / (1 + tau)) and beta; each tau
@@ -278,6 +306,7 @@ detail::IntervalMaximum local_maximum(const std::function<double(double)>& funct
 struct LaplaceSearch {
   LaplaceAtTau best;
   double tau = 0.0;
+  bool tau_held = false;  // no interior maximum in tau: held at the start
   int modes = 0;
   bool converged = false;
 };
@@ -288,19 +317,20 @@ LaplaceSearch search_laplace(detail::WorkingCovariance& covariance, const Eigen:
   LaplaceSearch search;
   Eigen::VectorXd gamma = gamma_start;
   RandomEffects effects = effects_start;
-  auto evaluate = [&](double h) {
-    LaplaceAtTau fit = laplace_at_tau(covariance, y, basis, tau_of(h), gamma, effects);
+  auto evaluate = [&](double tau) {
+    LaplaceAtTau fit = laplace_at_tau(covariance, y, basis, tau, gamma, effects);
     search.modes += fit.modes;
     if (!fit.mode.ok) return -HUGE_VAL;
     gamma = fit.gamma;
     effects = fit.mode.effects;
     return fit.mode.log_likelihood;
   };
-  const detail::IntervalMaximum maximum = local_maximum(evaluate, tau_start);
-  search.tau = tau_of(maximum.x);
+  const TauMaximum maximum = local_tau_maximum(evaluate, tau_start);
+  search.tau = maximum.tau;
+  search.tau_held = maximum.held;
   search.best = laplace_at_tau(covariance, y, basis, search.tau, gamma, effects);
   search.modes += search.best.modes;
-  search.converged = maximum.converged && search.best.converged && search.best.mode.ok;
+  search.converged = search.best.converged && search.best.mode.ok;
   return search;
 }
 
@@ -446,6 +476,7 @@ LogisticMixedModel LogisticMixedModel::fit(const Eigen::VectorXd& y, const Eigen
   state.null_laplace.log_likelihood = search.best.mode.log_likelihood;
   state.null_laplace.evaluations = search.modes;
   state.null_laplace.converged = search.converged;
+  state.null_laplace.tau_held = search.tau_held;
   return model;
 }
 
@@ -547,6 +578,7 @@ LogisticMixedModel::Confirmed LogisticMixedModel::confirm_fit(const Eigen::Vecto
   out.fit.log_likelihood = search.best.mode.log_likelihood;
   out.fit.evaluations = search.modes;
   out.fit.converged = result.converged;
+  out.fit.tau_held = search.tau_held;
   return out;
 }
 

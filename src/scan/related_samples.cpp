@@ -7,6 +7,7 @@
 #include <utility>
 
 #include "tamis/errors.hpp"
+#include "tamis/logistic_mixed_model.hpp"
 #include "tamis/run_log.hpp"
 
 namespace tamis {
@@ -72,28 +73,32 @@ void log_variance_components(const std::string& trait, const MixedModel& mixed) 
   }
 }
 
+// Whitening mixes the rows of a family, so a missing dosage must hold its
+// imputed value before, not after: the kernel's own list cannot serve.
+void impute_into(const GatheredBlock& gathered, std::size_t width, const double* fills, std::vector<double>& scratch) {
+  scratch.assign(gathered.genotypes.begin(), gathered.genotypes.end());
+  for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
+    for (std::size_t entry = gathered.missing_starts[site_idx]; entry < gathered.missing_starts[site_idx + 1];
+         ++entry) {
+      scratch[gathered.missing_rows[entry] * width + site_idx] = fills[site_idx];
+    }
+  }
+}
+
 class MixedLinearModel : public TraitModel {
  public:
   MixedLinearModel(const MixedModel& mixed, std::vector<std::size_t> row_of_sample)
       : mixed_(mixed), row_of_sample_(std::move(row_of_sample)) {}
 
-  // Whitening mixes the rows of a family, so a missing dosage must hold its
-  // imputed value before, not after: the kernel's own list cannot serve.
   KernelInput prepare_block(const GatheredBlock& gathered, std::size_t width, const double* fills,
                             const ImputedDosages&, std::vector<double>& scratch) const override {
-    scratch.assign(gathered.genotypes.begin(), gathered.genotypes.end());
-    for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
-      for (std::size_t entry = gathered.missing_starts[site_idx]; entry < gathered.missing_starts[site_idx + 1];
-           ++entry) {
-        scratch[gathered.missing_rows[entry] * width + site_idx] = fills[site_idx];
-      }
-    }
+    impute_into(gathered, width, fills, scratch);
     mixed_.whiten_block(scratch.data(), width, row_of_sample_);
     return {scratch.data(), nullptr};
   }
 
   Confirmation confirm(const Eigen::VectorXd& genotype, double) const override {
-    return {mixed_.confirm(genotype), false};
+    return {mixed_.confirm(genotype), false, false};
   }
 
  private:
@@ -101,10 +106,46 @@ class MixedLinearModel : public TraitModel {
   std::vector<std::size_t> row_of_sample_;
 };
 
+// The logistic mixed model's part: the kernel reads the block whitened by
+// the working covariance; the saddlepoint's Bernoulli variance (given b-hat)
+// is matched to the score's variance under the model; hits are refitted by
+// Laplace likelihoods, and where that refit fails (a separated rare
+// variant; Firth's penalty has no mixed-model form here) the score test's
+// saddlepoint p-value stays the primary one.
+class MixedLogisticModel : public TraitModel {
+ public:
+  MixedLogisticModel(const LogisticMixedModel& mixed, std::vector<std::size_t> row_of_sample)
+      : mixed_(mixed), row_of_sample_(std::move(row_of_sample)) {}
+
+  KernelInput prepare_block(const GatheredBlock& gathered, std::size_t width, const double* fills,
+                            const ImputedDosages&, std::vector<double>& scratch) const override {
+    impute_into(gathered, width, fills, scratch);
+    mixed_.whiten_block(scratch.data(), width, row_of_sample_);
+    return {scratch.data(), nullptr};
+  }
+
+  Confirmation confirm(const Eigen::VectorXd& genotype, double) const override {
+    Confirmation confirmation;
+    confirmation.result = mixed_.confirm(genotype);
+    confirmation.keeps_score = !confirmation.result.converged;
+    return confirmation;
+  }
+
+  double saddlepoint_variance(const SaddlepointContext& context, const Eigen::VectorXd& genotype,
+                              const ScoreResult&) const override {
+    return context.bernoulli_variance(genotype);
+  }
+
+ private:
+  const LogisticMixedModel& mixed_;
+  std::vector<std::size_t> row_of_sample_;
+};
+
 }  // namespace
 
-std::unique_ptr<TraitModel> make_mixed_model(const MixedModel& mixed, std::vector<std::size_t> row_of_sample) {
-  return std::make_unique<MixedLinearModel>(mixed, std::move(row_of_sample));
+std::unique_ptr<TraitModel> make_mixed_model(const TraitContext& trait, std::vector<std::size_t> row_of_sample) {
+  if (trait.logistic_mixed) return std::make_unique<MixedLogisticModel>(*trait.logistic_mixed, std::move(row_of_sample));
+  return std::make_unique<MixedLinearModel>(*trait.mixed, std::move(row_of_sample));
 }
 
 ScanRelatedness load_scan_relatedness(const std::vector<std::string>& paths,
@@ -173,13 +214,96 @@ SparseRelatedness relatedness_among(const ScanRelatedness& relatedness, const st
   return among;
 }
 
+namespace {
+
+// A logistic mixed model is estimable only with enough of both outcomes.
+constexpr std::size_t kFewestCasesOrControls = 10;
+
+void refuse_too_few_cases(const ScanRelatedness& relatedness, const TraitContext& trait) {
+  const std::size_t cases = trait.set.case_count, controls = trait.set.control_count;
+  if (cases >= kFewestCasesOrControls && controls >= kFewestCasesOrControls) return;
+  throw Error(ExitCode::model, join_paths(relatedness.paths) + ", trait " + trait.set.trait,
+              "the logistic mixed model needs at least " + std::to_string(kFewestCasesOrControls) +
+                  " cases and " + std::to_string(kFewestCasesOrControls) + " controls among the analysis samples; "
+                  "the trait has " + std::to_string(cases) + " cases and " + std::to_string(controls) + " controls",
+              "scan this trait without --relatedness (the saddlepoint score test keeps a plain scan of so few "
+              "cases calibrated), or widen the analysis samples");
+}
+
+// All cases in one related group: the polygenic variance and that group's
+// shared risk cannot be told apart.
+void warn_cases_in_one_group(const TraitContext& trait, const LogisticMixedModel& mixed) {
+  for (const auto& component : mixed.components()) {
+    std::size_t cases = 0;
+    for (std::uint32_t sample : component) cases += trait.set.y[sample] == 1.0;
+    if (cases == trait.set.case_count) {
+      current_log().line("warning: trait " + trait.set.trait + ": all " + std::to_string(cases) +
+                         " cases are in one related group of " + std::to_string(component.size()) +
+                         " samples; tau is not identifiable and the scan's p-values rest on it. Check "
+                         "--keep-above and how cases were ascertained");
+      return;
+    }
+  }
+}
+
+void log_logistic_fit(const std::string& trait, const LogisticMixedModel& mixed) {
+  const PqlSummary& pql = mixed.pql();
+  current_log().line("null model " + trait + ": logistic mixed model by penalised quasi-likelihood, tau = " +
+                     format_number(pql.tau) + ", " + std::to_string(pql.iterations) +
+                     " iterations (converged: last change of the linear predictor " +
+                     format_number(pql.last_change) + ")");
+  current_log().detail("  Laplace null fit: tau = " + format_number(mixed.null_laplace().tau) +
+                       ", log-likelihood = " + format_number(mixed.null_laplace().log_likelihood) +
+                       (mixed.null_laplace().converged ? "" : " (not converged)") +
+                       (mixed.null_laplace().tau_held ? " (tau held at the PQL estimate: the Laplace likelihood "
+                                                        "has no maximum near it)" : ""));
+  if (pql.tau_at_zero) {
+    current_log().line("note: trait " + trait + ": the estimate of tau is 0 (no polygenic variance); the mixed "
+                       "model is then the plain logistic model, and the scan goes on");
+  }
+}
+
+}  // namespace
+
+void fit_logistic_mixed_null_model(const ScanRelatedness& relatedness,
+                                   const std::vector<std::string>& genotype_samples, TraitContext& trait) {
+  const std::string& name = trait.set.trait;
+  refuse_too_few_cases(relatedness, trait);
+  const SparseRelatedness among = relatedness_among(relatedness, trait.set.genotype_index);
+  try {
+    LogisticMixedOptions options;
+    options.sample_label = [&](std::uint32_t analysis_idx) {
+      return genotype_samples[trait.set.genotype_index[analysis_idx]];
+    };
+    trait.logistic_mixed = std::make_unique<LogisticMixedModel>(
+        LogisticMixedModel::fit(trait.set.y, trait.model.design, among, options));
+  } catch (const Error& error) {
+    throw Error(error.code(), join_paths(relatedness.paths) + ", trait " + name,
+                error.where().empty() ? error.problem() : error.where() + ": " + error.problem(), error.fix());
+  }
+  const LogisticMixedModel& mixed = *trait.logistic_mixed;
+  log_structure(name, among, mixed.components());
+  log_logistic_fit(name, mixed);
+  warn_cases_in_one_group(trait, mixed);
+  const PqlSummary& pql = mixed.pql();
+  trait.null_model_summary = "logistic mixed model by penalised quasi-likelihood, tau " + format_number(pql.tau) +
+                             ", " + std::to_string(pql.iterations) + " iterations, converged";
+  // The kernel's model: least squares on the whitened working model with the
+  // dispersion fixed at 1, so that its score is g'(y - mu-hat) and its
+  // variance g'Pg.
+  const NullModel plain = std::move(trait.model);
+  trait.model = fit_null_model(name, TraitKind::quantitative, mixed.whiten(mixed.working_response()),
+                               mixed.whiten(mixed.design()), plain.column_names);
+  trait.model.sigma2 = 1.0;
+  trait.model.dropped_columns = plain.dropped_columns;
+}
+
 void fit_mixed_null_model(const ScanRelatedness& relatedness, const std::vector<std::string>& genotype_samples,
                           TraitContext& trait) {
   const std::string& name = trait.set.trait;
   if (trait.set.kind == TraitKind::binary) {
-    throw Error(ExitCode::usage, "--relatedness, trait " + name,
-                "mixed-model scans of binary traits are not available yet (only quantitative traits)",
-                "scan the binary trait in a separate run without --relatedness, or leave out related samples");
+    fit_logistic_mixed_null_model(relatedness, genotype_samples, trait);
+    return;
   }
   const SparseRelatedness among = relatedness_among(relatedness, trait.set.genotype_index);
   try {
@@ -194,6 +318,8 @@ void fit_mixed_null_model(const ScanRelatedness& relatedness, const std::vector<
   }
   log_structure(name, among, trait.mixed->components());
   log_variance_components(name, *trait.mixed);
+  trait.null_model_summary = "linear mixed model by REML, h2 " + format_number(trait.mixed->reml().h2) + ", " +
+                             std::to_string(trait.mixed->reml().iterations) + " iterations";
   // The plain fit has already dropped collinear columns and named them.
   const NullModel plain = std::move(trait.model);
   trait.model = fit_null_model(name, trait.set.kind, trait.mixed->whiten(trait.set.y),

@@ -163,10 +163,13 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
   // The kernels hold references to the models, so they are made once the vector is final.
   for (TraitContext& trait : traits) {
     trait.kernel = make_kernel(trait);
-    trait.tests = trait.mixed ? make_mixed_model(*trait.mixed, kernel_row_of_sample(trait))
-                              : make_plain_model(trait.model, options.penalized_refit);
+    const bool mixed = trait.mixed || trait.logistic_mixed;
+    trait.tests = mixed ? make_mixed_model(trait, kernel_row_of_sample(trait))
+                        : make_plain_model(trait.model, options.penalized_refit);
     if (trait.set.kind == TraitKind::binary && options.binary_score == BinaryScore::saddlepoint) {
-      trait.saddlepoint = std::make_unique<SaddlepointContext>(trait.model);
+      // Under the logistic mixed model, the outcomes are Bernoulli given b-hat.
+      trait.saddlepoint = std::make_unique<SaddlepointContext>(
+          trait.logistic_mixed ? trait.logistic_mixed->conditional_model() : trait.model);
     }
   }
   return traits;
@@ -441,6 +444,7 @@ void write_sidecar(const ScanOptions& options, const TraitContext& trait, const 
   fields.software_version = TAMIS_VERSION;
   fields.adjusted_covariates = options.covariates;
   fields.extra = provenance;
+  if (!trait.null_model_summary.empty()) fields.extra.emplace_back(kNullModelKey, trait.null_model_summary);
   write_metadata_sidecar(path, fields);
 }
 

@@ -12,6 +12,7 @@
 
 #include "tamis/confirm.hpp"
 #include "tamis/null_model.hpp"
+#include "tamis/saddlepoint.hpp"
 #include "tamis/scan.hpp"
 #include "tamis/score_kernel.hpp"
 
@@ -29,6 +30,9 @@ struct KernelInput {
 struct Confirmation {
   ConfirmResult result;
   bool by_firth = false;  // Firth's penalised likelihood replaced the standard refit
+  // The refit failed (separation) and no penalised refit applies: the score
+  // test's p-value stays the row's primary one.
+  bool keeps_score = false;
 };
 
 class TraitModel {
@@ -40,6 +44,16 @@ class TraitModel {
                                     const ImputedDosages& imputed, std::vector<double>& scratch) const = 0;
   // `genotype` holds the variant's imputed dosages over the analysis samples.
   virtual Confirmation confirm(const Eigen::VectorXd& genotype, double minor_allele_count) const = 0;
+  // The variance the saddlepoint approximation gives the score (Bernoulli
+  // outcomes given the model's fitted means) for a variant whose kernel
+  // variance is `score.v`; the score is scaled by the square root of their
+  // ratio before the tail is taken. The same for independent samples.
+  virtual double saddlepoint_variance(const SaddlepointContext& context, const Eigen::VectorXd& genotype,
+                                      const ScoreResult& score) const {
+    (void)context;
+    (void)genotype;
+    return score.v;
+  }
 };
 
 // Least squares or logistic regression of independent samples; binary hits

@@ -585,8 +585,13 @@ void confirm_row(const TraitContext& trait, const Eigen::VectorXd& column, Resul
   const Confirmation confirmation = trait.tests->confirm(column, row.mac);
   if (confirmation.by_firth) ++tally.firth;
   if (!confirmation.result.converged) ++tally.confirm_not_converged;
-  fill_confirmed_columns(confirmation.result, confirmation.by_firth ? "firth_lrt" : "lrt", row);
   ++tally.confirmed;
+  if (confirmation.keeps_score) {
+    // No usable refit: the row stays a score row, its test value saying why.
+    row.test = trait.saddlepoint ? "score_spa_no_refit" : "score_no_refit";
+    return;
+  }
+  fill_confirmed_columns(confirmation.result, confirmation.by_firth ? "firth_lrt" : "lrt", row);
 }
 
 // The saddlepoint tail replaces the normal one beyond its cut-off; below it
@@ -596,7 +601,11 @@ void calibrate_score(const TraitContext& trait, const DosageBlock& block, TraitS
   constexpr double kNormalCutoff = 2.0;
   if (!trait.saddlepoint || score.chisq < kNormalCutoff * kNormalCutoff) return;
   copy_column(trait, block, site_idx, scratch.fills[site_idx], scratch.column);
-  score.log_p = saddlepoint_score_log_p(*trait.saddlepoint, scratch.column, score.u, score.v, kNormalCutoff).log_p;
+  // Scaled so that its variance is the saddlepoint's: the same z-score.
+  const double variance = trait.tests->saddlepoint_variance(*trait.saddlepoint, scratch.column, score);
+  if (!(variance > 0.0)) return;
+  const double u = variance == score.v ? score.u : score.u * std::sqrt(variance / score.v);
+  score.log_p = saddlepoint_score_log_p(*trait.saddlepoint, scratch.column, u, variance, kNormalCutoff).log_p;
 }
 
 std::string describe_discordance(const TraitContext& trait, const ResultRow& row) {
@@ -667,7 +676,7 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block, co
     if (should_confirm(trait, score.log_p)) {
       copy_column(trait, block, site_idx, scratch.fills[site_idx], scratch.column);
       confirm_row(trait, scratch.column, row, output.tally);
-      if (*row.log10p_spread > trait.spread_flag) {
+      if (row.log10p_spread && *row.log10p_spread > trait.spread_flag) {
         ++output.tally.discordant;
         output.discordant_notes.push_back(describe_discordance(trait, row));
       }

@@ -11,6 +11,7 @@
 
 #include "scan/trait_model.hpp"
 #include "tamis/confirm.hpp"
+#include "tamis/logistic_mixed_model.hpp"
 #include "tamis/mixed_model.hpp"
 #include "tamis/saddlepoint.hpp"
 #include "tamis/genotype_reader.hpp"
@@ -26,6 +27,8 @@ struct TraitContext {
   NullModel model;
   std::unique_ptr<ScoreKernel> kernel;
   std::unique_ptr<MixedModel> mixed;   // with --relatedness: the kernel's model is its whitened GLS fit
+  std::unique_ptr<LogisticMixedModel> logistic_mixed;  // the same for a binary trait
+  std::string null_model_summary;      // a mixed model's fit, for the sidecar
   std::unique_ptr<TraitModel> tests;   // the block the kernel reads and the refit of hits
   std::unique_ptr<SaddlepointContext> saddlepoint;  // binary traits with --binary-score spa
   double confirm_below = 1e-4;
