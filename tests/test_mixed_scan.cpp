@@ -229,18 +229,6 @@ TEST_F(MixedScan, ConfirmRefitsChosenVariantsUnderTheMixedModel) {
   for (const auto& fields : confirmed) EXPECT_EQ(fields.at(test_column), "lrt");
 }
 
-TEST_F(MixedScan, BinaryTraitsAreRefusedForNow) {
-  int code = 0;
-  const std::string message = capture_command(
-      tamis_binary() + " scan --genotypes " + cohort() + ".vcf.gz --traits " + cohort() +
-          ".traits.tsv --trait winter_wheeze --covariates age,sex " + matrix() + " --quiet --out " + dir_ +
-          "/binary 2>&1",
-      &code);
-  EXPECT_EQ(code, 2) << message;
-  EXPECT_NE(message.find("binary traits are not available yet"), std::string::npos) << message;
-  EXPECT_FALSE(file_exists(dir_ + "/binary.winter_wheeze.tsv.gz"));
-}
-
 TEST_F(MixedScan, SamplesTheGenotypesLackAreCountedAndIgnored) {
   const std::string file = dir_ + "/with_strangers.tsv";
   write_text_file(file, "sample_1\tsample_2\trelatedness\n"
