@@ -4,6 +4,7 @@
 #include <cmath>
 
 #include "relatedness/component_factor.hpp"
+#include "tamis/mixed_model.hpp"
 
 namespace tamis::detail {
 namespace {
@@ -28,6 +29,25 @@ void solve_dense_lower_in_place(const Eigen::MatrixXd& lower, double* rows, std:
     const double pivot = lower(row, row);
     for (std::size_t col = 0; col < width; ++col) target[col] /= pivot;
   }
+}
+
+// A group whose sparse Cholesky factor would fill in (relatedness spread by
+// population structure) is factored densely: a blocked dense factorisation
+// runs many times faster than a sparse one of the same size.
+bool fills_in(const std::vector<std::uint32_t>& samples, const Eigen::SparseMatrix<double>& lower) {
+  if (samples.size() > kDenseComponentLimit) return false;
+  RelatedComponent component;
+  component.samples = samples;
+  for (Eigen::Index col = 0; col < lower.outerSize(); ++col) {
+    for (Eigen::SparseMatrix<double>::InnerIterator entry(lower, col); entry; ++entry) {
+      if (entry.row() == col) {
+        component.diagonal.push_back(entry.value());
+      } else {
+        component.pairs.emplace_back(static_cast<int>(entry.row()), static_cast<int>(col), entry.value());
+      }
+    }
+  }
+  return sparse_factor_shares(component).work >= kSparseWorkShare;
 }
 
 }  // namespace
@@ -64,7 +84,7 @@ std::shared_ptr<const RelatednessBlocks> RelatednessBlocks::from(
     Eigen::SparseMatrix<double> lower(size, size);
     lower.setFromTriplets(entries[block_idx].begin(), entries[block_idx].end());
     lower.makeCompressed();
-    if (block.samples.size() <= kDenseWorkingLimit) {
+    if (block.samples.size() <= kDenseWorkingLimit || fills_in(block.samples, lower)) {
       const Eigen::SparseMatrix<double> full = lower.selfadjointView<Eigen::Lower>();
       block.dense = Eigen::MatrixXd(full);
     } else {

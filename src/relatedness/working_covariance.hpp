@@ -2,8 +2,9 @@
 // held as Sigma = D^-1 M D^-1 with D = W^1/2 and M = I + tau D A D, and M
 // factored per connected component of A:
 //   - an unrelated sample: M_jj = 1 + tau w_j A_jj;
-//   - a component up to kDenseWorkingLimit samples: a dense Cholesky factor;
-//   - a larger one: a sparse Cholesky factor in a fill-reducing order (its
+//   - a component up to kDenseWorkingLimit samples, or one whose sparse
+//     factor would fill in (up to kDenseComponentLimit): a dense Cholesky factor;
+//   - any other: a sparse Cholesky factor in a fill-reducing order (its
 //     pattern, that of A_c, analysed once; only the values change with W and
 //     tau), so a pedigree of thousands costs what its factor's nonzeros cost.
 // Unlike the linear model's H(h2), M changes with W at every iteration of

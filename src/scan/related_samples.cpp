@@ -218,6 +218,24 @@ namespace {
 
 // A logistic mixed model is estimable only with enough of both outcomes.
 constexpr std::size_t kFewestCasesOrControls = 10;
+// The logistic model's working covariance changes with W at every
+// iteration, so each related group is factored afresh hundreds of times in a
+// fit: beyond this size that takes hours, and such groups come from
+// population structure rather than families.
+constexpr std::size_t kLargestBinaryGroup = 1000;
+
+void refuse_large_groups(const ScanRelatedness& relatedness, const TraitContext& trait,
+                         const SparseRelatedness& among) {
+  std::size_t largest = 0;
+  for (const auto& component : related_components(among)) largest = std::max(largest, component.size());
+  if (largest <= kLargestBinaryGroup) return;
+  throw Error(ExitCode::model, join_paths(relatedness.paths) + ", trait " + trait.set.trait,
+              "one related group holds " + std::to_string(largest) + " of the analysis samples; the logistic "
+                  "mixed model of a binary trait handles groups of up to " + std::to_string(kLargestBinaryGroup) +
+                  " (relatedness this widespread comes from population structure, not families)",
+              "recompute the matrix with a higher --keep-above in `tamis relatedness` (0.1 keeps most cousins "
+              "and keeps families apart), and adjust for structure with principal components as covariates");
+}
 
 void refuse_too_few_cases(const ScanRelatedness& relatedness, const TraitContext& trait) {
   const std::size_t cases = trait.set.case_count, controls = trait.set.control_count;
@@ -270,6 +288,7 @@ void fit_logistic_mixed_null_model(const ScanRelatedness& relatedness,
   const std::string& name = trait.set.trait;
   refuse_too_few_cases(relatedness, trait);
   const SparseRelatedness among = relatedness_among(relatedness, trait.set.genotype_index);
+  refuse_large_groups(relatedness, trait, among);
   try {
     LogisticMixedOptions options;
     options.sample_label = [&](std::uint32_t analysis_idx) {
