@@ -9,14 +9,16 @@
 #    `tamis relatedness`, then runs the plain scan and the mixed-model scan
 #    (`--relatedness`) of the binary trait winter_wheeze, interleaved ROUNDS
 #    times at THREADS threads, and prints the median wall times, their ratio
-#    (target: at most 2) and the median peak memory (GNU time -v).
+#    (target: at most 2) and the median peak memory (GNU time -v); the same
+#    again as score-only screens (--confirm-below 0), which leave out the
+#    confirmation refits of the hits (six variants are planted).
 # 2. Simulates FIT_SAMPLES samples (50,000) with 30% in families and a
-#    handful of variants (FIT_VARIANTS, 64), takes their relatedness from the
+#    handful of null variants (FIT_VARIANTS, 64), takes their relatedness from the
 #    pedigree (PREFIX.families.tsv; the tabular method: 1/2 for parent and
 #    child or full siblings, 1/4 half-siblings, 1/8 first cousins), and times
-#    the binary scan with and without the matrix at --threads 1, interleaved
-#    ROUNDS times: with so few variants the difference is the null fit
-#    (target: under 60 s on one core). The mixed scan's log is printed: it
+#    the binary scan with and without the matrix at --threads 1 and
+#    --confirm-below 0, interleaved ROUNDS times: with so few variants and no
+#    refits the difference is the null fit (target: under 60 s on one core). The mixed scan's log is printed: it
 #    gives tau, the PQL iterations and their time.
 #
 # Environment: SAMPLES, VARIANTS, PREVALENCE (0.1), ROUNDS (3), THREADS (2),
@@ -63,21 +65,27 @@ if [ ! -e "$cohort.bcf" ]; then
 fi
 "$tamis" relatedness --genotypes "$cohort.bcf" --keep-above "$keep_above" --threads "$threads" --quiet \
   --out "$cohort"
-: > "$data/plain.times"; : > "$data/mixed.times"
+: > "$data/plain.times"; : > "$data/mixed.times"; : > "$data/plain_screen.times"; : > "$data/mixed_screen.times"
+matrix=(--relatedness "$cohort.relatedness.tsv.gz")
 for round in $(seq "$rounds"); do
   scan_times plain "$cohort.bcf" "$cohort.traits.tsv" "$threads"
-  scan_times mixed "$cohort.bcf" "$cohort.traits.tsv" "$threads" --relatedness "$cohort.relatedness.tsv.gz"
+  scan_times mixed "$cohort.bcf" "$cohort.traits.tsv" "$threads" "${matrix[@]}"
+  scan_times plain_screen "$cohort.bcf" "$cohort.traits.tsv" "$threads" --confirm-below 0
+  scan_times mixed_screen "$cohort.bcf" "$cohort.traits.tsv" "$threads" --confirm-below 0 "${matrix[@]}"
 done
-grep "cases\|null model\|related groups" "$data/mixed.log"
+grep "cases\|null model\|Laplace\|related groups\|confirmed" "$data/mixed.log"
 echo "samples $samples, variants $variants, prevalence $prevalence, threads $threads, rounds $rounds (BCF)"
 report plain "plain binary scan"
 report mixed "binary mixed-model scan"
 echo "mixed / plain: $(ratio mixed plain) (target <= 2)"
+report plain_screen "plain binary screen (--confirm-below 0)"
+report mixed_screen "binary mixed-model screen (--confirm-below 0)"
+echo "mixed / plain, screens: $(ratio mixed_screen plain_screen)"
 
 # 2. The null fit at FIT_SAMPLES samples, relatedness from the pedigree.
 fit="$data/fit$fit_samples"
 if [ ! -e "$fit.pedigree.tsv" ]; then
-  "$tamis" simulate --out "$fit" --samples "$fit_samples" --variants "$fit_variants" --seed 2027 \
+  "$tamis" simulate --out "$fit" --samples "$fit_samples" --variants "$fit_variants" --seed 2027 --causal 0 \
     --families 0.3 --heritability 0.5 --prevalence "$prevalence" 2>/dev/null
   # The tabular method, family by family (parents come before their
   # children in families.tsv): A_jj = 1 + A_fm / 2 and A_ij = (A_if + A_im) / 2
@@ -101,10 +109,10 @@ if [ ! -e "$fit.pedigree.tsv" ]; then
 fi
 : > "$data/fit_plain.times"; : > "$data/fit_mixed.times"
 for round in $(seq "$rounds"); do
-  scan_times fit_plain "$fit.vcf.gz" "$fit.traits.tsv" 1
-  scan_times fit_mixed "$fit.vcf.gz" "$fit.traits.tsv" 1 --relatedness "$fit.pedigree.tsv"
+  scan_times fit_plain "$fit.vcf.gz" "$fit.traits.tsv" 1 --confirm-below 0
+  scan_times fit_mixed "$fit.vcf.gz" "$fit.traits.tsv" 1 --confirm-below 0 --relatedness "$fit.pedigree.tsv"
 done
-grep "cases\|null model\|related groups\|wall time" "$data/fit_mixed.log"
+grep "cases\|null model\|Laplace\|related groups\|wall time" "$data/fit_mixed.log"
 echo "samples $fit_samples ($(awk -F'\t' 'NR > 1 && $5 != "ancestor" && $1 != "NA"' "$fit.families.tsv" | wc -l) in families)," \
   "variants $fit_variants, threads 1, rounds $rounds"
 report fit_plain "plain binary scan"

@@ -256,8 +256,8 @@ std::string confirmed_rows(const std::string& text) {
 }
 
 TEST_F(BinaryMixedScan, OneAndFourThreadsGiveIdenticalFiles) {
-  ASSERT_EQ(run_command(scan("one", "--confirm-below 0.01", 1)), 0);
-  ASSERT_EQ(run_command(scan("four", "--confirm-below 0.01", 4)), 0);
+  ASSERT_EQ(run_command(scan("one", "--confirm-below 1e-3", 1)), 0);
+  ASSERT_EQ(run_command(scan("four", "--confirm-below 1e-3", 4)), 0);
   const std::string confirmed = confirmed_rows(read_gzip_file(results("one")));
   EXPECT_GT(std::count(confirmed.begin(), confirmed.end(), '\n'), 2) << "hits were refitted";
   EXPECT_TRUE(read_text_file(results("one")) == read_text_file(results("four")));
