@@ -9,6 +9,7 @@
 #include <cmath>
 #include <cstdio>
 
+#include "support/calibration.hpp"
 #include "support/test_support.hpp"
 
 namespace tamis::testing {
@@ -109,36 +110,6 @@ Pooled pool_scans(const std::vector<std::string>& paths) {
     }
   }
   return pooled;
-}
-
-// Genomic control: median(T) / 0.454936, the median of chi2(1) (Devlin &
-// Roeder 1999, Biometrics 55:997-1004).
-double lambda_gc(std::vector<double> chisq) {
-  std::sort(chisq.begin(), chisq.end());
-  const std::size_t n = chisq.size();
-  const double median = n % 2 ? chisq[n / 2] : 0.5 * (chisq[n / 2 - 1] + chisq[n / 2]);
-  return median / 0.454936;
-}
-
-// P(X <= k) for X ~ Binomial(n, p), summed in log space.
-double binomial_cdf(std::size_t k, std::size_t n, double p) {
-  double total = 0.0;
-  for (std::size_t x = 0; x <= k; ++x) {
-    const double log_term = std::lgamma(n + 1.0) - std::lgamma(x + 1.0) - std::lgamma(n - x + 1.0) +
-                            x * std::log(p) + (n - x) * std::log1p(-p);
-    total += std::exp(log_term);
-  }
-  return total;
-}
-
-// The central 99.9% interval of Binomial(n, p): [lo, hi] with
-// P(X < lo) <= 0.0005 and P(X > hi) <= 0.0005.
-std::pair<std::size_t, std::size_t> binomial_bounds(std::size_t n, double p) {
-  std::size_t lo = 0;
-  while (binomial_cdf(lo, n, p) <= 0.0005) ++lo;
-  std::size_t hi = lo;
-  while (1.0 - binomial_cdf(hi, n, p) > 0.0005) ++hi;
-  return {lo, hi};
 }
 
 std::vector<std::string> scans_named(const std::string& name, const std::string& dir) {
