@@ -300,13 +300,17 @@ TEST_F(BinaryMixedScan, ResumeAfterAKillGivesTheWholeScan) {
   EXPECT_TRUE(read_text_file(results("whole") + ".tbi") == read_text_file(results("killed") + ".tbi"));
 }
 
-// A copy of the cohort's table in which only `kept` analysis samples keep
-// the value `rare_value` of winter_wheeze and every other non-missing value
-// becomes the other one; missing values stay missing, so the analysis
-// samples stay the same. Analysis samples, for the covariates age and sex:
-// in the genotype files, with the trait, age and sex all present.
-std::string table_with_few(const std::string& cohort, const std::string& rare_value, std::size_t kept,
-                           const std::string& path) {
+// The cohort's table, each row marked if it is an analysis sample of
+// winter_wheeze with the covariates age and sex: in the genotype files, with
+// the trait, age and sex all present.
+struct CohortTable {
+  std::string header;
+  std::size_t trait_column = 0;
+  std::vector<std::vector<std::string>> rows;
+  std::vector<bool> analysed;
+};
+
+CohortTable read_cohort_table(const std::string& cohort) {
   const std::string vcf = read_gzip_file(cohort + ".vcf.gz");
   const std::size_t header_start = vcf.find("#CHROM");
   const std::vector<std::string> vcf_columns =
@@ -314,52 +318,102 @@ std::string table_with_few(const std::string& cohort, const std::string& rare_va
   const std::vector<std::string> genotyped(vcf_columns.begin() + 9, vcf_columns.end());
 
   const std::vector<std::string> lines = lines_of(read_text_file(cohort + ".traits.tsv"));
-  const std::size_t trait_column = column_of(lines.at(0), kTrait);
-  const std::size_t age_column = column_of(lines.at(0), "age");
-  const std::size_t sex_column = column_of(lines.at(0), "sex");
-  const std::string other_value = rare_value == "1" ? "0" : "1";
-  std::string table = lines.at(0) + "\n";
-  std::size_t given = 0;
+  CohortTable table;
+  table.header = lines.at(0);
+  table.trait_column = column_of(table.header, kTrait);
+  const std::size_t age_column = column_of(table.header, "age");
+  const std::size_t sex_column = column_of(table.header, "sex");
   for (std::size_t line_idx = 1; line_idx < lines.size(); ++line_idx) {
     std::vector<std::string> fields = split_fields(lines[line_idx]);
-    std::string& value = fields.at(trait_column);
-    if (value != "NA") {
-      const bool analysed = fields.at(age_column) != "NA" && fields.at(sex_column) != "NA" &&
-                            std::find(genotyped.begin(), genotyped.end(), fields.at(0)) != genotyped.end();
-      value = analysed && given < kept ? rare_value : other_value;
-      if (value == rare_value) ++given;
-    }
-    for (std::size_t field_idx = 0; field_idx < fields.size(); ++field_idx) {
-      table += (field_idx ? "\t" : "") + fields[field_idx];
-    }
-    table += "\n";
+    table.analysed.push_back(fields.at(table.trait_column) != "NA" && fields.at(age_column) != "NA" &&
+                             fields.at(sex_column) != "NA" &&
+                             std::find(genotyped.begin(), genotyped.end(), fields.at(0)) != genotyped.end());
+    table.rows.push_back(std::move(fields));
   }
-  write_text_file(path, table);
-  return path;
+  return table;
+}
+
+void write_cohort_table(const CohortTable& table, const std::string& path) {
+  std::string text = table.header + "\n";
+  for (const auto& fields : table.rows) {
+    for (std::size_t field_idx = 0; field_idx < fields.size(); ++field_idx) {
+      text += (field_idx ? "\t" : "") + fields[field_idx];
+    }
+    text += "\n";
+  }
+  write_text_file(path, text);
 }
 
 TEST_F(BinaryMixedScan, TooFewCasesOrControlsAreRefusedNamingTheCounts) {
-  // The analysis samples of winter_wheeze with age and sex as covariates,
-  // from a plain scan of the unchanged table.
-  ASSERT_EQ(run_command(tamis_binary() + " scan" + inputs_of(cohort(), cohort() + ".traits.tsv", "age,sex") +
-                        " --confirm-below 0 --out " + out("counts")),
-            0);
-  const std::string log = read_text_file(out("counts") + ".log");
-  const auto [all_cases, all_controls] = case_control_counts(log);
-  const std::size_t analysed = all_cases + all_controls;
+  const CohortTable original = read_cohort_table(cohort());
+  const std::size_t analysed =
+      static_cast<std::size_t>(std::count(original.analysed.begin(), original.analysed.end(), true));
   for (const std::string rare_value : {"1", "0"}) {
-    const std::string table = table_with_few(cohort(), rare_value, 8, out("few" + rare_value + ".tsv"));
+    // Only the first 8 analysis samples keep `rare_value`; every other
+    // non-missing value becomes the other one, so the analysis samples stay.
+    CohortTable table = original;
+    std::size_t given = 0;
+    for (std::size_t row_idx = 0; row_idx < table.rows.size(); ++row_idx) {
+      std::string& value = table.rows[row_idx].at(table.trait_column);
+      if (value == "NA") continue;
+      const bool rare = table.analysed[row_idx] && given < 8;
+      value = rare == (rare_value == "1") ? "1" : "0";
+      given += rare;
+    }
+    const std::string path = out("few" + rare_value + ".tsv");
+    write_cohort_table(table, path);
     int code = 0;
     const std::string message = capture_command(
-        tamis_binary() + " scan" + inputs_of(cohort(), table, "age,sex") + " " + matrix_of(cohort()) + " --out " +
+        tamis_binary() + " scan" + inputs_of(cohort(), path, "age,sex") + " " + matrix_of(cohort()) + " --out " +
             out("few" + rare_value) + " 2>&1",
         &code);
     const std::size_t cases = rare_value == "1" ? 8 : analysed - 8;
     EXPECT_NE(code, 0) << message;
-    EXPECT_NE(message.find(std::to_string(cases) + " cases"), std::string::npos) << message;
-    EXPECT_NE(message.find(std::to_string(analysed - cases) + " controls"), std::string::npos) << message;
+    EXPECT_NE(message.find(" " + std::to_string(cases) + " cases"), std::string::npos) << message;
+    EXPECT_NE(message.find(" " + std::to_string(analysed - cases) + " controls"), std::string::npos) << message;
     EXPECT_FALSE(file_exists(results("few" + rare_value)));
   }
+}
+
+TEST_F(BinaryMixedScan, LogAndSidecarReportTheNullFit) {
+  ASSERT_EQ(run_command(scan("logged", "--confirm-below 1e-3")), 0);
+  const std::string log = read_text_file(out("logged") + ".log");
+  EXPECT_NE(log.find("null model winter_wheeze: logistic mixed model by penalised quasi-likelihood, tau = "),
+            std::string::npos)
+      << log;
+  EXPECT_NE(log.find("  Laplace null fit: tau = "), std::string::npos) << log;
+  EXPECT_NE(log.find("related groups (largest "), std::string::npos) << log;
+  const std::string sidecar = read_text_file(results("logged") + "-meta.yaml");
+  EXPECT_NE(sidecar.find("tamis_relatedness: cohort.relatedness.tsv.gz md5 "), std::string::npos) << sidecar;
+  EXPECT_NE(sidecar.find("tamis_null_model: logistic mixed model by penalised quasi-likelihood, tau "),
+            std::string::npos)
+      << sidecar;
+}
+
+TEST_F(BinaryMixedScan, CasesAllInOneRelatedGroupAreWarnedAbout) {
+  // A matrix that chains every case among the analysis samples to the next
+  // (relatedness 0.5: a tridiagonal A with eigenvalues 1 + cos(k pi / (m + 1)),
+  // all positive) and leaves the controls unrelated.
+  const CohortTable table = read_cohort_table(cohort());
+  std::vector<std::string> cases;
+  for (std::size_t row_idx = 0; row_idx < table.rows.size(); ++row_idx) {
+    if (table.analysed[row_idx] && table.rows[row_idx].at(table.trait_column) == "1") {
+      cases.push_back(table.rows[row_idx].at(0));
+    }
+  }
+  std::string chain = "sample_1\tsample_2\trelatedness\n";
+  for (std::size_t case_idx = 1; case_idx < cases.size(); ++case_idx) {
+    chain += cases[case_idx - 1] + "\t" + cases[case_idx] + "\t0.5\n";
+  }
+  write_text_file(out("chain.tsv"), chain);
+  ASSERT_EQ(run_command(tamis_binary() + " scan" + inputs_of(cohort(), cohort() + ".traits.tsv", "age,sex") +
+                        " --relatedness " + out("chain.tsv") + " --confirm-below 0 --out " + out("chained")),
+            0);
+  const std::string log = read_text_file(out("chained") + ".log");
+  EXPECT_NE(log.find("warning: trait winter_wheeze: all " + std::to_string(cases.size()) +
+                     " cases are in one related group of " + std::to_string(cases.size()) + " samples"),
+            std::string::npos)
+      << log;
 }
 
 }  // namespace
