@@ -8,7 +8,10 @@
 
 #include <algorithm>
 #include <cstdio>
-#include <map>
+#include <stdexcept>
+#include <string>
+#include <utility>
+#include <vector>
 
 #include "support/calibration.hpp"
 #include "support/test_support.hpp"
