@@ -35,14 +35,15 @@ constexpr double kSmallestWeight = 1e-12;
 // The conditional mode of b and the Laplace fits over beta stop when their
 // steps fall below these.
 constexpr double kModeTolerance = 1e-10;
-constexpr double kBetaTolerance = 1e-8;
+constexpr double kBetaTolerance = 1e-7;
 constexpr int kModeSteps = 100;
 constexpr int kBetaSteps = 50;
 constexpr int kHalvings = 30;
-constexpr int kWalkSteps = 8;
+constexpr int kWalkSteps = 6;
+constexpr int kParabolaSteps = 8;
 // The Laplace likelihood is flat near its maximum in tau: this settles it
 // far below the precision any LR needs.
-constexpr double kLaplaceHTolerance = 1e-7;
+constexpr double kTauTolerance = 1e-6;
 
 double tau_of(double h) { return h / (1.0 - h); }
 
@@ -295,10 +296,30 @@ TauMaximum local_tau_maximum(const std::function<double(double)>& at_tau, double
     }
   }
   if (best + 1 == taus.size()) return {tau_start, true};
-  const double lower = best > 0 ? taus[best - 1] : 0.0, upper = taus[best + 1];
-  const detail::IntervalMaximum maximum = detail::maximise_on_interval(
-      [&](double h) { return at_tau(tau_of(h)); }, lower / (1.0 + lower), upper / (1.0 + upper), kLaplaceHTolerance);
-  return {maximum.value >= value_at(best) ? tau_of(maximum.x) : taus[best], false};
+  if (best == 0) return {0.0, false};
+  // Successive parabolic interpolation inside the bracket x1 < x2 < x3,
+  // f(x2) >= f(x1), f(x3) (Brent 1973, ch. 5): the likelihood is smooth and
+  // nearly quadratic there, so a few steps settle tau far below any LR's
+  // precision.
+  double x1 = taus[best - 1], x2 = taus[best], x3 = taus[best + 1];
+  double f1 = value_at(best - 1), f2 = value_at(best), f3 = value_at(best + 1);
+  for (int step = 0; step < kParabolaSteps; ++step) {
+    const double numerator = (x2 - x1) * (x2 - x1) * (f2 - f3) - (x2 - x3) * (x2 - x3) * (f2 - f1);
+    const double denominator = (x2 - x1) * (f2 - f3) - (x2 - x3) * (f2 - f1);
+    if (!(std::abs(denominator) > 0.0)) break;
+    const double next = std::clamp(x2 - 0.5 * numerator / denominator, x1, x3);
+    if (std::abs(next - x2) <= kTauTolerance * (1.0 + x2)) break;
+    const double f_next = at_tau(next);
+    if (f_next > f2) {
+      if (next < x2) x3 = x2, f3 = f2; else x1 = x2, f1 = f2;
+      x2 = next, f2 = f_next;
+    } else if (next < x2) {
+      x1 = next, f1 = f_next;
+    } else {
+      x3 = next, f3 = f_next;
+    }
+  }
+  return {x2, false};
 }
 
 // The Laplace fit over tau (on h = tau / (1 + tau)) and beta; each tau

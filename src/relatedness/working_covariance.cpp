@@ -149,11 +149,12 @@ bool WorkingCovariance::factor(const Eigen::VectorXd& root_weights, double tau) 
       if (!(pivots.array() > 0.0).all() || !pivots.allFinite()) return false;
       continue;
     }
-    Eigen::MatrixXd m = tau * d.asDiagonal() * block.dense * d.asDiagonal();
-    m.diagonal().array() += 1.0;
-    Eigen::LLT<Eigen::MatrixXd> llt(m);
+    // In place, in the factor's own storage: a fit factors thousands of times.
+    factor.lower.noalias() = tau * d.asDiagonal() * block.dense * d.asDiagonal();
+    factor.lower.diagonal().array() += 1.0;
+    Eigen::LLT<Eigen::Ref<Eigen::MatrixXd>> llt(factor.lower);
     if (llt.info() != Eigen::Success) return false;
-    factor.lower = llt.matrixL();
+    factor.lower.triangularView<Eigen::StrictlyUpper>().setZero();
     if (!(factor.lower.diagonal().array() > 0.0).all() || !factor.lower.allFinite()) return false;
   }
   return true;
