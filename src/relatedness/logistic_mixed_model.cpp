@@ -40,7 +40,7 @@ constexpr int kModeSteps = 100;
 constexpr int kBetaSteps = 50;
 constexpr int kHalvings = 30;
 constexpr int kWalkSteps = 6;
-constexpr int kParabolaSteps = 8;
+constexpr int kParabolaSteps = 30;
 // The Laplace likelihood is flat near its maximum in tau: this settles it
 // far below the precision any LR needs.
 constexpr double kTauTolerance = 1e-6;
@@ -274,7 +274,8 @@ struct TauMaximum {
   bool held = false;
 };
 
-TauMaximum local_tau_maximum(const std::function<double(double)>& at_tau, double tau_start) {
+TauMaximum local_tau_maximum(const std::function<double(double)>& at_tau, double tau_start,
+                              double tolerance = kTauTolerance) {
   // The walk's points: 0, then tau_start x 1.5^k (k from -kWalkSteps), or
   // 0.01 x 1.5^k from tau = 0.
   const double base = tau_start > 0.0 ? tau_start : 0.01;
@@ -308,7 +309,7 @@ TauMaximum local_tau_maximum(const std::function<double(double)>& at_tau, double
     const double denominator = (x2 - x1) * (f2 - f3) - (x2 - x3) * (f2 - f1);
     if (!(std::abs(denominator) > 0.0)) break;
     const double next = std::clamp(x2 - 0.5 * numerator / denominator, x1, x3);
-    if (std::abs(next - x2) <= kTauTolerance * (1.0 + x2)) break;
+    if (std::abs(next - x2) <= tolerance * (1.0 + x2)) break;
     const double f_next = at_tau(next);
     if (f_next > f2) {
       if (next < x2) x3 = x2, f3 = f2; else x1 = x2, f1 = f2;
@@ -320,6 +321,20 @@ TauMaximum local_tau_maximum(const std::function<double(double)>& at_tau, double
     }
   }
   return {x2, false};
+}
+
+// tau on one working model: a search of the whole range [0, 999] at first
+// (or from tau = 0), then the local maximum from the last iteration's
+// estimate, which moves little from one working model to the next (the
+// whole range again should the walk find no maximum).
+double working_tau(const std::function<double(double)>& reml_at_tau, double previous_tau) {
+  if (previous_tau > 0.0) {
+    const TauMaximum local = local_tau_maximum(reml_at_tau, previous_tau, kHTolerance);
+    if (!local.held) return local.tau;
+  }
+  const detail::IntervalMaximum best = detail::maximise_on_interval(
+      [&](double h) { return reml_at_tau(tau_of(h)); }, 0.0, kLargestH, kHTolerance);
+  return best.at_lower ? 0.0 : tau_of(best.x);
 }
 
 // The Laplace fit over tau (on h = tau / (1 + tau)) and beta; each tau
@@ -334,7 +349,7 @@ struct LaplaceSearch {
 
 LaplaceSearch search_laplace(detail::WorkingCovariance& covariance, const Eigen::VectorXd& y,
                              const Eigen::MatrixXd& basis, double tau_start, const Eigen::VectorXd& gamma_start,
-                             const RandomEffects& effects_start) {
+                             const RandomEffects& effects_start, bool hold_tau) {
   LaplaceSearch search;
   Eigen::VectorXd gamma = gamma_start;
   RandomEffects effects = effects_start;
@@ -346,7 +361,7 @@ LaplaceSearch search_laplace(detail::WorkingCovariance& covariance, const Eigen:
     effects = fit.mode.effects;
     return fit.mode.log_likelihood;
   };
-  const TauMaximum maximum = local_tau_maximum(evaluate, tau_start);
+  const TauMaximum maximum = hold_tau ? TauMaximum{tau_start, true} : local_tau_maximum(evaluate, tau_start);
   search.tau = maximum.tau;
   search.tau_held = maximum.held;
   search.best = laplace_at_tau(covariance, y, basis, search.tau, gamma, effects);
@@ -441,13 +456,13 @@ LogisticMixedModel LogisticMixedModel::fit(const Eigen::VectorXd& y, const Eigen
   for (int iteration = 1; iteration <= options.max_iterations; ++iteration) {
     summary.iterations = iteration;
     const WorkingPoint point = working_point(y, eta);
-    auto reml_at = [&](double h) {
-      if (!state.covariance.factor(point.root_w, tau_of(h))) return -HUGE_VAL;
+    auto reml_at_tau = [&](double candidate) {
+      if (!state.covariance.factor(point.root_w, candidate)) return -HUGE_VAL;
       return working_reml(state.covariance, gls_fit(state.covariance, state.basis, point), point,
                           state.log_det_r_squared, options.variance);
     };
-    const detail::IntervalMaximum best = detail::maximise_on_interval(reml_at, 0.0, kLargestH, kHTolerance);
-    const double next_tau = best.at_lower ? 0.0 : tau_of(best.x);
+    const double next_tau = working_tau(reml_at_tau, tau);
+    const double best_value = reml_at_tau(next_tau);
     if (!state.covariance.factor(point.root_w, next_tau)) break;
     const GlsFit gls = gls_fit(state.covariance, state.basis, point);
     if (!gls.ok) break;
@@ -458,7 +473,7 @@ LogisticMixedModel LogisticMixedModel::fit(const Eigen::VectorXd& y, const Eigen
     const double tau_change = std::abs(next_tau - tau);
     eta = next_eta;
     tau = next_tau;
-    summary.reml_log_likelihood = best.value;
+    summary.reml_log_likelihood = best_value;
     if (change < options.tolerance && tau_change <= options.tolerance * std::max(1.0, tau)) {
       summary.converged = true;
       break;
@@ -489,7 +504,8 @@ LogisticMixedModel LogisticMixedModel::fit(const Eigen::VectorXd& y, const Eigen
 
   // The Laplace fit of the null model, from the PQL estimates.
   detail::WorkingCovariance laplace_covariance(state.blocks);
-  const LaplaceSearch search = search_laplace(laplace_covariance, y, state.basis, tau, gamma, state.effects);
+  const LaplaceSearch search =
+      search_laplace(laplace_covariance, y, state.basis, tau, gamma, state.effects, /*hold_tau=*/false);
   state.null_gamma = search.best.gamma;
   state.null_effects = search.best.mode.effects;
   state.null_laplace.tau = search.tau;
@@ -574,9 +590,12 @@ LogisticMixedModel::Confirmed LogisticMixedModel::confirm_fit(const Eigen::Vecto
   gamma_start << state.null_gamma, 0.0;
   detail::WorkingCovariance covariance(state.blocks);
   const LaplaceSearch search =
-      search_laplace(covariance, state.y, basis, state.null_laplace.tau, gamma_start, state.null_effects);
-  // The null fit is the full model with the variant's coefficient at 0, so
-  // the full maximum is at least the null's: LR >= 0.
+      search_laplace(covariance, state.y, basis, state.null_laplace.tau, gamma_start, state.null_effects,
+                     /*hold_tau=*/state.null_laplace.tau_held);
+  // Where the null fit's tau is held (no maximum near the PQL estimate), the
+  // full model's is held at the same value: an LR at fixed tau. The null
+  // fit is the full model with the variant's coefficient at 0, so the full
+  // maximum is at least the null's: LR >= 0.
   const double lr = std::max(0.0, 2.0 * (search.best.mode.log_likelihood - state.null_laplace.log_likelihood));
   const Eigen::Index last = state.p;
   const double variance = search.best.information.inverse()(last, last);
