@@ -85,9 +85,12 @@ void impute_into(const GatheredBlock& gathered, std::size_t width, const double*
   }
 }
 
-class MixedLinearModel : public TraitModel {
+// A mixed model's part in common: the kernel reads the block with its
+// missing dosages imputed, then whitened by the model.
+template <typename Model>
+class WhitenedBlocks : public TraitModel {
  public:
-  MixedLinearModel(const MixedModel& mixed, std::vector<std::size_t> row_of_sample)
+  WhitenedBlocks(const Model& mixed, std::vector<std::size_t> row_of_sample)
       : mixed_(mixed), row_of_sample_(std::move(row_of_sample)) {}
 
   KernelInput prepare_block(const GatheredBlock& gathered, std::size_t width, const double* fills,
@@ -97,13 +100,18 @@ class MixedLinearModel : public TraitModel {
     return {scratch.data(), nullptr};
   }
 
+ protected:
+  const Model& mixed_;
+  std::vector<std::size_t> row_of_sample_;
+};
+
+class MixedLinearModel : public WhitenedBlocks<MixedModel> {
+ public:
+  using WhitenedBlocks::WhitenedBlocks;
+
   Confirmation confirm(const Eigen::VectorXd& genotype, double) const override {
     return {mixed_.confirm(genotype), false, false};
   }
-
- private:
-  const MixedModel& mixed_;
-  std::vector<std::size_t> row_of_sample_;
 };
 
 // The logistic mixed model's part: the kernel reads the block whitened by
@@ -112,17 +120,9 @@ class MixedLinearModel : public TraitModel {
 // Laplace likelihoods, and where that refit fails (a separated rare
 // variant; Firth's penalty has no mixed-model form here) the score test's
 // saddlepoint p-value stays the primary one.
-class MixedLogisticModel : public TraitModel {
+class MixedLogisticModel : public WhitenedBlocks<LogisticMixedModel> {
  public:
-  MixedLogisticModel(const LogisticMixedModel& mixed, std::vector<std::size_t> row_of_sample)
-      : mixed_(mixed), row_of_sample_(std::move(row_of_sample)) {}
-
-  KernelInput prepare_block(const GatheredBlock& gathered, std::size_t width, const double* fills,
-                            const ImputedDosages&, std::vector<double>& scratch) const override {
-    impute_into(gathered, width, fills, scratch);
-    mixed_.whiten_block(scratch.data(), width, row_of_sample_);
-    return {scratch.data(), nullptr};
-  }
+  using WhitenedBlocks::WhitenedBlocks;
 
   Confirmation confirm(const Eigen::VectorXd& genotype, double) const override {
     Confirmation confirmation;
@@ -135,10 +135,6 @@ class MixedLogisticModel : public TraitModel {
                               const ScoreResult&) const override {
     return context.bernoulli_variance(genotype);
   }
-
- private:
-  const LogisticMixedModel& mixed_;
-  std::vector<std::size_t> row_of_sample_;
 };
 
 }  // namespace
