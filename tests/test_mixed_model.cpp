@@ -627,11 +627,7 @@ TEST(MixedModel, GenotypeInTheCovariateSpanIsNotEstimable) {
   const Cohort cohort = family_cohort(17, 60);
   const MixedModel model = MixedModel::fit(cohort.y, cohort.design, cohort.relatedness);
   const tamis::ConfirmResult result = model.confirm(2.0 * cohort.design.col(2) + 1.0 * cohort.design.col(0));
-  EXPECT_FALSE(result.converged);
-  EXPECT_EQ(result.wald_chisq, 0.0);
-  EXPECT_EQ(result.lrt_chisq, 0.0);
-  EXPECT_EQ(result.wald_log_p, 0.0);
-  EXPECT_EQ(result.lrt_log_p, 0.0);
+  tamis::testing::expect_not_estimable(result);
 }
 
 TEST(MixedModel, CollinearDesignColumnsAreDroppedAsInThePlainModel) {

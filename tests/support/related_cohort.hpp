@@ -11,7 +11,10 @@
 #include <string>
 #include <vector>
 
+#include <gtest/gtest.h>
+
 #include "support/test_support.hpp"
+#include "tamis/confirm.hpp"
 #include "tamis/relatedness.hpp"
 
 namespace tamis::testing {
@@ -91,6 +94,15 @@ inline std::string write_pairs(const SparseRelatedness& relatedness, const std::
   const std::string path = dir + "/pairs.tsv";
   write_text_file(path, text.str());
   return path;
+}
+
+// A refit of a genotype in the covariate span: not estimable, every statistic 0.
+inline void expect_not_estimable(const ConfirmResult& result) {
+  EXPECT_FALSE(result.converged);
+  EXPECT_EQ(result.wald_chisq, 0.0);
+  EXPECT_EQ(result.lrt_chisq, 0.0);
+  EXPECT_EQ(result.wald_log_p, 0.0);
+  EXPECT_EQ(result.lrt_log_p, 0.0);
 }
 
 }  // namespace tamis::testing
