@@ -1,0 +1,103 @@
+// Variant-set tests from per-variant scores: the burden test, the
+// variance-component test, their optimal combination, and Cauchy
+// combinations of p-values. Pure computation: no I/O.
+//
+// Every test reads the same two things, computed against the trait's one
+// null fit: the scores U (m values) and their null covariance Phi (m x m).
+// With per-variant weights w, Z = diag(w) U has covariance K = diag(w) Phi diag(w).
+#pragma once
+
+#include <Eigen/Dense>
+#include <vector>
+
+namespace tamis {
+
+// ---- tails of mixtures of chi-square(1) variables --------------------------
+
+// How mixture_chisq_upper_tail reached its value.
+enum class MixtureTailMethod {
+  single_chisq,     // one non-zero eigenvalue: the chi-square(1) tail itself
+  davies,           // characteristic-function inversion (Davies 1980) at its target accuracy
+  saddlepoint,      // far tail: saddlepoint approximation (Kuonen 1999)
+  moment_matching,  // Davies did not reach its accuracy and the saddlepoint did not apply (Liu et al. 2009)
+};
+const char* mixture_tail_method_name(MixtureTailMethod method);  // "chisq1", "davies", "saddlepoint", "moments"
+
+struct MixtureTail {
+  double log_p = 0.0;  // ln P(Q > q); finite, never -inf: p is never reported as 0
+  MixtureTailMethod method = MixtureTailMethod::davies;
+};
+
+// ln P(Q > q) for Q = sum_k lambda_k X_k, X_k independent chi-square(1),
+// lambda_k >= 0 (eigenvalues below 1e-12 of the largest are dropped).
+// Davies' inversion where it reaches its accuracy and p is above 1e-10; the
+// saddlepoint approximation below that, so that p far below 1e-10 keeps its
+// relative accuracy; moment matching where neither applies. q <= 0 gives 0.
+MixtureTail mixture_chisq_upper_tail(const std::vector<double>& eigenvalues, double q);
+
+// The three methods on their own, for tests and the combination's integral.
+struct DaviesTail {
+  double p = 1.0;           // P(Q > q)
+  bool reached = false;     // the truncation and integration error bound met the accuracy
+  int terms = 0;            // integration terms used
+};
+// Davies (1980), Applied Statistics 29:323-333, for central chi-square(1)
+// terms and no normal component; `accuracy` is the absolute error bound on p.
+DaviesTail davies_upper_tail(const std::vector<double>& eigenvalues, double q, double accuracy = 1e-9,
+                             int term_limit = 100000);
+// Liu, Tang & Zhang (2009), CSDA 53:853-856: the chi-square matched on the
+// first four cumulants. Returns ln p.
+double moment_matching_upper_log_tail(const std::vector<double>& eigenvalues, double q);
+// Kuonen (1999), Biometrika 86:929-935, Lugannani-Rice form. Returns ln p;
+// only for q above the mean (sum of eigenvalues).
+double saddlepoint_upper_log_tail(const std::vector<double>& eigenvalues, double q);
+
+// ---- Cauchy combination ------------------------------------------------------
+
+// ln p of the Cauchy combination T = sum_i w_i tan((1/2 - p_i) pi) / sum_i w_i
+// (Liu & Xie 2020, JASA 115:393-402; Liu et al. 2019, AJHG 104:410-421),
+// p = 1/2 - arctan(T) / pi, computed so that tiny p_i (ln p far below -700)
+// give a finite, accurate result. Equal weights when `weights` is empty.
+// A p_i of 1 would add -inf to T; it is taken as just below 1.
+double cauchy_combination_log_p(const std::vector<double>& log_p, const std::vector<double>& weights = {});
+
+// ---- the set tests ------------------------------------------------------------
+
+// The optimal combination's grid (Lee et al. 2012, AJHG 91:224-237).
+inline const std::vector<double> kOptimalRhoGrid = {0.0, 0.01, 0.04, 0.09, 0.16, 0.25, 0.5, 1.0};
+
+struct SetTestResult {
+  // Burden: B = sum_j w_j U_j, chi-square B^2 / (w' Phi w).
+  double burden_score = 0.0;     // B
+  double burden_variance = 0.0;  // w' Phi w
+  double burden_chisq = 0.0;
+  double burden_log_p = 0.0;
+  // Variance component: Q = sum_j w_j^2 U_j^2 against the mixture with the
+  // eigenvalues of K = diag(w) Phi diag(w).
+  double variance_q = 0.0;
+  double variance_log_p = 0.0;
+  MixtureTailMethod variance_method = MixtureTailMethod::davies;
+  // Optimal combination: Q_rho = (1 - rho) Q + rho B^2 over the grid; the
+  // statistic is the smallest of the per-rho p-values, its p-value the
+  // published one-dimensional integral.
+  double optimal_rho = 0.0;        // the rho with the smallest p
+  double optimal_min_log_p = 0.0;  // ln of that smallest per-rho p
+  double optimal_log_p = 0.0;
+};
+
+// `u` (m), `covariance` (m x m, symmetric positive semi-definite), `weights`
+// (m, positive). `rho_grid` values in [0, 1], increasing, including 0.
+SetTestResult test_variant_set(const Eigen::VectorXd& u, const Eigen::MatrixXd& covariance,
+                               const Eigen::VectorXd& weights,
+                               const std::vector<double>& rho_grid = kOptimalRhoGrid);
+
+// The optimal combination's p-value for a given smallest per-rho p (ln
+// min_log_p), from K's decomposition (exposed for the reference check).
+double optimal_combination_log_p(const Eigen::MatrixXd& weighted_covariance, const std::vector<double>& rho_grid,
+                                 double min_log_p);
+
+// Beta(maf; a, b) density as a variant weight (Wu et al. 2011, AJHG 89:82-93:
+// a = 1, b = 25 by default), maf the minor allele frequency in (0, 0.5].
+double beta_density_weight(double maf, double a = 1.0, double b = 25.0);
+
+}  // namespace tamis
