@@ -51,9 +51,39 @@ std::string format_p_value(double log_p);
 // Returns nothing for a contig that has no code.
 std::optional<std::string> map_chromosome_ssf(const std::string& contig);
 
+// ---- set rows (scan --sets) ------------------------------------------------
+
+// One set's line in PREFIX.TRAIT.sets.tsv.gz. ln p values throughout.
+struct SetResultRow {
+  std::string set;
+  std::string chromosome;  // as in the results file
+  std::int64_t start = 0;  // 1-based, inclusive: the set's extent as its file gives it, else its variants' span
+  std::int64_t end = 0;
+  std::size_t n_variants = 0;  // variants tested, before any collapsing
+  double total_mac = 0.0;
+  double burden_log_p = 0.0, variance_log_p = 0.0, optimal_log_p = 0.0, cauchy_log_p = 0.0, overall_log_p = 0.0;
+  double burden_beta = 0.0, burden_se = 0.0, burden_chisq = 0.0;
+  std::string burden_test;  // "score" or "score_spa"
+  double variance_q = 0.0;
+  std::string variance_method;  // how the mixture tail was reached
+  double optimal_rho = 0.0;
+  double optimal_min_log_p = 0.0;
+  std::string top_variant;  // the variant with the smallest single-variant p
+  double top_variant_log_p = 0.0;
+  std::size_t n_collapsed = 0;  // ultra-rare variants summed into one
+  std::string weights;
+  std::size_t n = 0;
+  std::optional<std::size_t> n_cases;
+};
+
+const std::vector<std::string>& set_result_columns();
+std::string set_result_header_line();
+void append_set_result_row(const SetResultRow& row, std::string& out);
+
 // ---- files ---------------------------------------------------------------
 
-enum class IndexKind { none, tabix_results, tabix_vcf };
+// tabix_sets: sequence column 2, start column 3, end column 4 (set rows).
+enum class IndexKind { none, tabix_results, tabix_vcf, tabix_sets };
 
 // A BGZF text file written under "<final>.partial" and renamed on commit.
 // The destructor removes the temporary file unless commit() succeeded, and

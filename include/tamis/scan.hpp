@@ -11,6 +11,7 @@
 #include <vector>
 
 #include "tamis/genotype_reader.hpp"
+#include "tamis/set_scan_options.hpp"
 #include "tamis/trait_table.hpp"
 #include "tamis/types.hpp"
 
@@ -95,6 +96,7 @@ struct ScanOptions {
   // parts of one); quantitative traits then get a linear mixed null model.
   std::vector<std::string> relatedness_paths;
   QcFloors floors;
+  SetScanOptions sets;  // --sets: variant-set tests beside the single-variant ones
   std::string keep_samples_path;  // one sample ID per line
   std::string drop_samples_path;
   std::vector<std::string> rank_normalize;  // quantitative traits given the rank-based inverse normal transform
@@ -128,13 +130,15 @@ struct ScanSummary {
   std::uint64_t alleles = 0;
   std::vector<std::string> result_files;
   std::map<std::string, TraitTally> tallies;
+  std::vector<std::string> set_files;  // with --sets, per trait
 };
 
 // Runs the whole scan. Throws tamis::Error for anything the user can fix;
 // no result file exists under its final name unless the scan completed.
 ScanSummary run_scan(const ScanOptions& options);
 
-// The result file name of one trait.
+// The result file name of one trait, and of its set tests.
 std::string result_path(const std::string& out_prefix, const std::string& trait);
+std::string set_result_path(const std::string& out_prefix, const std::string& trait);
 
 }  // namespace tamis

@@ -97,7 +97,37 @@ struct ScanArguments {
   int haploid_dosage = 1;
   std::vector<std::string> from_results;
   double below = 1e-4;
+  std::string sets;
+  double set_maf_ceiling = 0.01;
+  std::string set_weights = "beta";
+  double set_collapse_mac = 0.0;
+  std::size_t set_max_variants = 5000;
 };
+
+// --sets and the options that shape the set tests.
+void check_set_options(const ScanArguments& arguments, SetScanOptions& sets) {
+  if (arguments.sets.empty()) return;
+  check_readable("--sets", arguments.sets);
+  sets.path = arguments.sets;
+  if (!(arguments.set_maf_ceiling > 0.0 && arguments.set_maf_ceiling <= 0.5)) {
+    refuse_option("--set-maf-ceiling", "must be a minor allele frequency above 0 and at most 0.5",
+                  "the default, 0.01, keeps rare variants; 0.5 keeps every variant");
+  }
+  sets.maf_ceiling = arguments.set_maf_ceiling;
+  const std::map<std::string, SetWeighting> weightings = {
+      {"beta", SetWeighting::beta}, {"flat", SetWeighting::flat}, {"listed", SetWeighting::listed}};
+  if (!weightings.count(arguments.set_weights)) {
+    refuse_option("--set-weights", "'" + arguments.set_weights + "' is not beta, flat or listed",
+                  "beta weighs by the Beta(1, 25) density of the minor allele frequency");
+  }
+  sets.weighting = weightings.at(arguments.set_weights);
+  if (!(arguments.set_collapse_mac >= 0.0)) {
+    refuse_option("--set-collapse-mac", "must be zero (no collapsing) or a minor allele count", "10 is usual");
+  }
+  sets.collapse_mac = arguments.set_collapse_mac;
+  if (arguments.set_max_variants < 1) refuse_option("--set-max-variants", "must be at least 1", "the default is 5000");
+  sets.max_variants = arguments.set_max_variants;
+}
 
 void check_trait_names(const std::vector<std::string>& traits) {
   if (traits.empty()) refuse_option("--trait", "no trait given", "name at least one trait column with --trait");
@@ -254,6 +284,7 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
   if (options.shard_count > 0 && !options.regions.empty()) {
     refuse_option("--shard", "--shard and --region cannot be combined", "shard the whole genome, or list regions");
   }
+  check_set_options(arguments, options.sets);
   return options;
 }
 
@@ -322,6 +353,21 @@ void add_scan_command(CLI::App& app, ScanArguments& arguments) {
   scan->add_option("--region", arguments.regions, "CHR[:FROM-TO]: scan only records there (repeatable)");
   scan->add_option("--checkpoint-blocks", arguments.checkpoint_blocks,
                    "Blocks of 128 records between checkpoints that --resume can continue from")
+      ->capture_default_str();
+  scan->add_option("--sets", arguments.sets,
+                   "Variant sets to test together: a BED file (set name in column 4) or a list "
+                   "(set, variant as ID or chr:pos:ref:alt, optional weight); writes PREFIX.TRAIT.sets.tsv.gz");
+  scan->add_option("--set-maf-ceiling", arguments.set_maf_ceiling,
+                   "Set tests take variants whose minor allele frequency is at most this")
+      ->capture_default_str();
+  scan->add_option("--set-weights", arguments.set_weights,
+                   "beta (Beta(1,25) density of the frequency), flat, or listed (the set file's third column)")
+      ->capture_default_str();
+  scan->add_option("--set-collapse-mac", arguments.set_collapse_mac,
+                   "Sum a set's variants with a minor allele count at most this into one (0: off; 10 is usual)")
+      ->capture_default_str();
+  scan->add_option("--set-max-variants", arguments.set_max_variants,
+                   "Skip, with a warning, sets with more variants than this")
       ->capture_default_str();
 }
 
@@ -460,6 +506,7 @@ int execute_scan(const ScanArguments& arguments, const std::string& command_line
   try {
     const ScanSummary summary = run_scan(options);
     for (const std::string& path : summary.result_files) log.line("results: " + path);
+    for (const std::string& path : summary.set_files) log.line("set results: " + path);
     log.line("log: " + log.path());
   } catch (const Error& error) {
     log.detail(std::string("error: ") + error.what());

@@ -77,6 +77,17 @@ std::string to_upper(std::string text) {
   return text;
 }
 
+// The column names joined by tabs, with '\n'.
+std::string header_line_of(const std::vector<std::string>& columns) {
+  std::string line;
+  for (const std::string& column : columns) {
+    if (!line.empty()) line += '\t';
+    line += column;
+  }
+  line += '\n';
+  return line;
+}
+
 }  // namespace
 
 const std::vector<std::string>& result_columns() {
@@ -89,15 +100,7 @@ const std::vector<std::string>& result_columns() {
   return columns;
 }
 
-std::string result_header_line() {
-  std::string line;
-  for (const std::string& column : result_columns()) {
-    if (!line.empty()) line += '\t';
-    line += column;
-  }
-  line += '\n';
-  return line;
-}
+std::string result_header_line() { return header_line_of(result_columns()); }
 
 std::string format_p_value(double log_p) {
   if (std::isnan(log_p) || log_p == -INFINITY) return missing_text;
@@ -191,6 +194,69 @@ std::optional<std::string> map_chromosome_ssf(const std::string& contig) {
   if (upper == "Y" || upper == "24") return std::string("24");
   if (upper == "MT" || upper == "M" || upper == "25") return std::string("25");
   return std::nullopt;
+}
+
+const std::vector<std::string>& set_result_columns() {
+  static const std::vector<std::string> columns = {
+      "set", "chromosome", "start", "end", "n_variants", "total_mac", "burden_p", "variance_p", "optimal_p",
+      "cauchy_p", "overall_p", "neg_log_10_overall_p", "burden_beta", "burden_se", "burden_chisq", "burden_test",
+      "variance_q", "variance_method", "optimal_rho", "optimal_min_p", "top_variant", "top_variant_p",
+      "n_collapsed", "weights", "n", "n_cases"};
+  return columns;
+}
+
+std::string set_result_header_line() { return header_line_of(set_result_columns()); }
+
+void append_set_result_row(const SetResultRow& row, std::string& out) {
+  append_text(out, row.set);
+  out += '\t';
+  append_text(out, row.chromosome);
+  out += '\t';
+  out += std::to_string(row.start);
+  out += '\t';
+  out += std::to_string(row.end);
+  out += '\t';
+  append_count(out, row.n_variants);
+  out += '\t';
+  append_number(out, row.total_mac);
+  for (double log_p : {row.burden_log_p, row.variance_log_p, row.optimal_log_p, row.cauchy_log_p,
+                       row.overall_log_p}) {
+    out += '\t';
+    out += format_p_value(log_p);
+  }
+  out += '\t';
+  append_number(out, negative_log10_p(row.overall_log_p));
+  for (double value : {row.burden_beta, row.burden_se, row.burden_chisq}) {
+    out += '\t';
+    append_number(out, value);
+  }
+  out += '\t';
+  append_text(out, row.burden_test);
+  out += '\t';
+  append_number(out, row.variance_q);
+  out += '\t';
+  append_text(out, row.variance_method);
+  out += '\t';
+  append_number(out, row.optimal_rho);
+  out += '\t';
+  out += format_p_value(row.optimal_min_log_p);
+  out += '\t';
+  append_text(out, row.top_variant);
+  out += '\t';
+  out += format_p_value(row.top_variant_log_p);
+  out += '\t';
+  append_count(out, row.n_collapsed);
+  out += '\t';
+  append_text(out, row.weights);
+  out += '\t';
+  append_count(out, row.n);
+  out += '\t';
+  if (row.n_cases) {
+    append_count(out, *row.n_cases);
+  } else {
+    out += missing_text;
+  }
+  out += '\n';
 }
 
 }  // namespace tamis

@@ -87,9 +87,20 @@ tbx_conf_t results_index_conf() {
   return conf;
 }
 
+// Set rows span their set: chromosome, start and end in columns 2 to 4.
+tbx_conf_t set_index_conf() {
+  tbx_conf_t conf = results_index_conf();
+  conf.sc = 2;
+  conf.bc = 3;
+  conf.ec = 4;
+  return conf;
+}
+
 void build_index(const std::string& data_path, const std::string& index_path,
                  const std::string& final_path, IndexKind kind) {
-  const tbx_conf_t conf = kind == IndexKind::tabix_vcf ? tbx_conf_vcf : results_index_conf();
+  const tbx_conf_t conf = kind == IndexKind::tabix_vcf    ? tbx_conf_vcf
+                          : kind == IndexKind::tabix_sets ? set_index_conf()
+                                                          : results_index_conf();
   // min_shift 0 asks for a .tbi index.
   errno = 0;
   int status = tbx_index_build3(data_path.c_str(), index_path.c_str(), 0, 0, &conf);

@@ -69,6 +69,12 @@ std::vector<std::string> describe_run(const ScanOptions& options, bool with_shar
     lines.push_back("relatedness=" + path + " md5 " + md5_hex_of_file(path));
   }
   lines.push_back("haploid_dosage=" + std::to_string(options.haploid_dosage));
+  if (options.sets.active()) {
+    const SetScanOptions& sets = options.sets;
+    lines.push_back("sets=" + describe_file(sets.path));
+    lines.push_back("set_options=" + number_text(sets.maf_ceiling) + "," + set_weighting_name(sets.weighting) + "," +
+                    number_text(sets.collapse_mac) + "," + std::to_string(sets.max_variants));
+  }
   if (options.selection.active()) {
     std::vector<std::string> chosen(options.selection.variant_ids.begin(), options.selection.variant_ids.end());
     chosen.insert(chosen.end(), options.selection.record_ids.begin(), options.selection.record_ids.end());

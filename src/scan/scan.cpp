@@ -19,6 +19,7 @@
 #include "scan/progress.hpp"
 #include "scan/related_samples.hpp"
 #include "scan/sample_lists.hpp"
+#include "scan/set_accumulator.hpp"
 #include "scan/trait_pass.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/trait_transform.hpp"
@@ -171,6 +172,11 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
       trait.saddlepoint = std::make_unique<SaddlepointContext>(
           trait.logistic_mixed ? trait.logistic_mixed->conditional_model() : trait.model);
     }
+    if (options.sets.active()) {
+      trait.set_context = std::make_unique<TraitSetContext>();
+      trait.set_context->maf_ceiling = options.sets.maf_ceiling;
+      trait.set_context->kernel_row_of_sample = kernel_row_of_sample(trait);
+    }
   }
   return traits;
 }
@@ -180,6 +186,7 @@ struct BlockWork {
   RecordBatch batch;
   DosageBlock block;
   std::vector<std::string> chromosomes;
+  BlockSets sets;  // with --sets
   std::vector<TraitBlockOutput> outputs;
 };
 
@@ -236,6 +243,10 @@ std::vector<std::string> map_chromosomes(const DosageBlock& block, ChromosomeCod
 struct ScanProgress {
   std::vector<std::unique_ptr<BgzfTextFile>> files;
   CheckpointState state;
+  // With --sets, per trait: the set results and the sets the stream is in.
+  const VariantSets* sets = nullptr;
+  std::vector<std::unique_ptr<BgzfTextFile>> set_files;
+  std::vector<std::unique_ptr<SetAccumulator>> set_accumulators;
 };
 
 void save_progress(const ScanOptions& options, const std::vector<TraitContext>& traits, ScanProgress& progress) {
@@ -254,6 +265,12 @@ void add_tally(const TraitTally& block, TraitTally& total) {
   total.confirm_not_converged += block.confirm_not_converged;
   total.firth += block.firth;
   for (int reason = 0; reason < qc_reason_count; ++reason) total.filtered[reason] += block.filtered[reason];
+}
+
+void write_ready_set_rows(SetAccumulator& accumulator, BgzfTextFile& file) {
+  std::string rows;
+  accumulator.take_rows(rows);
+  if (!rows.empty()) file.write(rows);
 }
 
 void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
@@ -306,11 +323,12 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     ThreadScratch& scratch = scratch_per_thread.local();
     total_block(work->block, options.haploid_dosage, left_out_by_all, scratch.totals);
     work->outputs.resize(traits.size());
+    if (progress.sets) find_block_sets(*progress.sets, work->block, work->sets);
     for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
       GatheredBlock& gathered = scratch.gathered[gatherer[trait_idx]];
       if (gatherer[trait_idx] == trait_idx) gather_block(traits[trait_idx].kernel_row_samples, work->block, gathered);
       process_trait_block(traits[trait_idx], work->block, scratch.totals, gathered, work->chromosomes,
-                          scratch.traits[trait_idx], work->outputs[trait_idx]);
+                          scratch.traits[trait_idx], work->outputs[trait_idx], progress.sets ? &work->sets : nullptr);
     }
     return work;
   };
@@ -319,10 +337,15 @@ void run_pipeline(const ScanOptions& options, GenotypeReader& reader,
     state.records += work->batch.size();
     state.alleles += work->block.size();
     for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
-      const TraitBlockOutput& output = work->outputs[trait_idx];
+      TraitBlockOutput& output = work->outputs[trait_idx];
       progress.files[trait_idx]->write_rows(output.rows);
       add_tally(output.tally, state.tallies[traits[trait_idx].set.trait]);
       for (const std::string& note : output.discordant_notes) current_log().detail(note);
+      if (progress.sets && work->block.size() > 0) {
+        SetAccumulator& accumulator = *progress.set_accumulators[trait_idx];
+        accumulator.add_block(output.set_variants, work->sets.contig_keys.back(), work->block.sites.back().position);
+        write_ready_set_rows(accumulator, *progress.set_files[trait_idx]);
+      }
     }
     ++state.blocks;
     if (state.blocks % options.blocks_per_checkpoint == 0) save_progress(options, traits, progress);
@@ -469,10 +492,75 @@ void log_tallies(const ScanSummary& summary, const std::vector<TraitContext>& tr
   }
 }
 
+VariantSets load_sets(const SetScanOptions& options) {
+  SetFileOptions file_options;
+  file_options.max_variants = options.max_variants;
+  VariantSets sets = VariantSets::load(options.path, file_options);
+  if (options.weighting == SetWeighting::listed && sets.format() == SetFileFormat::bed) {
+    throw Error(ExitCode::usage, options.path, "--set-weights listed needs weights in the set file, and a BED file has none",
+                "give a list file (set, variant, weight), or choose --set-weights beta or flat");
+  }
+  const SetFileSummary& summary = sets.summary();
+  current_log().line("sets: " + std::to_string(summary.sets) + " from " + options.path + " (" +
+                     std::to_string(summary.lines) + " lines); variants with minor allele frequency up to " +
+                     format_number(options.maf_ceiling) + ", weights " + set_weighting_name(options.weighting) +
+                     (options.collapse_mac > 0 ? ", minor allele counts up to " + format_number(options.collapse_mac) +
+                                                     " summed into one variant per set"
+                                               : std::string()));
+  for (const std::string& warning : summary.warnings) current_log().line("warning: " + warning);
+  return sets;
+}
+
+void open_set_files(const ScanOptions& options, const std::vector<TraitContext>& traits, const VariantSets& sets,
+                    ScanProgress& progress) {
+  progress.sets = &sets;
+  for (const TraitContext& trait : traits) {
+    progress.set_files.push_back(std::make_unique<BgzfTextFile>(set_result_path(options.out_prefix, trait.set.trait)));
+    progress.set_files.back()->write(set_result_header_line());
+    progress.set_accumulators.push_back(std::make_unique<SetAccumulator>(sets, options.sets, trait));
+  }
+}
+
+void finish_set_tests(const std::vector<TraitContext>& traits, ScanProgress& progress) {
+  for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
+    progress.set_accumulators[trait_idx]->finish();
+    write_ready_set_rows(*progress.set_accumulators[trait_idx], *progress.set_files[trait_idx]);
+  }
+}
+
+void log_set_tallies(const VariantSets& sets, const std::vector<TraitContext>& traits, const ScanProgress& progress) {
+  for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
+    const SetTally& tally = progress.set_accumulators[trait_idx]->tally();
+    const std::uint64_t empty = sets.size() - tally.tested - tally.too_large;
+    std::ostringstream text;
+    text << "trait " << traits[trait_idx].set.trait << ": " << tally.tested << " sets tested, " << empty
+         << " with no variant left after filtering";
+    if (tally.variants_collapsed) text << ", " << tally.variants_collapsed << " ultra-rare variants collapsed";
+    current_log().line(text.str());
+    if (tally.too_large) {
+      std::string names;
+      for (const std::string& name : tally.too_large_names) names += (names.empty() ? "" : ", ") + name;
+      current_log().line("warning: trait " + traits[trait_idx].set.trait + ": " + std::to_string(tally.too_large) +
+                         " sets with more than " + std::to_string(progress.set_accumulators[trait_idx]->max_variants()) +
+                         " variants skipped (" + names + (tally.too_large > tally.too_large_names.size() ? ", ..." : "") +
+                         "); raise --set-max-variants to test them");
+    }
+    if (tally.split_across_chromosomes) {
+      current_log().line("warning: trait " + traits[trait_idx].set.trait + ": " +
+                         std::to_string(tally.split_across_chromosomes) +
+                         " variants of sets already tested on another chromosome were left out; a set is tested on one chromosome");
+    }
+  }
+}
+
 }  // namespace
 
 std::string result_path(const std::string& out_prefix, const std::string& trait) {
   return out_prefix + "." + trait + ".tsv.gz";
+}
+
+std::string set_result_path(const std::string& out_prefix, const std::string& trait) {
+  return out_prefix + "." + trait + ".sets.tsv.gz";
 }
 
 // htslib's decompression threads beside the scan's own, for compressed VCF
@@ -541,7 +629,13 @@ ScanSummary run_scan(const ScanOptions& requested) {
   }
   for (const TraitContext& trait : traits) progress.state.tallies[trait.set.trait];
   open_result_files(options, traits, saved, progress);
+  std::optional<VariantSets> sets;
+  if (options.sets.active()) {
+    sets = load_sets(options.sets);
+    open_set_files(options, traits, *sets, progress);
+  }
   run_pipeline(options, reader, traits, progress);
+  if (sets) finish_set_tests(traits, progress);
 
   // The checkpoint goes before any file takes its final name: a run stopped
   // while committing then starts over on --resume instead of finding some
@@ -556,9 +650,12 @@ ScanSummary run_scan(const ScanOptions& requested) {
   tbb::parallel_for(std::size_t{0}, traits.size(), [&](std::size_t trait_idx) {
     progress.files[trait_idx]->commit(IndexKind::tabix_results);
     write_sidecar(options, traits[trait_idx], progress.files[trait_idx]->final_path(), provenance);
+    if (sets) progress.set_files[trait_idx]->commit(IndexKind::tabix_sets);
   });
   for (const auto& file : progress.files) summary.result_files.push_back(file->final_path());
+  for (const auto& file : progress.set_files) summary.set_files.push_back(file->final_path());
   log_tallies(summary, traits);
+  if (sets) log_set_tallies(*sets, traits, progress);
   const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   current_log().line("wall time: " + format_number(std::round(seconds * 100) / 100) + " s");
   return summary;

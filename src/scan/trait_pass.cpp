@@ -630,10 +630,11 @@ bool SiteSummary::varies() const {
 
 void process_trait_block(const TraitContext& trait, const DosageBlock& block, const BlockTotals& totals,
                          const GatheredBlock& gathered, const std::vector<std::string>& chromosomes,
-                         TraitScratch& scratch, TraitBlockOutput& output) {
+                         TraitScratch& scratch, TraitBlockOutput& output, const BlockSets* sets) {
   output.rows.clear();
   output.tally = TraitTally{};
   output.discordant_notes.clear();
+  output.set_variants.clear();
   const std::size_t width = block.size();
   if (width == 0) return;
 
@@ -673,6 +674,11 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block, co
     }
     calibrate_score(trait, block, scratch, site_idx, score);
     fill_score_columns(trait, score, row);
+    if (sets && trait.set_context) {
+      collect_set_variant(trait, *trait.set_context, block, *sets, gathered, input,
+                          scratch.score_scratch.projections.data(), site_idx, scratch.fills[site_idx], score, row,
+                          output.set_variants);
+    }
     if (should_confirm(trait, score.log_p)) {
       copy_column(trait, block, site_idx, scratch.fills[site_idx], scratch.column);
       confirm_row(trait, scratch.column, row, output.tally);

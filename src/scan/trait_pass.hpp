@@ -9,6 +9,7 @@
 #include <utility>
 #include <vector>
 
+#include "scan/set_collection.hpp"
 #include "scan/trait_model.hpp"
 #include "tamis/confirm.hpp"
 #include "tamis/logistic_mixed_model.hpp"
@@ -44,6 +45,8 @@ struct TraitContext {
   // sample when few are outside the analysis set (a block gathered once then
   // serves all such traits), else the analysis samples alone.
   std::vector<std::size_t> kernel_row_samples;
+  // With --sets: what collecting set variants needs; null otherwise.
+  std::unique_ptr<TraitSetContext> set_context;
 };
 
 // Rows for a trait's kernel blocks (TraitContext::kernel_row_samples), and
@@ -121,6 +124,7 @@ struct TraitBlockOutput {
   std::string rows;
   TraitTally tally;
   std::vector<std::string> discordant_notes;  // one line per flagged hit
+  std::vector<SetVariant> set_variants;       // with --sets: the block's variants that sets take, in order
 };
 
 // Gathers the block's dosages of the samples `row_samples` (a trait's
@@ -129,9 +133,10 @@ void gather_block(const std::vector<std::size_t>& row_samples, const DosageBlock
 
 // `gathered` comes from gather_block for this trait's kernel rows, `totals`
 // from total_block for this block; `chromosomes[site_idx]` is the contig
-// name as it is to be written.
+// name as it is to be written; `sets`, with --sets, the sets of each site
+// (find_block_sets).
 void process_trait_block(const TraitContext& trait, const DosageBlock& block, const BlockTotals& totals,
                          const GatheredBlock& gathered, const std::vector<std::string>& chromosomes,
-                         TraitScratch& scratch, TraitBlockOutput& output);
+                         TraitScratch& scratch, TraitBlockOutput& output, const BlockSets* sets = nullptr);
 
 }  // namespace tamis

@@ -1,0 +1,25 @@
+// What `scan --sets` asks for: the set file and how its variants are chosen
+// and weighted.
+#pragma once
+
+#include <cstddef>
+#include <string>
+
+namespace tamis {
+
+enum class SetWeighting { beta, flat, listed };
+const char* set_weighting_name(SetWeighting weighting);  // "beta_1_25", "flat", "listed"
+
+// What `scan --sets` asks for.
+struct SetScanOptions {
+  std::string path;  // empty: no set tests
+  double maf_ceiling = 0.01;  // variants above this minor allele frequency stay out of the sets
+  SetWeighting weighting = SetWeighting::beta;
+  // Variants with a minor allele count at or below this are summed into one
+  // pseudo-variant per set before the tests; 0 keeps every variant apart.
+  double collapse_mac = 0.0;
+  std::size_t max_variants = 5000;  // a larger set is skipped with a warning
+  bool active() const { return !path.empty(); }
+};
+
+}  // namespace tamis

@@ -1,0 +1,359 @@
+#include "scan/set_accumulator.hpp"
+
+#include <tbb/parallel_for.h>
+
+#include <Eigen/Sparse>
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <tuple>
+
+#include "scan/trait_pass.hpp"
+#include "tamis/distributions.hpp"
+#include "tamis/saddlepoint.hpp"
+#include "tamis/set_tests.hpp"
+
+namespace tamis {
+namespace {
+
+// One column of the set tests: a variant, or the sum of the set's
+// ultra-rare variants. Signs are applied: every unit counts minor alleles.
+struct TestUnit {
+  double u = 0.0;
+  std::vector<double> projections;
+  SparseColumn column;
+  SparseColumn dosages;  // empty when the column is the dosages themselves
+  double weight = 1.0;
+  double minor_allele_frequency = 0.0;
+  double log_p = 0.0;  // single-variant p; NaN for a collapsed unit until computed
+};
+
+void scale_column(const SparseColumn& column, double factor, SparseColumn& out) {
+  out.samples = column.samples;
+  out.values.resize(column.values.size());
+  for (std::size_t entry = 0; entry < column.values.size(); ++entry) out.values[entry] = factor * column.values[entry];
+}
+
+// a + b over the union of their samples (both sorted).
+SparseColumn add_columns(const SparseColumn& a, const SparseColumn& b) {
+  SparseColumn sum;
+  std::size_t at_a = 0, at_b = 0;
+  while (at_a < a.samples.size() || at_b < b.samples.size()) {
+    const bool take_a = at_b == b.samples.size() || (at_a < a.samples.size() && a.samples[at_a] <= b.samples[at_b]);
+    const bool take_b = at_a == a.samples.size() || (at_b < b.samples.size() && b.samples[at_b] <= a.samples[at_a]);
+    double value = 0.0;
+    std::uint32_t sample = 0;
+    if (take_a) {
+      sample = a.samples[at_a];
+      value += a.values[at_a++];
+    }
+    if (take_b) {
+      sample = b.samples[at_b];
+      value += b.values[at_b++];
+    }
+    sum.samples.push_back(sample);
+    sum.values.push_back(value);
+  }
+  return sum;
+}
+
+double weight_of(const SetScanOptions& options, double minor_allele_frequency, double listed_weight) {
+  switch (options.weighting) {
+    case SetWeighting::beta: return beta_density_weight(std::max(minor_allele_frequency, 1e-12));
+    case SetWeighting::flat: return 1.0;
+    case SetWeighting::listed: return std::isnan(listed_weight) ? 1.0 : listed_weight;
+  }
+  return 1.0;
+}
+
+TestUnit unit_of(const SetScanOptions& options, const SetVariant& variant, double listed_weight) {
+  TestUnit unit;
+  unit.u = variant.sign * variant.u;
+  unit.projections = variant.projections;
+  for (double& value : unit.projections) value *= variant.sign;
+  scale_column(variant.column, variant.sign, unit.column);
+  if (!variant.dosages.samples.empty()) scale_column(variant.dosages, variant.sign, unit.dosages);
+  unit.minor_allele_frequency = variant.minor_allele_frequency;
+  unit.weight = weight_of(options, variant.minor_allele_frequency, listed_weight);
+  unit.log_p = variant.log_p;
+  return unit;
+}
+
+// The ultra-rare units summed into one, whose frequency is their combined
+// one (the weight of a listed set: their mean weight).
+TestUnit collapse_units(const SetScanOptions& options, const std::vector<TestUnit>& units,
+                        const std::vector<double>& listed) {
+  TestUnit sum;
+  sum.projections.assign(units.front().projections.size(), 0.0);
+  double listed_total = 0.0;
+  for (std::size_t unit_idx = 0; unit_idx < units.size(); ++unit_idx) {
+    const TestUnit& unit = units[unit_idx];
+    sum.u += unit.u;
+    for (std::size_t column_idx = 0; column_idx < unit.projections.size(); ++column_idx) {
+      sum.projections[column_idx] += unit.projections[column_idx];
+    }
+    sum.column = add_columns(sum.column, unit.column);
+    if (!unit.dosages.samples.empty()) sum.dosages = add_columns(sum.dosages, unit.dosages);
+    sum.minor_allele_frequency += unit.minor_allele_frequency;
+    listed_total += std::isnan(listed[unit_idx]) ? 1.0 : listed[unit_idx];
+  }
+  sum.minor_allele_frequency = std::min(sum.minor_allele_frequency, 0.5);
+  sum.weight = weight_of(options, sum.minor_allele_frequency, listed_total / static_cast<double>(units.size()));
+  sum.log_p = std::numeric_limits<double>::quiet_NaN();
+  return sum;
+}
+
+// The score covariance of the units: scale (X'WX - P'P), X the columns and P
+// their projections on the kernel's basis; the same sums the kernel takes
+// for each variant's own variance.
+Eigen::MatrixXd score_covariance(const TraitContext& trait, const std::vector<TestUnit>& units) {
+  const Eigen::Index unit_count = static_cast<Eigen::Index>(units.size());
+  const Eigen::Index basis_columns = static_cast<Eigen::Index>(units.front().projections.size());
+  std::vector<Eigen::Triplet<double>> entries;
+  Eigen::MatrixXd projections(basis_columns, unit_count);
+  for (Eigen::Index unit_idx = 0; unit_idx < unit_count; ++unit_idx) {
+    const TestUnit& unit = units[static_cast<std::size_t>(unit_idx)];
+    for (std::size_t entry = 0; entry < unit.column.samples.size(); ++entry) {
+      const std::uint32_t sample = unit.column.samples[entry];
+      const double root_weight = std::sqrt(trait.model.weights[static_cast<Eigen::Index>(sample)]);
+      entries.emplace_back(static_cast<Eigen::Index>(sample), unit_idx, root_weight * unit.column.values[entry]);
+    }
+    for (Eigen::Index column_idx = 0; column_idx < basis_columns; ++column_idx) {
+      projections(column_idx, unit_idx) = unit.projections[static_cast<std::size_t>(column_idx)];
+    }
+  }
+  Eigen::SparseMatrix<double> columns(trait.model.sample_count(), unit_count);
+  columns.setFromTriplets(entries.begin(), entries.end());
+  const Eigen::SparseMatrix<double> cross = columns.transpose() * columns;
+  Eigen::MatrixXd covariance = Eigen::MatrixXd(cross) - projections.transpose() * projections;
+  const double scale = trait.model.kind == TraitKind::quantitative ? trait.model.sigma2 : 1.0;
+  return scale * covariance;
+}
+
+// The burden's dosages over the analysis samples, for the saddlepoint.
+Eigen::VectorXd burden_dosages(const TraitContext& trait, const std::vector<TestUnit>& units) {
+  Eigen::VectorXd dosages = Eigen::VectorXd::Zero(trait.model.sample_count());
+  for (const TestUnit& unit : units) {
+    const SparseColumn& column = unit.dosages.samples.empty() ? unit.column : unit.dosages;
+    for (std::size_t entry = 0; entry < column.samples.size(); ++entry) {
+      dosages[static_cast<Eigen::Index>(column.samples[entry])] += unit.weight * column.values[entry];
+    }
+  }
+  return dosages;
+}
+
+// Binary traits: the burden's p-value from the saddlepoint, as a single
+// variant's (the normal tail is kept below two standard errors).
+void calibrate_burden(const TraitContext& trait, const std::vector<TestUnit>& units, SetResultRow& row,
+                      const SetTestResult& tests) {
+  constexpr double kNormalCutoff = 2.0;
+  if (!trait.saddlepoint || !(tests.burden_variance > 0.0)) return;
+  row.burden_test = "score_spa";
+  if (tests.burden_chisq < kNormalCutoff * kNormalCutoff) return;
+  const Eigen::VectorXd dosages = burden_dosages(trait, units);
+  ScoreResult score;
+  score.u = tests.burden_score;
+  score.v = tests.burden_variance;
+  const double variance = trait.tests->saddlepoint_variance(*trait.saddlepoint, dosages, score);
+  if (!(variance > 0.0)) return;
+  const double u = score.u * std::sqrt(variance / score.v);
+  row.burden_log_p = saddlepoint_score_log_p(*trait.saddlepoint, dosages, u, variance, kNormalCutoff).log_p;
+}
+
+// The Cauchy combination of the units' own p-values, weighted as the
+// variant-level combination of Liu et al. (2019): w^2 maf (1 - maf).
+double combine_unit_p_values(const std::vector<TestUnit>& units, const Eigen::MatrixXd& covariance) {
+  std::vector<double> log_p(units.size()), weights(units.size());
+  for (std::size_t unit_idx = 0; unit_idx < units.size(); ++unit_idx) {
+    const TestUnit& unit = units[unit_idx];
+    log_p[unit_idx] = unit.log_p;
+    if (std::isnan(unit.log_p)) {
+      const double variance = covariance(static_cast<Eigen::Index>(unit_idx), static_cast<Eigen::Index>(unit_idx));
+      log_p[unit_idx] = variance > 0.0 ? log_chisq1_upper_tail(unit.u * unit.u / variance) : 0.0;
+    }
+    const double frequency = unit.minor_allele_frequency;
+    weights[unit_idx] = unit.weight * unit.weight * std::max(frequency * (1.0 - frequency), 1e-12);
+  }
+  return cauchy_combination_log_p(log_p, weights);
+}
+
+}  // namespace
+
+SetResultRow test_set_variants(const TraitContext& trait, const SetScanOptions& options, const std::string& name,
+                               const std::vector<std::shared_ptr<const SetVariant>>& variants,
+                               const std::vector<double>& listed_weights, std::size_t* collapsed) {
+  SetResultRow row;
+  row.set = name;
+  row.chromosome = variants.front()->chromosome;
+  row.n_variants = variants.size();
+  row.weights = set_weighting_name(options.weighting);
+  row.n = trait.set.genotype_index.size();
+  if (trait.set.kind == TraitKind::binary) row.n_cases = trait.set.case_count;
+  row.burden_test = "score";
+  row.top_variant_log_p = 0.0;
+  std::vector<TestUnit> units, ultra_rare;
+  std::vector<double> ultra_rare_listed;
+  for (std::size_t variant_idx = 0; variant_idx < variants.size(); ++variant_idx) {
+    const SetVariant& variant = *variants[variant_idx];
+    row.total_mac += variant.mac;
+    if (row.top_variant.empty() || variant.log_p < row.top_variant_log_p) {
+      row.top_variant = variant.variant_id;
+      row.top_variant_log_p = variant.log_p;
+    }
+    TestUnit unit = unit_of(options, variant, listed_weights[variant_idx]);
+    if (options.collapse_mac > 0.0 && variant.mac <= options.collapse_mac) {
+      ultra_rare.push_back(std::move(unit));
+      ultra_rare_listed.push_back(listed_weights[variant_idx]);
+    } else {
+      units.push_back(std::move(unit));
+    }
+  }
+  if (ultra_rare.size() >= 2) {
+    row.n_collapsed = ultra_rare.size();
+    units.push_back(collapse_units(options, ultra_rare, ultra_rare_listed));
+  } else if (!ultra_rare.empty()) {
+    units.push_back(std::move(ultra_rare.front()));
+  }
+  if (collapsed) *collapsed = row.n_collapsed;
+
+  const Eigen::MatrixXd covariance = score_covariance(trait, units);
+  Eigen::VectorXd u(static_cast<Eigen::Index>(units.size())), weights(static_cast<Eigen::Index>(units.size()));
+  for (std::size_t unit_idx = 0; unit_idx < units.size(); ++unit_idx) {
+    u[static_cast<Eigen::Index>(unit_idx)] = units[unit_idx].u;
+    weights[static_cast<Eigen::Index>(unit_idx)] = units[unit_idx].weight;
+  }
+  const SetTestResult tests = test_variant_set(u, covariance, weights);
+  row.burden_log_p = tests.burden_log_p;
+  row.burden_chisq = tests.burden_chisq;
+  // The one-step estimate per weighted minor allele, as a single variant's.
+  const double scale = trait.model.kind == TraitKind::quantitative ? trait.model.sigma2 : 1.0;
+  if (tests.burden_variance > 0.0) {
+    row.burden_beta = tests.burden_score * scale / tests.burden_variance;
+    row.burden_se = scale / std::sqrt(tests.burden_variance);
+  }
+  calibrate_burden(trait, units, row, tests);
+  row.variance_q = tests.variance_q;
+  row.variance_log_p = tests.variance_log_p;
+  row.variance_method = mixture_tail_method_name(tests.variance_method);
+  row.optimal_rho = tests.optimal_rho;
+  row.optimal_min_log_p = tests.optimal_min_log_p;
+  row.optimal_log_p = tests.optimal_log_p;
+  row.cauchy_log_p = combine_unit_p_values(units, covariance);
+  row.overall_log_p =
+      cauchy_combination_log_p({row.burden_log_p, row.variance_log_p, row.optimal_log_p, row.cauchy_log_p});
+  return row;
+}
+
+SetAccumulator::SetAccumulator(const VariantSets& sets, const SetScanOptions& options, const TraitContext& trait)
+    : sets_(sets), options_(options), trait_(trait), done_(sets.size(), false) {}
+
+namespace {
+
+// Whether the stream can pass a set before its chromosome ends: a list
+// with ID entries may take a variant anywhere on its chromosome.
+bool ends_at_known_position(const VariantSetDefinition& definition) {
+  if (definition.end <= 0) return false;
+  for (const SetListEntry& entry : definition.entries) {
+    if (entry.position == 0) return false;
+  }
+  return true;
+}
+
+}  // namespace
+
+void SetAccumulator::add_block(std::vector<SetVariant>& variants, const std::string& contig_key,
+                               std::int64_t position) {
+  for (SetVariant& variant : variants) {
+    if (variant.contig_key != stream_contig_) close_passed_sets(variant.contig_key, variant.position);
+    auto shared = std::make_shared<const SetVariant>(std::move(variant));
+    for (const SetMembership& membership : shared->sets) {
+      if (done_[membership.set_index]) {
+        ++tally_.split_across_chromosomes;
+        continue;
+      }
+      OpenSet& open = open_[membership.set_index];
+      open.variants.push_back(shared);
+      open.listed_weights.push_back(membership.weight);
+    }
+  }
+  close_passed_sets(contig_key, position);
+}
+
+void SetAccumulator::close_passed_sets(const std::string& contig_key, std::int64_t position) {
+  stream_contig_ = contig_key;
+  contig_rank_.emplace(contig_key, contig_rank_.size());
+  std::vector<std::uint32_t> closing;
+  for (const auto& [set_index, open] : open_) {
+    const VariantSetDefinition& definition = sets_.set(set_index);
+    const bool left_contig = open.variants.front()->contig_key != contig_key;
+    if (left_contig || (ends_at_known_position(definition) && position > definition.end)) closing.push_back(set_index);
+  }
+  test_and_keep(closing);
+  release_finished_contig(contig_key);
+}
+
+void SetAccumulator::finish() {
+  std::vector<std::uint32_t> closing;
+  for (const auto& entry : open_) closing.push_back(entry.first);
+  test_and_keep(closing);
+  release_finished_contig(std::string(1, '\0'));  // no contig has this key: everything goes out
+}
+
+void SetAccumulator::test_and_keep(const std::vector<std::uint32_t>& closing) {
+  if (closing.empty()) return;
+  std::vector<PendingSetRow> rows(closing.size());
+  std::vector<std::size_t> collapsed(closing.size(), 0);
+  std::vector<bool> tested(closing.size(), false);
+  // Sets are tested in parallel; their rows keep the order of `closing`.
+  tbb::parallel_for(std::size_t{0}, closing.size(), [&](std::size_t closing_idx) {
+    const std::uint32_t set_index = closing[closing_idx];
+    const OpenSet& open = open_.at(set_index);
+    if (open.variants.size() > options_.max_variants) return;
+    const VariantSetDefinition& definition = sets_.set(set_index);
+    SetResultRow row = test_set_variants(trait_, options_, definition.name, open.variants, open.listed_weights,
+                                         &collapsed[closing_idx]);
+    const std::int64_t first = open.variants.front()->position, last = open.variants.back()->position;
+    row.start = definition.start > 0 ? std::min(definition.start, first) : first;
+    row.end = std::max(definition.end, last);
+    PendingSetRow& pending = rows[closing_idx];
+    pending.contig_key = open.variants.front()->contig_key;
+    pending.contig_rank = contig_rank_.at(pending.contig_key);
+    pending.start = row.start;
+    pending.end = row.end;
+    pending.set_index = set_index;
+    append_set_result_row(row, pending.text);
+    tested[closing_idx] = true;
+  });
+  for (std::size_t closing_idx = 0; closing_idx < closing.size(); ++closing_idx) {
+    const std::uint32_t set_index = closing[closing_idx];
+    if (tested[closing_idx]) {
+      ++tally_.tested;
+      tally_.variants_collapsed += collapsed[closing_idx];
+      pending_.push_back(std::move(rows[closing_idx]));
+    } else {
+      ++tally_.too_large;
+      if (tally_.too_large_names.size() < 5) tally_.too_large_names.push_back(sets_.set(set_index).name);
+    }
+    open_.erase(set_index);
+    done_[set_index] = true;
+  }
+}
+
+void SetAccumulator::release_finished_contig(const std::string& contig_key) {
+  auto finished = std::stable_partition(pending_.begin(), pending_.end(),
+                                        [&](const PendingSetRow& row) { return row.contig_key == contig_key; });
+  if (finished == pending_.end()) return;
+  std::sort(finished, pending_.end(), [](const PendingSetRow& a, const PendingSetRow& b) {
+    return std::tie(a.contig_rank, a.start, a.end, a.set_index) <
+           std::tie(b.contig_rank, b.start, b.end, b.set_index);
+  });
+  for (auto row = finished; row != pending_.end(); ++row) ready_ += row->text;
+  pending_.erase(finished, pending_.end());
+}
+
+void SetAccumulator::take_rows(std::string& out) {
+  out += ready_;
+  ready_.clear();
+}
+
+}  // namespace tamis
