@@ -22,7 +22,17 @@ namespace tamis {
 //   chr:pos:ref:alt (matched on chromosome, position and alleles) or any
 //   other text, matched against the VCF ID column (whole, or one of its
 //   semicolon-separated IDs). Lines starting with '#' are comments.
-// Fields are separated by tabs or runs of spaces.
+//   chr:pos:ref:alt is text of exactly four colon-separated parts; such text
+//   with a position that is not a whole number >= 1, or alleles not of
+//   A/C/G/T/N (any case; stored upper case; an ALT may also be '*' or a
+//   symbolic <ID>), is an error, not an ID. A set's lines need not be
+//   adjacent; its chr:pos:ref:alt entries lie on one chromosome.
+// Fields are separated by tabs or runs of spaces; files may be plain or
+// gzip/BGZF-compressed whatever their name. Blank lines are skipped.
+//
+// Set order (set_index): by chromosome (numbered contigs by number, then X,
+// Y, MT, then other contig keys by name), start, end and name; list sets of
+// ID entries only come last, in the order they first appear in the file.
 enum class SetFileFormat { bed, list };
 SetFileFormat set_file_format_of(const std::string& path);
 
@@ -37,7 +47,8 @@ struct SetInterval {
 };
 
 struct SetListEntry {
-  // chr:pos:ref:alt entries: the contig key, position and alleles; ID entries: id only.
+  // chr:pos:ref:alt entries: the contig key, position and upper-case alleles
+  // (id empty); ID entries: id only (position 0).
   std::string id;
   std::string contig_key;
   std::int64_t position = 0;  // 0 for an ID entry
@@ -85,7 +96,10 @@ class VariantSets {
   // set name), a malformed chr:pos:ref:alt, a weight that is negative, zero
   // or not a finite number, one set's lines on two chromosomes, the same
   // variant listed twice in one set, or a file with no set at all. A list
-  // set above max_variants is skipped with a warning.
+  // set above max_variants is skipped with a warning (an error if that
+  // leaves no set). A list line has 2 or 3 columns; '.' is neither a set
+  // name nor a variant. A file that cannot be read to its end (a damaged or
+  // truncated .gz) is an error too.
   static VariantSets load(const std::string& path, const SetFileOptions& options = {});
 
   std::size_t size() const { return sets_.size(); }
@@ -94,7 +108,11 @@ class VariantSets {
   const SetFileSummary& summary() const { return summary_; }
 
   // Appends to `out` (cleared first) the sets that take a variant, in
-  // increasing set index. Thread-safe (const, no caching). `contig_key` is
+  // increasing set index, each once (a list set that takes the variant by
+  // its alleles and by IDs gives the allele entry's weight, else that of the
+  // record's ID it lists first: the whole ID column, then its parts in
+  // order). Alleles are compared ignoring case; an ID of "." matches
+  // nothing. BED sets carry no weights. Thread-safe (const, no caching). `contig_key` is
   // set_contig_key of the record's contig, `id` its ID column.
   void find_sets(const std::string& contig_key, std::int64_t position, const std::string& id,
                  const std::string& ref, const std::string& alt, std::vector<SetMembership>& out) const;

@@ -10,6 +10,8 @@
 #include <charconv>
 #include <cmath>
 #include <cstdlib>
+#include <numeric>
+#include <tuple>
 #include <unordered_map>
 #include <utility>
 
@@ -29,11 +31,17 @@ struct IntervalSegments {
   std::vector<std::uint32_t> set_indices;
 };
 
-struct AlleleMember {
-  std::string ref, alt;  // upper case
-  SetMembership membership;
+// A chr:pos:ref:alt entry of a list set, by reference: its alleles and weight
+// stay in the set's definition.
+struct AlleleEntryRef {
+  std::int64_t position = 0;
+  std::uint32_t set_index = 0;
+  std::uint32_t entry_index = 0;
 };
-using MembersAtPosition = std::unordered_map<std::int64_t, std::vector<AlleleMember>>;
+bool operator<(const AlleleEntryRef& left, const AlleleEntryRef& right) {
+  return std::tie(left.position, left.set_index, left.entry_index) <
+         std::tie(right.position, right.set_index, right.entry_index);
+}
 using MembersById = std::unordered_map<std::string, std::vector<SetMembership>>;
 
 bool ends_with(const std::string& text, const std::string& suffix) {
@@ -178,14 +186,6 @@ BedLine parse_bed_line(const std::vector<std::string>& fields, const Place& plac
   return {set_contig_key(fields[0]), {start + 1, end}, fields[3]};
 }
 
-// A variant of a list: chr:pos:ref:alt, or any other text as a VCF ID.
-struct ListVariant {
-  std::string id;
-  std::string contig_key;
-  std::int64_t position = 0;
-  std::string ref, alt;
-};
-
 // Bases as VCF writes them (VCF 4.3, 1.4.1), any case; an ALT may also be the
 // spanning deletion '*' or a symbolic <ID>, as --variants takes them.
 bool is_allele(const std::string& text, bool alt) {
@@ -204,16 +204,20 @@ std::vector<std::string> split_on(const std::string& text, char separator) {
   }
 }
 
-ListVariant parse_list_variant(const std::string& text, const Place& place) {
+// A variant of a list: chr:pos:ref:alt, or any other text as a VCF ID.
+SetListEntry parse_list_variant(const std::string& text, const Place& place) {
   if (text == ".") {
     throw Error(ExitCode::usage, place.column(2), "'.' is the VCF mark of a missing ID, not a variant",
                 "leave the line out, or write the variant as chr:pos:ref:alt");
   }
+  SetListEntry entry;
   const std::vector<std::string> parts = split_on(text, ':');
-  if (parts.size() != 4) return {text, "", 0, "", ""};
+  if (parts.size() != 4) {
+    entry.id = text;
+    return entry;
+  }
   std::int64_t position = 0;
-  const bool position_ok = parse_integer(parts[1], position) && position >= 1 && position <= largest_position &&
-                           parts[1].front() != '+';
+  const bool position_ok = parse_integer(parts[1], position) && position >= 1 && position <= largest_position;
   if (parts[0].empty() || !position_ok || !is_allele(parts[2], false) || !is_allele(parts[3], true)) {
     throw Error(ExitCode::usage, place.column(2),
                 "expected chr:pos:ref:alt with a position of at least 1 and alleles of A, C, G, T "
@@ -221,7 +225,16 @@ ListVariant parse_list_variant(const std::string& text, const Place& place) {
                 "write the variant as chr:pos:ref:alt such as 3:1204511:C:T, or as its VCF ID "
                 "(an ID cannot have exactly four colon-separated parts)");
   }
-  return {"", set_contig_key(parts[0]), position, upper_case(parts[2]), upper_case(parts[3])};
+  entry.contig_key = set_contig_key(parts[0]);
+  entry.position = position;
+  entry.ref = upper_case(parts[2]);
+  entry.alt = upper_case(parts[3]);
+  return entry;
+}
+
+std::string describe_entry(const SetListEntry& entry) {
+  if (entry.position == 0) return entry.id;
+  return entry.contig_key + ":" + std::to_string(entry.position) + ":" + entry.ref + ":" + entry.alt;
 }
 
 double parse_weight(const std::string& text, const Place& place) {
@@ -241,7 +254,7 @@ double parse_weight(const std::string& text, const Place& place) {
 struct SetUnderConstruction {
   VariantSetDefinition definition;
   std::size_t contig_line = 0;  // the line that fixed the set's chromosome
-  std::unordered_map<std::string, std::size_t> entry_lines;  // list entries seen, by key
+  std::vector<std::size_t> entry_lines;  // the line of each list entry
 };
 
 class SetCollector {
@@ -274,27 +287,10 @@ class SetCollector {
                 "a set name of their own");
   }
 
-  void add_entry(SetUnderConstruction& set, ListVariant variant, double weight, const Place& place) {
-    const bool by_position = variant.position > 0;
-    const std::string key = by_position ? variant.contig_key + ":" + std::to_string(variant.position) + ":" +
-                                              variant.ref + ":" + variant.alt
-                                        : variant.id;
-    auto [found, inserted] = set.entry_lines.emplace(key, place.line);
-    if (!inserted) {
-      throw Error(ExitCode::usage, place.column(2),
-                  "the set " + quote(set.definition.name) + " lists the variant " + quote(key) +
-                      " a second time (first at line " + std::to_string(found->second) + ")",
-                  "list each variant once per set");
-    }
-    if (by_position) place_on_contig(set, variant.contig_key, place, 2);
-    SetListEntry entry;
-    entry.id = std::move(variant.id);
-    entry.contig_key = std::move(variant.contig_key);
-    entry.position = variant.position;
-    entry.ref = std::move(variant.ref);
-    entry.alt = std::move(variant.alt);
-    entry.weight = weight;
+  void add_entry(SetUnderConstruction& set, SetListEntry entry, const Place& place) {
+    if (entry.position > 0) place_on_contig(set, entry.contig_key, place, 2);
     set.definition.entries.push_back(std::move(entry));
+    set.entry_lines.push_back(place.line);
   }
 
   std::vector<SetUnderConstruction>& sets() { return sets_; }
@@ -324,10 +320,39 @@ void read_list_line(const std::vector<std::string>& fields, const Place& place, 
                 "its weight; a header line must start with '#'");
   }
   check_set_name(fields[0], place, 1);
-  ListVariant variant = parse_list_variant(fields[1], place);
-  const double weight =
-      fields.size() == 3 ? parse_weight(fields[2], place) : std::numeric_limits<double>::quiet_NaN();
-  collector.add_entry(collector.set_named(fields[0], place.line), std::move(variant), weight, place);
+  SetListEntry entry = parse_list_variant(fields[1], place);
+  if (fields.size() == 3) entry.weight = parse_weight(fields[2], place);
+  collector.add_entry(collector.set_named(fields[0], place.line), std::move(entry), place);
+}
+
+// The same variant twice in one set; of several, the repeat that comes first
+// in the file. Checked once the file is read, by sorting, which needs no
+// lookup table over a whole file of masks.
+void check_repeated_entries(const SetUnderConstruction& set, const std::string& path) {
+  const std::vector<SetListEntry>& entries = set.definition.entries;
+  auto variant_of = [&entries](std::size_t entry_idx) {
+    const SetListEntry& entry = entries[entry_idx];
+    return std::tie(entry.position, entry.contig_key, entry.ref, entry.alt, entry.id);
+  };
+  std::vector<std::size_t> order(entries.size());
+  std::iota(order.begin(), order.end(), std::size_t{0});
+  // Stable: a variant's entries stay in file order.
+  std::stable_sort(order.begin(), order.end(),
+                   [&variant_of](std::size_t left, std::size_t right) { return variant_of(left) < variant_of(right); });
+  std::size_t first = 0, repeat = entries.size();
+  for (std::size_t group_start = 0, order_idx = 1; order_idx < order.size(); ++order_idx) {
+    if (variant_of(order[order_idx]) != variant_of(order[order_idx - 1])) {
+      group_start = order_idx;
+    } else if (order_idx == group_start + 1 && order[order_idx] < repeat) {
+      first = order[group_start];
+      repeat = order[order_idx];
+    }
+  }
+  if (repeat == entries.size()) return;
+  throw Error(ExitCode::usage, Place{path, set.entry_lines[repeat]}.column(2),
+              "the set " + quote(set.definition.name) + " lists the variant " + quote(describe_entry(entries[repeat])) +
+                  " a second time (first at line " + std::to_string(set.entry_lines[first]) + ")",
+              "list each variant once per set");
 }
 
 // Sorted, with touching and overlapping intervals joined.
@@ -449,10 +474,10 @@ void append_id_members(const MembersById& ids, const std::string& id, std::vecto
 
 // The lookups find_sets makes: per contig key, the elementary segments of the
 // BED sets' intervals; for list sets, the chr:pos:ref:alt entries by contig
-// key and position, and the ID entries by ID.
+// key, sorted by position, and the ID entries by ID.
 struct VariantSets::Index {
   std::unordered_map<std::string, IntervalSegments> segments;
-  std::unordered_map<std::string, MembersAtPosition> alleles;
+  std::unordered_map<std::string, std::vector<AlleleEntryRef>> alleles;
   MembersById ids;
 };
 
@@ -497,6 +522,7 @@ VariantSets VariantSets::load(const std::string& path, const SetFileOptions& opt
   }
 
   for (SetUnderConstruction& set : collector.sets()) {
+    check_repeated_entries(set, path);
     VariantSetDefinition& definition = set.definition;
     if (!bed && definition.entries.size() > options.max_variants) {
       ++result.summary_.skipped_too_large;
@@ -523,15 +549,17 @@ VariantSets VariantSets::load(const std::string& path, const SetFileOptions& opt
     index_intervals(result.sets_, index->segments);
   } else {
     for (std::uint32_t set_index = 0; set_index < result.sets_.size(); ++set_index) {
-      for (const SetListEntry& entry : result.sets_[set_index].entries) {
-        const SetMembership membership{set_index, entry.weight};
+      const std::vector<SetListEntry>& entries = result.sets_[set_index].entries;
+      for (std::uint32_t entry_idx = 0; entry_idx < entries.size(); ++entry_idx) {
+        const SetListEntry& entry = entries[entry_idx];
         if (entry.position > 0) {
-          index->alleles[entry.contig_key][entry.position].push_back({entry.ref, entry.alt, membership});
+          index->alleles[entry.contig_key].push_back({entry.position, set_index, entry_idx});
         } else {
-          index->ids[entry.id].push_back(membership);
+          index->ids[entry.id].push_back({set_index, entry.weight});
         }
       }
     }
+    for (auto& contig_entries : index->alleles) std::sort(contig_entries.second.begin(), contig_entries.second.end());
   }
   result.index_ = std::move(index);
   return result;
@@ -559,11 +587,14 @@ void VariantSets::find_sets(const std::string& contig_key, std::int64_t position
 
   const auto contig_alleles = index.alleles.find(contig_key);
   if (contig_alleles != index.alleles.end()) {
-    const auto at_position = contig_alleles->second.find(position);
-    if (at_position != contig_alleles->second.end()) {
-      for (const AlleleMember& member : at_position->second) {
-        if (same_allele(member.ref, ref) && same_allele(member.alt, alt)) out.push_back(member.membership);
-      }
+    const auto [first, last] = std::equal_range(contig_alleles->second.begin(), contig_alleles->second.end(),
+                                                AlleleEntryRef{position, 0, 0},
+                                                [](const AlleleEntryRef& left, const AlleleEntryRef& right) {
+                                                  return left.position < right.position;
+                                                });
+    for (auto member = first; member != last; ++member) {
+      const SetListEntry& entry = sets_[member->set_index].entries[member->entry_index];
+      if (same_allele(entry.ref, ref) && same_allele(entry.alt, alt)) out.push_back({member->set_index, entry.weight});
     }
   }
   if (!index.ids.empty() && !id.empty() && id != ".") {
@@ -573,8 +604,8 @@ void VariantSets::find_sets(const std::string& contig_key, std::int64_t position
     }
   }
   if (out.size() > 1) {
-    // A set may take the variant by its alleles and by an ID: the allele
-    // entry, appended first, keeps its weight.
+    // A set may take the variant by its alleles and by IDs: the allele
+    // entry, appended first, keeps its weight, else the first of the IDs.
     std::stable_sort(out.begin(), out.end(), [](const SetMembership& left, const SetMembership& right) {
       return left.set_index < right.set_index;
     });
