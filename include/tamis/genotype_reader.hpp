@@ -4,6 +4,7 @@
 
 #include <cstddef>
 #include <cstdint>
+#include <functional>
 #include <limits>
 #include <memory>
 #include <optional>
@@ -117,8 +118,14 @@ GenomicRegion parse_region(const std::string& text);
 // equal; the same files always give the same plan.
 // Throws tamis::Error (genotype_input) for a file without an index, and
 // (usage) for a shard outside 1..shard_count.
+//
+// `move_cut`, when given, may move each cut (the contig and the first
+// position of the shard after it) further along its contig, never back: a
+// scan with variant sets moves cuts out of the sets, so that each set lies
+// whole in one shard. It must return the same for the same arguments.
+using ShardCutMover = std::function<std::int64_t(const std::string& contig, std::int64_t first_position)>;
 std::vector<GenomicRegion> plan_shard(const std::vector<std::string>& paths, int shard,
-                                      int shard_count);
+                                      int shard_count, const ShardCutMover& move_cut = {});
 
 struct GenotypeReaderOptions {
   std::vector<std::string> paths;

@@ -243,7 +243,8 @@ struct CutPoint {
   }
 };
 
-std::vector<CutPoint> place_cuts(const std::vector<ContigPlan>& contigs, int shard_count) {
+std::vector<CutPoint> place_cuts(const std::vector<ContigPlan>& contigs, int shard_count,
+                                 const ShardCutMover& move_cut) {
   double total = 0.0;
   for (const ContigPlan& contig : contigs) total += contig.records;
   std::vector<CutPoint> cuts{CutPoint{0, 1}};
@@ -262,8 +263,12 @@ std::vector<CutPoint> place_cuts(const std::vector<ContigPlan>& contigs, int sha
     if (cut.rank >= contigs.size()) cut = CutPoint{contigs.size() - 1, 1};
     // Strictly increasing cuts give every shard at least one position, so no
     // shard's region list is empty (an empty list would mean "everything").
+    if (move_cut && cut.rank < contigs.size()) cut.position = move_cut(contigs[cut.rank].name, cut.position);
     const CutPoint& previous = cuts.back();
-    if (cut <= previous) cut = CutPoint{previous.rank, previous.position + 1};
+    if (cut <= previous) {
+      cut = CutPoint{previous.rank, previous.position + 1};
+      if (move_cut) cut.position = move_cut(contigs[cut.rank].name, cut.position);
+    }
     cuts.push_back(cut);
   }
   cuts.push_back(CutPoint{contigs.size(), 1});
@@ -286,7 +291,7 @@ std::vector<GenomicRegion> regions_between(const std::vector<ContigPlan>& contig
 }  // namespace
 
 std::vector<GenomicRegion> plan_shard(const std::vector<std::string>& paths, int shard,
-                                      int shard_count) {
+                                      int shard_count, const ShardCutMover& move_cut) {
   if (shard_count < 1 || shard < 1 || shard > shard_count) {
     throw Error(ExitCode::usage, "",
                 "shard " + std::to_string(shard) + " of " + std::to_string(shard_count) +
@@ -296,7 +301,7 @@ std::vector<GenomicRegion> plan_shard(const std::vector<std::string>& paths, int
   const std::vector<ContigPlan> contigs = profile_genome(paths);
   // Files without a single record: nothing to split, and reading them whole reads nothing.
   if (contigs.empty()) return {};
-  const std::vector<CutPoint> cuts = place_cuts(contigs, shard_count);
+  const std::vector<CutPoint> cuts = place_cuts(contigs, shard_count, move_cut);
   return regions_between(contigs, cuts[shard - 1], cuts[shard]);
 }
 

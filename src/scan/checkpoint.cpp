@@ -105,6 +105,7 @@ std::string fingerprint_of(const std::vector<std::string>& description) {
 }
 
 std::string checkpoint_path(const std::string& out_prefix) { return out_prefix + ".resume"; }
+std::string sets_state_path(const std::string& out_prefix) { return out_prefix + ".resume-sets"; }
 
 void save_checkpoint(const std::string& path, const CheckpointState& state) {
   std::ostringstream text;
@@ -112,6 +113,8 @@ void save_checkpoint(const std::string& path, const CheckpointState& state) {
   for (const std::string& line : state.run_description) text << "run " << line << "\n";
   text << "blocks " << state.blocks << "\nrecords " << state.records << "\nalleles " << state.alleles << "\n";
   for (const auto& [trait, size] : state.compressed_sizes) text << "size " << trait << " " << size << "\n";
+  for (const auto& [trait, size] : state.set_compressed_sizes) text << "setsize " << trait << " " << size << "\n";
+  if (!state.sets_state_digest.empty()) text << "setstate " << state.sets_state_digest << "\n";
   for (const auto& [trait, tally] : state.tallies) {
     text << "tally " << trait << " " << tally.written << " " << tally.monomorphic << " "
          << tally.in_covariate_span << " " << tally.confirmed << " " << tally.discordant << " "
@@ -150,6 +153,13 @@ std::optional<CheckpointState> load_checkpoint(const std::string& path) {
       std::uint64_t size = 0;
       ok = static_cast<bool>(fields >> trait >> size);
       state.compressed_sizes[trait] = size;
+    } else if (key == "setsize") {
+      std::string trait;
+      std::uint64_t size = 0;
+      ok = static_cast<bool>(fields >> trait >> size);
+      state.set_compressed_sizes[trait] = size;
+    } else if (key == "setstate") {
+      ok = static_cast<bool>(fields >> state.sets_state_digest);
     } else if (key == "tally") {
       std::string trait;
       TraitTally tally;

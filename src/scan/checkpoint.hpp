@@ -19,6 +19,10 @@ struct CheckpointState {
   std::uint64_t alleles = 0;
   std::map<std::string, std::uint64_t> compressed_sizes;  // trait -> bytes at the checkpoint
   std::map<std::string, TraitTally> tallies;
+  // With --sets: each trait's set file at the checkpoint, and the digest of
+  // the open sets' state (saved beside the checkpoint, see sets_state_path).
+  std::map<std::string, std::uint64_t> set_compressed_sizes;
+  std::string sets_state_digest;
 };
 
 // The inputs and every option that changes the results, one "key=value" per
@@ -31,6 +35,7 @@ std::vector<std::string> describe_run(const ScanOptions& options, bool with_shar
 std::string fingerprint_of(const std::vector<std::string>& description);
 
 std::string checkpoint_path(const std::string& out_prefix);
+std::string sets_state_path(const std::string& out_prefix);
 void save_checkpoint(const std::string& path, const CheckpointState& state);
 // Nothing when the file does not exist; throws tamis::Error (usage) when it is unreadable.
 std::optional<CheckpointState> load_checkpoint(const std::string& path);

@@ -12,6 +12,7 @@
 #include <algorithm>
 #include <memory>
 #include <mutex>
+#include <fstream>
 #include <sstream>
 
 #include "scan/block_sizing.hpp"
@@ -249,10 +250,26 @@ struct ScanProgress {
   std::vector<std::unique_ptr<SetAccumulator>> set_accumulators;
 };
 
+// The open sets go first, under their own name; the checkpoint then names
+// their digest, so that a run stopped between the two saves is refused on
+// --resume rather than continued with sets from another point.
+void save_set_progress(const ScanOptions& options, const std::vector<TraitContext>& traits, ScanProgress& progress) {
+  std::string bytes;
+  for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
+    progress.state.set_compressed_sizes[traits[trait_idx].set.trait] = progress.set_files[trait_idx]->checkpoint();
+    progress.set_accumulators[trait_idx]->save(bytes);
+  }
+  progress.state.sets_state_digest = fingerprint_of({bytes});
+  PlainTextFile file(sets_state_path(options.out_prefix));
+  file.write(bytes);
+  file.commit();
+}
+
 void save_progress(const ScanOptions& options, const std::vector<TraitContext>& traits, ScanProgress& progress) {
   for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
     progress.state.compressed_sizes[traits[trait_idx].set.trait] = progress.files[trait_idx]->checkpoint();
   }
+  if (progress.sets) save_set_progress(options, traits, progress);
   save_checkpoint(checkpoint_path(options.out_prefix), progress.state);
 }
 
@@ -492,7 +509,7 @@ void log_tallies(const ScanSummary& summary, const std::vector<TraitContext>& tr
   }
 }
 
-VariantSets load_sets(const SetScanOptions& options) {
+VariantSets load_sets(const SetScanOptions& options, bool sharded) {
   SetFileOptions file_options;
   file_options.max_variants = options.max_variants;
   VariantSets sets = VariantSets::load(options.path, file_options);
@@ -508,17 +525,54 @@ VariantSets load_sets(const SetScanOptions& options) {
                                                      " summed into one variant per set"
                                                : std::string()));
   for (const std::string& warning : summary.warnings) current_log().line("warning: " + warning);
+  if (sharded && has_id_only_entries(sets)) {
+    current_log().line("warning: --shard with sets listed by ID: a shard sees only its own part of the genome, so a "
+                       "set whose variants are named by ID only is tested with the variants of the shard where "
+                       "they first appear; list them as chr:pos:ref:alt so that shards keep sets whole");
+  }
   return sets;
 }
 
+[[noreturn]] void refuse_set_resume(const ScanOptions& options, const std::string& problem) {
+  throw Error(ExitCode::usage, checkpoint_path(options.out_prefix), problem, "run the scan again without --resume");
+}
+
+std::string read_whole_file(const std::string& path) {
+  std::ifstream input(path, std::ios::binary);
+  std::ostringstream bytes;
+  bytes << input.rdbuf();
+  return bytes.str();
+}
+
+// On --resume, the set files continue from the checkpoint and the open sets
+// come back as they were.
 void open_set_files(const ScanOptions& options, const std::vector<TraitContext>& traits, const VariantSets& sets,
-                    ScanProgress& progress) {
+                    const std::optional<CheckpointState>& saved, ScanProgress& progress) {
   progress.sets = &sets;
   for (const TraitContext& trait : traits) {
-    progress.set_files.push_back(std::make_unique<BgzfTextFile>(set_result_path(options.out_prefix, trait.set.trait)));
-    progress.set_files.back()->write(set_result_header_line());
+    const std::string path = set_result_path(options.out_prefix, trait.set.trait);
+    if (saved) {
+      auto size = saved->set_compressed_sizes.find(trait.set.trait);
+      if (size == saved->set_compressed_sizes.end()) {
+        refuse_set_resume(options, "the checkpoint has no partial set results for trait " + trait.set.trait);
+      }
+      progress.set_files.push_back(BgzfTextFile::resume(path, size->second));
+    } else {
+      progress.set_files.push_back(std::make_unique<BgzfTextFile>(path));
+      progress.set_files.back()->write(set_result_header_line());
+    }
+    progress.set_files.back()->keep_on_interrupt();
     progress.set_accumulators.push_back(std::make_unique<SetAccumulator>(sets, options.sets, trait));
   }
+  if (!saved) return;
+  const std::string state_path = sets_state_path(options.out_prefix);
+  const std::string bytes = read_whole_file(state_path);
+  if (fingerprint_of({bytes}) != saved->sets_state_digest) {
+    refuse_set_resume(options, "the saved state of the open variant sets (" + state_path +
+                                   ") does not belong to this checkpoint");
+  }
+  std::size_t offset = 0;
+  for (auto& accumulator : progress.set_accumulators) accumulator->restore(bytes, offset, state_path);
 }
 
 void finish_set_tests(const std::vector<TraitContext>& traits, ScanProgress& progress) {
@@ -597,8 +651,14 @@ ScanSummary run_scan(const ScanOptions& requested) {
                                    static_cast<std::size_t>(options.threads));
   GenotypeReaderOptions reader_options = reader_options_for(
       options.genotype_paths, options.dosage_field, options.threads, options.regions, options.haploid_dosage);
+  std::optional<VariantSets> sets;
+  if (options.sets.active()) sets = load_sets(options.sets, options.shard_count > 0);
   if (options.shard_count > 0) {
-    reader_options.regions = plan_shard(options.genotype_paths, options.shard, options.shard_count);
+    ShardCutMover move_cut;
+    if (sets) {
+      move_cut = [&sets](const std::string& contig, std::int64_t first) { return cut_outside_sets(*sets, contig, first); };
+    }
+    reader_options.regions = plan_shard(options.genotype_paths, options.shard, options.shard_count, move_cut);
     current_log().line("shard " + std::to_string(options.shard) + "/" + std::to_string(options.shard_count) +
                        ": " + (reader_options.regions.empty() ? std::string("(no records)")
                                                               : describe_regions(reader_options.regions)));
@@ -629,11 +689,7 @@ ScanSummary run_scan(const ScanOptions& requested) {
   }
   for (const TraitContext& trait : traits) progress.state.tallies[trait.set.trait];
   open_result_files(options, traits, saved, progress);
-  std::optional<VariantSets> sets;
-  if (options.sets.active()) {
-    sets = load_sets(options.sets);
-    open_set_files(options, traits, *sets, progress);
-  }
+  if (sets) open_set_files(options, traits, *sets, saved, progress);
   run_pipeline(options, reader, traits, progress);
   if (sets) finish_set_tests(traits, progress);
 
@@ -641,6 +697,7 @@ ScanSummary run_scan(const ScanOptions& requested) {
   // while committing then starts over on --resume instead of finding some
   // traits' results already renamed.
   std::remove(checkpoint_path(options.out_prefix).c_str());
+  if (sets) std::remove(sets_state_path(options.out_prefix).c_str());
   ScanSummary summary;
   summary.records = progress.state.records;
   summary.alleles = progress.state.alleles;

@@ -4,12 +4,15 @@
 
 #include <Eigen/Sparse>
 #include <algorithm>
+#include <cstring>
+#include <type_traits>
 #include <cmath>
 #include <limits>
 #include <tuple>
 
 #include "scan/trait_pass.hpp"
 #include "tamis/distributions.hpp"
+#include "tamis/errors.hpp"
 #include "tamis/saddlepoint.hpp"
 #include "tamis/set_tests.hpp"
 
@@ -354,6 +357,208 @@ void SetAccumulator::release_finished_contig(const std::string& contig_key) {
 void SetAccumulator::take_rows(std::string& out) {
   out += ready_;
   ready_.clear();
+}
+
+namespace {
+
+// Checkpoint bytes: numbers in the machine's own layout (a checkpoint is
+// resumed where it was written), strings and vectors with their lengths.
+class StateWriter {
+ public:
+  explicit StateWriter(std::string& out) : out_(out) {}
+  template <typename T>
+  void number(T value) {
+    static_assert(std::is_arithmetic_v<T>, "numbers only");
+    out_.append(reinterpret_cast<const char*>(&value), sizeof value);
+  }
+  void text(const std::string& value) {
+    number<std::uint64_t>(value.size());
+    out_ += value;
+  }
+  template <typename T>
+  void numbers(const std::vector<T>& values) {
+    number<std::uint64_t>(values.size());
+    out_.append(reinterpret_cast<const char*>(values.data()), values.size() * sizeof(T));
+  }
+
+ private:
+  std::string& out_;
+};
+
+class StateReader {
+ public:
+  StateReader(const std::string& bytes, std::size_t& offset, const std::string& source)
+      : bytes_(bytes), offset_(offset), source_(source) {}
+  template <typename T>
+  T number() {
+    T value;
+    std::memcpy(&value, take(sizeof value), sizeof value);
+    return value;
+  }
+  std::string text() {
+    const std::uint64_t size = number<std::uint64_t>();
+    return std::string(take(size), size);
+  }
+  template <typename T>
+  std::vector<T> numbers() {
+    const std::uint64_t count = number<std::uint64_t>();
+    if (count > bytes_.size() / sizeof(T)) damaged();
+    std::vector<T> values(count);
+    std::memcpy(values.data(), take(count * sizeof(T)), count * sizeof(T));
+    return values;
+  }
+
+ private:
+  const char* take(std::uint64_t size) {
+    if (size > bytes_.size() - offset_) damaged();
+    const char* at = bytes_.data() + offset_;
+    offset_ += size;
+    return at;
+  }
+  [[noreturn]] void damaged() const {
+    throw Error(ExitCode::usage, source_, "the checkpoint of the open variant sets is damaged",
+                "remove the checkpoint files and run the scan again without --resume");
+  }
+  const std::string& bytes_;
+  std::size_t& offset_;
+  const std::string& source_;
+};
+
+void save_column(StateWriter& writer, const SparseColumn& column) {
+  writer.numbers(column.samples);
+  writer.numbers(column.values);
+}
+
+SparseColumn restore_column(StateReader& reader) {
+  SparseColumn column;
+  column.samples = reader.numbers<std::uint32_t>();
+  column.values = reader.numbers<double>();
+  return column;
+}
+
+void save_variant(StateWriter& writer, const SetVariant& variant) {
+  writer.text(variant.variant_id);
+  writer.text(variant.chromosome);
+  writer.text(variant.contig_key);
+  writer.number(variant.position);
+  for (double value : {variant.minor_allele_frequency, variant.mac, variant.sign, variant.u, variant.log_p}) {
+    writer.number(value);
+  }
+  writer.numbers(variant.projections);
+  save_column(writer, variant.column);
+  save_column(writer, variant.dosages);
+  writer.number<std::uint64_t>(variant.sets.size());
+  for (const SetMembership& membership : variant.sets) {
+    writer.number(membership.set_index);
+    writer.number(membership.weight);
+  }
+}
+
+SetVariant restore_variant(StateReader& reader) {
+  SetVariant variant;
+  variant.variant_id = reader.text();
+  variant.chromosome = reader.text();
+  variant.contig_key = reader.text();
+  variant.position = reader.number<std::int64_t>();
+  for (double* value : {&variant.minor_allele_frequency, &variant.mac, &variant.sign, &variant.u, &variant.log_p}) {
+    *value = reader.number<double>();
+  }
+  variant.projections = reader.numbers<double>();
+  variant.column = restore_column(reader);
+  variant.dosages = restore_column(reader);
+  variant.sets.resize(reader.number<std::uint64_t>());
+  for (SetMembership& membership : variant.sets) {
+    membership.set_index = reader.number<std::uint32_t>();
+    membership.weight = reader.number<double>();
+  }
+  return variant;
+}
+
+}  // namespace
+
+void SetAccumulator::save(std::string& out) const {
+  StateWriter writer(out);
+  writer.text(stream_contig_);
+  writer.number<std::uint64_t>(contig_rank_.size());
+  for (const auto& [contig, rank] : contig_rank_) {
+    writer.text(contig);
+    writer.number<std::uint64_t>(rank);
+  }
+  // A variant shared by overlapping sets is written once, and each set
+  // names its variants by their place in that list.
+  std::map<const SetVariant*, std::uint64_t> numbering;
+  std::vector<const SetVariant*> variants;
+  for (const auto& entry : open_) {
+    for (const auto& variant : entry.second.variants) {
+      if (numbering.emplace(variant.get(), variants.size()).second) variants.push_back(variant.get());
+    }
+  }
+  writer.number<std::uint64_t>(variants.size());
+  for (const SetVariant* variant : variants) save_variant(writer, *variant);
+  writer.number<std::uint64_t>(open_.size());
+  for (const auto& [set_index, open] : open_) {
+    writer.number(set_index);
+    std::vector<std::uint64_t> members;
+    for (const auto& variant : open.variants) members.push_back(numbering.at(variant.get()));
+    writer.numbers(members);
+    writer.numbers(open.listed_weights);
+  }
+  std::vector<std::uint8_t> done(done_.begin(), done_.end());
+  writer.numbers(done);
+  writer.number<std::uint64_t>(pending_.size());
+  for (const PendingSetRow& row : pending_) {
+    writer.text(row.contig_key);
+    writer.number<std::uint64_t>(row.contig_rank);
+    writer.number(row.start);
+    writer.number(row.end);
+    writer.number(row.set_index);
+    writer.text(row.text);
+  }
+  for (std::uint64_t count : {tally_.tested, tally_.too_large, tally_.split_across_chromosomes,
+                              tally_.variants_collapsed}) {
+    writer.number(count);
+  }
+  writer.number<std::uint64_t>(tally_.too_large_names.size());
+  for (const std::string& name : tally_.too_large_names) writer.text(name);
+}
+
+void SetAccumulator::restore(const std::string& bytes, std::size_t& offset, const std::string& source) {
+  StateReader reader(bytes, offset, source);
+  stream_contig_ = reader.text();
+  contig_rank_.clear();
+  for (std::uint64_t count = reader.number<std::uint64_t>(); count > 0; --count) {
+    std::string contig = reader.text();
+    contig_rank_[contig] = reader.number<std::uint64_t>();
+  }
+  std::vector<std::shared_ptr<const SetVariant>> variants(reader.number<std::uint64_t>());
+  for (auto& variant : variants) variant = std::make_shared<const SetVariant>(restore_variant(reader));
+  open_.clear();
+  for (std::uint64_t count = reader.number<std::uint64_t>(); count > 0; --count) {
+    OpenSet& open = open_[reader.number<std::uint32_t>()];
+    for (std::uint64_t member : reader.numbers<std::uint64_t>()) open.variants.push_back(variants.at(member));
+    open.listed_weights = reader.numbers<double>();
+  }
+  const std::vector<std::uint8_t> done = reader.numbers<std::uint8_t>();
+  done_.assign(done.begin(), done.end());
+  pending_.resize(reader.number<std::uint64_t>());
+  for (PendingSetRow& row : pending_) {
+    row.contig_key = reader.text();
+    row.contig_rank = reader.number<std::uint64_t>();
+    row.start = reader.number<std::int64_t>();
+    row.end = reader.number<std::int64_t>();
+    row.set_index = reader.number<std::uint32_t>();
+    row.text = reader.text();
+  }
+  for (std::uint64_t* count : {&tally_.tested, &tally_.too_large, &tally_.split_across_chromosomes,
+                               &tally_.variants_collapsed}) {
+    *count = reader.number<std::uint64_t>();
+  }
+  tally_.too_large_names.resize(reader.number<std::uint64_t>());
+  for (std::string& name : tally_.too_large_names) name = reader.text();
+  if (done_.size() != sets_.size()) {
+    throw Error(ExitCode::usage, source, "the checkpoint of the open variant sets is for another set file",
+                "run the scan again without --resume");
+  }
 }
 
 }  // namespace tamis

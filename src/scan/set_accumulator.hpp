@@ -56,6 +56,12 @@ class SetAccumulator {
   // Appends the rows of finished chromosomes, sorted by start, and forgets them.
   void take_rows(std::string& out);
 
+  // The state a checkpoint keeps (open sets, rows waiting, tallies), as
+  // bytes, and its return on --resume; restore throws tamis::Error (usage)
+  // naming `source` when the bytes are damaged.
+  void save(std::string& out) const;
+  void restore(const std::string& bytes, std::size_t& offset, const std::string& source);
+
   const SetTally& tally() const { return tally_; }
   std::size_t max_variants() const { return options_.max_variants; }
 

@@ -17,6 +17,32 @@ const char* set_weighting_name(SetWeighting weighting) {
   return "beta_1_25";
 }
 
+std::int64_t cut_outside_sets(const VariantSets& sets, const std::string& contig, std::int64_t first_position) {
+  const std::string key = set_contig_key(contig);
+  std::int64_t cut = first_position;
+  for (bool moved = true; moved;) {
+    moved = false;
+    for (std::size_t set_idx = 0; set_idx < sets.size(); ++set_idx) {
+      const VariantSetDefinition& set = sets.set(set_idx);
+      if (set.contig_key != key || set.start <= 0 || set.end <= 0) continue;
+      if (set.start < cut && set.end >= cut) {
+        cut = set.end + 1;
+        moved = true;
+      }
+    }
+  }
+  return cut;
+}
+
+bool has_id_only_entries(const VariantSets& sets) {
+  for (std::size_t set_idx = 0; set_idx < sets.size(); ++set_idx) {
+    for (const SetListEntry& entry : sets.set(set_idx).entries) {
+      if (entry.position == 0) return true;
+    }
+  }
+  return false;
+}
+
 void find_block_sets(const VariantSets& sets, const DosageBlock& block, BlockSets& out) {
   out.of_site.resize(block.size());
   out.contig_keys.resize(block.size());

@@ -28,6 +28,15 @@ struct BlockSets {
   std::vector<std::string> contig_keys;  // set_contig_key of each site's contig
 };
 
+// Where a shard's cut at `first_position` of `contig` goes so that no set
+// with a known extent straddles it: past the end of every set that holds
+// both sides (and of any set that then straddles the new cut).
+std::int64_t cut_outside_sets(const VariantSets& sets, const std::string& contig, std::int64_t first_position);
+
+// Whether some list set names a variant by ID only (its position is unknown
+// until the stream meets it).
+bool has_id_only_entries(const VariantSets& sets);
+
 // Fills `out` for every site of the block (one lookup per site, shared by all traits).
 void find_block_sets(const VariantSets& sets, const DosageBlock& block, BlockSets& out);
 
