@@ -659,4 +659,186 @@ TEST(LargeReport, TwoMillionRowsRenderQuicklyAndKeepEverySuggestivePoint) {
   EXPECT_EQ(points.size(), summary.traits.at(0).manhattan_points_drawn);
 }
 
+// ---- variant sets (scan --sets) --------------------------------------------
+
+tamis::SetResultRow make_set_row(const std::string& name, const std::string& chromosome, std::int64_t start,
+                                 std::int64_t end, double overall_p) {
+  tamis::SetResultRow row;
+  row.set = name;
+  row.chromosome = chromosome;
+  row.start = start;
+  row.end = end;
+  row.n_variants = 12;
+  row.total_mac = 31;
+  row.overall_log_p = std::log(overall_p);
+  row.burden_log_p = std::log(std::min(1.0, overall_p * 2));
+  row.variance_log_p = std::log(std::min(1.0, overall_p * 3));
+  row.optimal_log_p = std::log(std::min(1.0, overall_p * 1.5));
+  row.cauchy_log_p = std::log(std::min(1.0, overall_p * 1.2));
+  row.burden_beta = 0.2;
+  row.burden_se = 0.1;
+  row.burden_chisq = 4;
+  row.burden_test = "score";
+  row.variance_q = 17;
+  row.variance_method = "davies";
+  row.optimal_rho = 0.5;
+  row.optimal_min_log_p = row.optimal_log_p;
+  row.top_variant = name + "_top";
+  row.top_variant_log_p = std::log(0.01);
+  row.weights = "beta_1_25";
+  row.n = 2000;
+  return row;
+}
+
+// Written as the scan writes it: BGZF, one header line, tabix on columns 2-4.
+void write_set_results(const std::string& path, const std::vector<tamis::SetResultRow>& rows) {
+  tamis::BgzfTextFile file(path);
+  file.write(tamis::set_result_header_line());
+  std::string text;
+  for (const tamis::SetResultRow& row : rows) tamis::append_set_result_row(row, text);
+  file.write(text);
+  file.commit(tamis::IndexKind::tabix_sets);
+}
+
+// Five sets whose median overall p is 0.3173105: R 4.2.2,
+// pchisq(1, 1, lower.tail = FALSE) = 0.3173105 (= 2 * pnorm(-1), from
+// memory), so the median chi-square is 1.0 and lambda 1 / 0.4549364.
+std::vector<tamis::SetResultRow> hand_set_rows() {
+  return {make_set_row("SRG0001", "1", 20000, 30000, 0.9), make_set_row("SRG0002", "1", 500000, 520000, 1e-9),
+          make_set_row("SRG0003", "2", 40000, 41000, 0.31731050786291415),
+          make_set_row("SRG0004", "2", 900000, 990000, 0.01), make_set_row("SRG0005", "23", 100, 5000, 0.5)};
+}
+
+class SetReport : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    dir_ = make_temp_dir("report_sets");
+    results_ = dir_ + "/cohort.fev1_litres.tsv.gz";
+    sets_ = dir_ + "/cohort.fev1_litres.sets.tsv.gz";
+    write_results(results_, null_rows(3000, 8));
+    write_set_results(sets_, hand_set_rows());
+    options_.out_prefix = dir_ + "/page";
+  }
+  std::string dir_, results_, sets_;
+  tamis::ReportOptions options_;
+};
+
+TEST_F(SetReport, SiblingSetFileGivesPlotsTableAndLambda) {
+  options_.results = {results_};
+  options_.top_sets = 3;
+  const tamis::ReportSummary summary = tamis::run_report(options_);
+  const tamis::TraitReport& trait = summary.traits.at(0);
+  EXPECT_EQ(trait.sets_path, sets_);
+  EXPECT_EQ(trait.n_sets, 5u);
+  // R 4.2.2: 1 / qchisq(0.5, 1) = 2.198109 (the median chi-square is 1, see hand_set_rows).
+  EXPECT_NEAR(trait.set_lambda, 1.0 / 0.45493642311957283, 1e-6);
+
+  const std::string stem = options_.out_prefix + ".fev1_litres";
+  for (const char* suffix : {".sets.manhattan.png", ".sets.manhattan.svg", ".sets.qq.png", ".sets.qq.svg"}) {
+    EXPECT_NE(std::find(summary.written_files.begin(), summary.written_files.end(), stem + suffix),
+              summary.written_files.end())
+        << suffix;
+  }
+  for (const char* suffix : {".sets.manhattan.png", ".sets.qq.png"}) {
+    cairo_surface_t* image = cairo_image_surface_create_from_png((stem + suffix).c_str());
+    EXPECT_EQ(cairo_surface_status(image), CAIRO_STATUS_SUCCESS) << suffix;
+    cairo_surface_destroy(image);
+  }
+
+  // The top three sets by overall p, with the p-values as the file wrote them.
+  const auto table = read_tsv(read_text_file(options_.out_prefix + ".top_sets.tsv"));
+  ASSERT_EQ(table.size(), 4u);
+  EXPECT_EQ(table[0], (std::vector<std::string>{"trait", "set", "chromosome", "start", "end", "n_variants",
+                                                "total_mac", "burden_p", "variance_p", "optimal_p", "cauchy_p",
+                                                "overall_p", "top_variant"}));
+  EXPECT_EQ(table[1], (std::vector<std::string>{"fev1_litres", "SRG0002", "1", "500000", "520000", "12", "31",
+                                                "2e-09", "3e-09", "1.5e-09", "1.2e-09", "1e-09", "SRG0002_top"}));
+  EXPECT_EQ(table[2][1], "SRG0004");
+  EXPECT_EQ(table[3][1], "SRG0003");
+
+  const std::string html = read_text_file(options_.out_prefix + ".html");
+  EXPECT_NE(html.find("<table class=\"sets\">"), std::string::npos);
+  EXPECT_NE(html.find("<td>SRG0002</td><td>1:500000-520000</td>"), std::string::npos);
+  EXPECT_NE(html.find("The 3 sets of smallest overall p of 5"), std::string::npos);
+  EXPECT_NE(html.find("\u03bb of overall p = 2.1981"), std::string::npos);
+  EXPECT_NE(html.find("the line is p = 0.01 (0.05 divided by the number of sets)"), std::string::npos);
+  const std::string png = read_text_file(stem + ".sets.manhattan.png");
+  EXPECT_NE(html.find("data:image/png;base64," + tamis::report::encode_base64(png) + "\""), std::string::npos);
+}
+
+TEST_F(SetReport, SetFileListedInResultsIsMatchedToItsTrait) {
+  options_.results = {sets_, results_};  // as `--results cohort.*.tsv.gz` lists them
+  const tamis::ReportSummary summary = tamis::run_report(options_);
+  ASSERT_EQ(summary.traits.size(), 1u);
+  EXPECT_EQ(summary.traits.at(0).trait, "fev1_litres");
+  EXPECT_EQ(summary.traits.at(0).sets_path, sets_);
+  EXPECT_EQ(read_tsv(read_text_file(options_.out_prefix + ".top_sets.tsv")).size(), 6u);
+  const std::string html = read_text_file(options_.out_prefix + ".html");
+  EXPECT_NE(html.find("<td>X:100-5000</td>"), std::string::npos) << "GWAS-SSF code 23 shown as X";
+  EXPECT_EQ(html.find("smallest overall p of"), std::string::npos) << "all five sets listed";
+}
+
+TEST_F(SetReport, SetFileWithoutItsTraitIsAUsageError) {
+  write_results(dir_ + "/cohort.winter_wheeze.tsv.gz", null_rows(100, 9));
+  options_.results = {sets_, dir_ + "/cohort.winter_wheeze.tsv.gz"};
+  try {
+    tamis::run_report(options_);
+    FAIL() << "expected a usage error";
+  } catch (const tamis::Error& error) {
+    EXPECT_EQ(error.code(), tamis::ExitCode::usage);
+    EXPECT_NE(std::string(error.what()).find(sets_), std::string::npos) << error.what();
+  }
+}
+
+TEST_F(SetReport, WithoutSetFilesNoSetOutputs) {
+  const std::string plain = dir_ + "/other.fev1_litres.tsv.gz";
+  write_results(plain, null_rows(100, 10));
+  options_.results = {plain};
+  const tamis::ReportSummary summary = tamis::run_report(options_);
+  EXPECT_TRUE(summary.traits.at(0).sets_path.empty());
+  EXPECT_FALSE(tamis::testing::file_exists(options_.out_prefix + ".top_sets.tsv"));
+  EXPECT_EQ(read_text_file(options_.out_prefix + ".html").find("Variant sets"), std::string::npos);
+}
+
+// A damaged set file: the error names the file, the line and the column.
+std::string set_report_error(const std::string& results, tamis::ReportOptions options) {
+  options.results = {results};
+  try {
+    tamis::run_report(options);
+  } catch (const tamis::Error& error) {
+    EXPECT_EQ(error.code(), tamis::ExitCode::results_input);
+    return error.what();
+  }
+  ADD_FAILURE() << "expected an error";
+  return "";
+}
+
+TEST_F(SetReport, DamagedSetFileNamesFileLineAndColumn) {
+  const std::string header = tamis::set_result_header_line();
+  std::string good;
+  tamis::append_set_result_row(make_set_row("SRG0001", "1", 20000, 30000, 0.2), good);
+
+  std::string short_line = good.substr(0, good.find("\tbeta_1_25")) + "\n";
+  tamis::testing::write_text_file(sets_, header + good + short_line);
+  std::string message = set_report_error(results_, options_);
+  EXPECT_NE(message.find(sets_ + ", line 3"), std::string::npos) << message;
+
+  std::string bad_p = good;
+  bad_p.replace(bad_p.find("\t0.2\t"), 5, "\t0.2x\t");
+  tamis::testing::write_text_file(sets_, header + good + good + bad_p);
+  message = set_report_error(results_, options_);
+  EXPECT_NE(message.find(sets_ + ", line 4, column overall_p"), std::string::npos) << message;
+
+  std::string reversed = good;
+  reversed.replace(reversed.find("\t20000\t30000\t"), 13, "\t30000\t20000\t");
+  tamis::testing::write_text_file(sets_, header + reversed);
+  message = set_report_error(results_, options_);
+  EXPECT_NE(message.find(sets_ + ", line 2, column end"), std::string::npos) << message;
+
+  tamis::testing::write_text_file(sets_, "set\tchromosome\tstart\n");
+  message = set_report_error(results_, options_);
+  EXPECT_NE(message.find(sets_), std::string::npos) << message;
+  EXPECT_NE(message.find("overall_p"), std::string::npos) << "the missing columns are named: " << message;
+}
+
 }  // namespace

@@ -1,6 +1,7 @@
 // tamis report: per-trait Manhattan and QQ plots (PNG and SVG), the genomic
 // inflation factor, lead loci grouped by distance, and one self-contained
-// HTML page, from finished results files.
+// HTML page, from finished results files; for traits with set results, the
+// same two plots of the sets and a table of the top sets.
 #pragma once
 
 #include <cstddef>
@@ -11,12 +12,19 @@
 namespace tamis {
 
 struct ReportOptions {
-  std::vector<std::string> results;  // PREFIX.TRAIT.tsv.gz files, one trait each
-  std::string out_prefix;            // writes OUT.summary.tsv, OUT.loci.tsv, OUT.html, OUT.TRAIT.*.png/svg
+  // PREFIX.TRAIT.tsv.gz files, one trait each. A trait's set results
+  // PREFIX.TRAIT.sets.tsv.gz (scan --sets) are found beside its file; set
+  // files listed here too (as a shell pattern would list them) are taken as
+  // the set results of their trait, whose results file must then be listed.
+  std::vector<std::string> results;
+  // Writes OUT.summary.tsv, OUT.loci.tsv, OUT.html, OUT.TRAIT.{manhattan,qq}.{png,svg}; with set
+  // results also OUT.top_sets.tsv and OUT.TRAIT.sets.{manhattan,qq}.{png,svg}.
+  std::string out_prefix;
   double lead_threshold = 5e-8;      // a lead locus needs p below this
   std::int64_t locus_radius = 500000;  // bases either side of a lead that its locus takes
   std::size_t label_limit = 20;      // lead loci named on each Manhattan plot (most significant first)
   std::size_t page_loci_limit = 50;  // lead loci listed per trait on the HTML page (the .tsv has all)
+  std::size_t top_sets = 50;         // sets of smallest overall p per trait in OUT.top_sets.tsv and on the page
 };
 
 // What was found for one trait, for the command to print.
@@ -28,6 +36,11 @@ struct TraitReport {
   std::size_t n_lead_loci = 0;
   std::size_t manhattan_points_drawn = 0;
   std::size_t qq_points_drawn = 0;
+  // Set results (empty path: none). set_lambda is the median chi-square(1)
+  // quantile of overall_p over 0.454936 (NaN when no set has one); 0 without sets.
+  std::string sets_path;
+  std::size_t n_sets = 0;
+  double set_lambda = 0;
 };
 
 struct ReportSummary {

@@ -412,7 +412,12 @@ struct ReportArguments {
 void add_report_command(CLI::App& app, ReportArguments& arguments) {
   CLI::App* report = app.add_subcommand("report", "Plots, inflation, lead loci and an HTML page from results files");
   ReportOptions& options = arguments.options;
-  report->add_option("--results", options.results, "Results files PREFIX.TRAIT.tsv.gz, one per trait")->required();
+  report->add_option("--results", options.results,
+                     "Results files PREFIX.TRAIT.tsv.gz, one per trait. A trait's set results "
+                     "PREFIX.TRAIT.sets.tsv.gz (scan --sets) are found beside its file and reported with it "
+                     "(set plots and a table of the top sets); set files listed here too are matched to "
+                     "their trait's file")
+      ->required();
   report->add_option("--out", options.out_prefix, "Output prefix")->required();
   report->add_option("--lead-below", options.lead_threshold, "A lead locus needs p below this")->capture_default_str();
   report->add_option("--locus-radius-kb", arguments.locus_radius_kb,
@@ -421,6 +426,9 @@ void add_report_command(CLI::App& app, ReportArguments& arguments) {
   report->add_option("--label-top", options.label_limit, "Lead loci named on each Manhattan plot")
       ->capture_default_str();
   report->add_option("--page-loci", options.page_loci_limit, "Lead loci listed per trait on the HTML page")
+      ->capture_default_str();
+  report->add_option("--top-sets", options.top_sets,
+                     "Variant sets of smallest overall p listed per trait (OUT.top_sets.tsv and the page)")
       ->capture_default_str();
 }
 
@@ -434,6 +442,10 @@ int execute_report(ReportArguments arguments) {
   for (const TraitReport& trait : summary.traits) {
     std::fprintf(stderr, "%s: %zu variants, lambda_gc %.4f, %zu lead loci\n", trait.trait.c_str(), trait.n_variants,
                  trait.lambda_gc, trait.n_lead_loci);
+    if (!trait.sets_path.empty()) {
+      std::fprintf(stderr, "%s: %zu variant sets, lambda of overall p %.4f\n", trait.trait.c_str(), trait.n_sets,
+                   trait.set_lambda);
+    }
   }
   for (const std::string& path : summary.written_files) std::fprintf(stderr, "wrote %s\n", path.c_str());
   return 0;

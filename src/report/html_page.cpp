@@ -5,6 +5,7 @@
 #include <set>
 #include <sstream>
 
+#include "report/trait_results.hpp"
 #include "tamis/errors.hpp"
 
 namespace tamis::report {
@@ -90,6 +91,40 @@ std::string loci_table(const TraitSection& section) {
     html += "<p class=\"note\">The " + std::to_string(section.loci.size()) + " most significant of " +
             std::to_string(section.n_loci_total) + " lead loci; the loci table file lists them all.</p>\n";
   }
+  return html;
+}
+
+std::string set_region(const SetRow& row) {
+  return chromosome_display_name(row.chromosome) + ":" + std::to_string(row.start) + "-" + std::to_string(row.end);
+}
+
+std::string top_sets_table(const SetSection& sets) {
+  if (sets.top.empty()) return "<p class=\"note\">The set results file has no sets.</p>\n";
+  std::string html = "<div class=\"table-scroll\"><table class=\"sets\">\n";
+  html += header_row({"set", "region", "variants", "total MAC", "burden p", "variance p", "optimal p", "Cauchy p",
+                      "overall p", "top variant"});
+  for (const SetRow& row : sets.top) {
+    html += "<tr>" + cell(row.set) + cell(set_region(row)) + cell(row.n_variants, true) + cell(row.total_mac, true);
+    for (const std::string& p_value : row.p_values) html += cell(p_value, true);
+    html += cell(row.top_variant) + "</tr>\n";
+  }
+  html += "</table></div>\n";
+  if (sets.n_sets > sets.top.size()) {
+    html += "<p class=\"note\">The " + std::to_string(sets.top.size()) + " sets of smallest overall p of " +
+            std::to_string(sets.n_sets) + "; the set results file lists them all.</p>\n";
+  }
+  return html;
+}
+
+std::string set_section(const std::string& trait, const SetSection& sets) {
+  std::string html = "<h3>Variant sets</h3>\n<p class=\"note\">" + escape_html(sets.results_path) + ": " +
+                     std::to_string(sets.n_sets) + " sets; \u03bb of overall p = " + escape_html(sets.lambda_text) +
+                     " (the median \u03c7\u00b2(1) quantile of overall p over 0.4549). Each set is drawn at the "
+                     "midpoint of its extent by its overall p; the line is p = " + escape_html(sets.line_text) +
+                     " (0.05 divided by the number of sets).</p>\n<div class=\"plots\">\n";
+  html += png_image(sets.manhattan_png, "manhattan sets", "Manhattan plot of the variant sets of " + trait);
+  html += png_image(sets.qq_png, "qq sets", "QQ plot of the variant sets' overall p of " + trait);
+  html += "</div>\n<h3>Top variant sets</h3>\n" + top_sets_table(sets);
   return html;
 }
 
@@ -192,6 +227,7 @@ std::string compose_html_page(const PageContent& page) {
     html += png_image(section.manhattan_png, "manhattan", "Manhattan plot of " + section.trait);
     html += png_image(section.qq_png, "qq", "QQ plot of " + section.trait);
     html += "</div>\n<h3>Lead loci</h3>\n" + loci_table(section);
+    if (section.sets) html += set_section(section.trait, *section.sets);
   }
   html += log_section(page);
   html += "</body>\n</html>\n";

@@ -3,8 +3,11 @@
 #pragma once
 
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
+
+#include "report/set_results.hpp"
 
 namespace tamis::report {
 
@@ -16,12 +19,23 @@ struct LocusRow {
   std::size_t n_variants = 0;
 };
 
+// A trait's set results: their plots and the sets of smallest overall p.
+struct SetSection {
+  std::string results_path;
+  std::string manhattan_png, qq_png;
+  std::vector<SetRow> top;
+  std::size_t n_sets = 0;
+  std::string lambda_text;  // formatted, "#NA" when there is none
+  std::string line_text;    // the Bonferroni p drawn on the plot
+};
+
 struct TraitSection {
   std::string trait, results_path, log_path;
   std::string manhattan_png, qq_png;     // read back and inlined
   std::vector<std::string> summary_cells;  // in the summary table's column order
   std::vector<LocusRow> loci;            // the most significant, up to the page limit
   std::size_t n_loci_total = 0;
+  std::optional<SetSection> sets;
 };
 
 struct PageContent {

@@ -290,9 +290,10 @@ void draw_title(cairo_t* cairo, const TraitResults& results, std::size_t lead_co
   set_colour(cairo, colours::ink);
   select_font(cairo, 22.0, true);
   draw_text(cairo, results.trait, layout.frame.left, 38, Anchor::left);
-  const std::string facts_text = format_count(results.n_rows) + " variants   \u00b7   genomic control \u03bb = " +
-                                 format_lambda(facts.lambda_gc) + "   \u00b7   " + std::to_string(lead_count) +
-                                 (lead_count == 1 ? " lead locus" : " lead loci");
+  const std::string facts_text = format_count(results.n_rows) + " " + facts.count_noun + "   \u00b7   " +
+                                 facts.lambda_label + " = " + format_lambda(facts.lambda_gc) + "   \u00b7   " +
+                                 std::to_string(lead_count) + " " +
+                                 (lead_count == 1 ? facts.lead_noun_one : facts.lead_noun_many);
   set_colour(cairo, colours::quiet_ink);
   select_font(cairo, 14.0);
   draw_text(cairo, facts_text, layout.frame.right, 38, Anchor::right);
@@ -312,10 +313,10 @@ double ManhattanLayout::y_of(double neg_log_10_p) const {
   return frame.bottom - clamped / y_max * (frame.height() - label_headroom);
 }
 
-ManhattanLayout lay_out_manhattan(const TraitResults& results) {
+ManhattanLayout lay_out_manhattan(const TraitResults& results, double highest_line) {
   ManhattanLayout layout;
   layout.frame = PlotFrame{96, 64, layout.width - 54.0, layout.height - 80.0};
-  const double top = std::max(results.max_neg_log_10_p, genome_wide_neg_log_10_p + 1.0);
+  const double top = std::max(results.max_neg_log_10_p, highest_line + 1.0);
   layout.y_max = top * 1.03;
 
   for (const std::string& name : results.chromosome_names) {
@@ -371,7 +372,9 @@ std::vector<PlotPoint> thin_manhattan_points(const TraitResults& results, const 
 
 std::size_t render_manhattan(const TraitResults& results, const std::vector<LeadLocus>& leads,
                              const ManhattanFacts& facts, const std::string& png_path, const std::string& svg_path) {
-  const ManhattanLayout layout = lay_out_manhattan(results);
+  double highest_line = 0;
+  for (const SignificanceLine& line : facts.lines) highest_line = std::max(highest_line, line.neg_log_10_p);
+  const ManhattanLayout layout = lay_out_manhattan(results, highest_line);
   const std::vector<PlotPoint> points = thin_manhattan_points(results, layout);
   render_png_and_svg(png_path, svg_path, layout.width, layout.height, [&](cairo_t* cairo) {
     draw_background(cairo, layout);
@@ -382,8 +385,10 @@ std::size_t render_manhattan(const TraitResults& results, const std::vector<Lead
     draw_dots(cairo, points, 0, colours::teal, dot_radius);
     draw_dots(cairo, points, 1, colours::copper, dot_radius);
     cairo_restore(cairo);
-    draw_threshold(cairo, layout, suggestive_neg_log_10_p, "1e-5", colours::slate, true);
-    draw_threshold(cairo, layout, genome_wide_neg_log_10_p, "5e-8", colours::crimson, false);
+    for (const SignificanceLine& line : facts.lines) {
+      draw_threshold(cairo, layout, line.neg_log_10_p, line.text, line.primary ? colours::crimson : colours::slate,
+                     !line.primary);
+    }
     ring_leads(cairo, results, leads, layout);
     draw_lead_labels(cairo, place_lead_labels(cairo, results, leads, layout, facts.label_limit));
     set_colour(cairo, colours::ink);

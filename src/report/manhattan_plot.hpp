@@ -12,6 +12,10 @@
 
 namespace tamis::report {
 
+constexpr double suggestive_neg_log_10_p = 5.0;       // p = 1e-5, common practice
+constexpr double genome_wide_neg_log_10_p = 7.30103;  // p = 5e-8, common practice
+constexpr double thinning_cell = 2.0;
+
 struct ChromosomeStrip {
   std::string label;  // X, Y, MT for codes 23-25
   std::int64_t first_position = 0, last_position = 0;
@@ -29,24 +33,35 @@ struct ManhattanLayout {
   double y_of(double neg_log_10_p) const;
 };
 
-ManhattanLayout lay_out_manhattan(const TraitResults& results);
+// The panel reaches at least one unit above `highest_line` (-log10 p).
+ManhattanLayout lay_out_manhattan(const TraitResults& results, double highest_line = genome_wide_neg_log_10_p);
 
 // Every variant at or above the suggestive line, and below it one variant per
 // occupied cell (of thinning_cell device units) and shade: points closer
 // than a dot's radius cannot be told apart in the picture.
 std::vector<PlotPoint> thin_manhattan_points(const TraitResults& results, const ManhattanLayout& layout);
 
+// A horizontal significance line; the primary one is drawn solid and red.
+struct SignificanceLine {
+  double neg_log_10_p = 0;
+  std::string text;  // written at its right end
+  bool primary = false;
+};
+
+// What the plot says besides its points. The defaults describe a variant
+// scan; the set-level plot names its own unit, inflation and line.
 struct ManhattanFacts {
   double lambda_gc = 0;
   std::size_t label_limit = 20;
+  std::string count_noun = "variants";
+  std::string lambda_label = "genomic control \u03bb";
+  std::string lead_noun_one = "lead locus", lead_noun_many = "lead loci";
+  std::vector<SignificanceLine> lines = {{suggestive_neg_log_10_p, "1e-5", false},
+                                           {genome_wide_neg_log_10_p, "5e-8", true}};
 };
 
 // Draws the plot; returns the number of points drawn.
 std::size_t render_manhattan(const TraitResults& results, const std::vector<LeadLocus>& leads,
                              const ManhattanFacts& facts, const std::string& png_path, const std::string& svg_path);
-
-constexpr double suggestive_neg_log_10_p = 5.0;       // p = 1e-5, common practice
-constexpr double genome_wide_neg_log_10_p = 7.30103;  // p = 5e-8, common practice
-constexpr double thinning_cell = 2.0;
 
 }  // namespace tamis::report

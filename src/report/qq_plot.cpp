@@ -103,19 +103,20 @@ void draw_diagonal(cairo_t* cairo, const QqLayout& layout) {
 }
 
 void draw_annotations(cairo_t* cairo, const QqLayout& layout, const std::string& trait, std::size_t n,
-                      double lambda_gc) {
+                      const QqFacts& facts) {
   set_colour(cairo, colours::ink);
   select_font(cairo, 20.0, true);
   draw_text(cairo, trait, layout.frame.left, 36, Anchor::left);
 
-  const std::string lambda_text = "\u03bb = " + format_lambda(lambda_gc);
+  const std::string lambda_text = "\u03bb = " + format_lambda(facts.lambda_gc);
   const double x = layout.frame.left + 16;
   select_font(cairo, 18.0, true);
   draw_text(cairo, lambda_text, x, layout.frame.top + 30, Anchor::left);
   select_font(cairo, 13.0);
   set_colour(cairo, colours::quiet_ink);
-  draw_text(cairo, "genomic control, median score \u03c7\u00b2 / 0.4549", x, layout.frame.top + 50, Anchor::left);
-  draw_text(cairo, format_count(n) + " variants; band: 95% for uniform p", x, layout.frame.top + 68, Anchor::left);
+  draw_text(cairo, facts.lambda_note, x, layout.frame.top + 50, Anchor::left);
+  draw_text(cairo, format_count(n) + " " + facts.count_noun + "; band: 95% for uniform p", x, layout.frame.top + 68,
+            Anchor::left);
 }
 
 }  // namespace
@@ -151,7 +152,7 @@ std::vector<float> sorted_neg_log_10_p(const TraitResults& results) {
   return observed;
 }
 
-std::size_t render_qq(const TraitResults& results, double lambda_gc, const std::string& png_path,
+std::size_t render_qq(const TraitResults& results, const QqFacts& facts, const std::string& png_path,
                       const std::string& svg_path) {
   const std::vector<float> observed = sorted_neg_log_10_p(results);
   const std::size_t n = observed.size();
@@ -182,7 +183,7 @@ std::size_t render_qq(const TraitResults& results, double lambda_gc, const std::
     cairo_set_line_width(cairo, 1.2);
     cairo_rectangle(cairo, layout.frame.left, layout.frame.top, layout.frame.width(), layout.frame.height());
     cairo_stroke(cairo);
-    draw_annotations(cairo, layout, results.trait, n, lambda_gc);
+    draw_annotations(cairo, layout, results.trait, n, facts);
   });
   return points.size();
 }

@@ -4,13 +4,16 @@
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
+#include <fstream>
 #include <limits>
+#include <map>
 #include <set>
 
 #include "report/html_page.hpp"
 #include "report/lead_loci.hpp"
 #include "report/manhattan_plot.hpp"
 #include "report/qq_plot.hpp"
+#include "report/set_results.hpp"
 #include "report/trait_results.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/results_writer.hpp"
@@ -92,6 +95,45 @@ std::string locus_line(const report::LocusRow& row) {
          '\n';
 }
 
+std::string top_set_line(const std::string& trait, const report::SetRow& row) {
+  std::string line = trait + '\t' + row.set + '\t' + row.chromosome + '\t' + std::to_string(row.start) + '\t' +
+                     std::to_string(row.end) + '\t' + row.n_variants + '\t' + row.total_mac;
+  for (const std::string& p_value : row.p_values) line += '\t' + p_value;
+  return line + '\t' + row.top_variant + '\n';
+}
+
+bool file_exists(const std::string& path) { return std::ifstream(path).good(); }
+
+// The results files and the set files among --results, each set file
+// keyed by the results file of its trait (PREFIX.TRAIT.tsv.gz).
+struct ResultsInputs {
+  std::vector<std::string> results;
+  std::map<std::string, std::string> sets_of;
+};
+
+ResultsInputs sort_results_inputs(const std::vector<std::string>& paths) {
+  ResultsInputs inputs;
+  std::vector<std::string> set_paths;
+  for (const std::string& path : paths) {
+    (report::is_set_results_file(path) ? set_paths : inputs.results).push_back(path);
+  }
+  for (const std::string& results : inputs.results) {
+    const std::string sibling = report::sibling_set_results_path(results);
+    if (!sibling.empty() && file_exists(sibling)) inputs.sets_of[results] = sibling;
+  }
+  for (const std::string& set_path : set_paths) {
+    auto owner = std::find_if(inputs.results.begin(), inputs.results.end(), [&](const std::string& results) {
+      return report::sibling_set_results_path(results) == set_path;
+    });
+    if (owner == inputs.results.end()) {
+      throw Error(ExitCode::usage, set_path,
+                  "this set results file has no results file of its trait among --results",
+                  "list PREFIX.TRAIT.tsv.gz too; its set results PREFIX.TRAIT.sets.tsv.gz are then found beside it");
+    }
+  }
+  return inputs;
+}
+
 void write_text(const std::string& path, const std::string& text, ReportSummary& summary) {
   PlainTextFile file(path);
   file.write(text);
@@ -115,8 +157,55 @@ double compute_lambda_gc(std::vector<float> score_chisq) {
   return median / chisq1_median;
 }
 
+namespace {
+
+// The set plots and table of one trait; the trait's summary gains the set counts.
+report::SetSection report_sets(const ReportOptions& options, const std::string& trait_name, const std::string& path,
+                               const std::string& stem, TraitReport& trait, std::string& top_sets_text,
+                               ReportSummary& summary) {
+  const report::SetResults sets = report::load_set_results(path, trait_name + " \u00b7 variant sets");
+  trait.sets_path = path;
+  trait.n_sets = sets.rows.size();
+  trait.set_lambda = compute_lambda_gc(sets.overall_chisq);
+
+  report::SetSection section;
+  section.results_path = path;
+  section.n_sets = sets.rows.size();
+  section.lambda_text = format_number(trait.set_lambda, "%.4f");
+  section.manhattan_png = stem + ".sets.manhattan.png";
+  section.qq_png = stem + ".sets.qq.png";
+  report::ManhattanFacts facts;
+  facts.lambda_gc = trait.set_lambda;
+  facts.label_limit = options.label_limit;
+  facts.count_noun = "sets";
+  facts.lambda_label = "\u03bb of overall p";
+  facts.lead_noun_one = "set below the line";
+  facts.lead_noun_many = "sets below the line";
+  facts.lines.clear();
+  if (!sets.rows.empty()) {
+    section.line_text = format_number(std::pow(10.0, -sets.bonferroni_neg_log_10_p), "%.2g");
+    facts.lines.push_back({sets.bonferroni_neg_log_10_p, section.line_text, true});
+  }
+  report::render_manhattan(sets.points, report::set_leads(sets), facts, section.manhattan_png,
+                           stem + ".sets.manhattan.svg");
+  report::QqFacts qq_facts;
+  qq_facts.lambda_gc = trait.set_lambda;
+  qq_facts.lambda_note = "overall p; median \u03c7\u00b2(1) quantile / 0.4549";
+  qq_facts.count_noun = "sets (overall p)";
+  report::render_qq(sets.points, qq_facts, section.qq_png, stem + ".sets.qq.svg");
+  for (const char* written : {".sets.manhattan.png", ".sets.manhattan.svg", ".sets.qq.png", ".sets.qq.svg"}) {
+    summary.written_files.push_back(stem + written);
+  }
+  section.top = report::top_sets(sets, options.top_sets);
+  for (const report::SetRow& row : section.top) top_sets_text += top_set_line(trait_name, row);
+  return section;
+}
+
+}  // namespace
+
 ReportSummary run_report(const ReportOptions& options) {
   check_options(options);
+  const ResultsInputs inputs = sort_results_inputs(options.results);
   ReportSummary summary;
   report::PageContent page;
   std::string summary_text =
@@ -124,9 +213,12 @@ ReportSummary run_report(const ReportOptions& options) {
   std::string loci_text =
       "trait\tchromosome\tlead_position\tlead_variant_id\tlead_rsid\tp_value\tneg_log_10_p_value\tbeta\tspan_start\t"
       "span_end\tn_variants\n";
+  std::string top_sets_text =
+      "trait\tset\tchromosome\tstart\tend\tn_variants\ttotal_mac\tburden_p\tvariance_p\toptimal_p\tcauchy_p\t"
+      "overall_p\ttop_variant\n";
   std::set<std::string> used_stems;
 
-  for (const std::string& path : options.results) {
+  for (const std::string& path : inputs.results) {
     report::TraitResults results = report::load_trait_results(path, options.lead_threshold);
     TraitReport trait;
     trait.trait = results.trait;
@@ -149,7 +241,9 @@ ReportSummary run_report(const ReportOptions& options) {
     facts.label_limit = options.label_limit;
     trait.manhattan_points_drawn =
         report::render_manhattan(results, leads, facts, section.manhattan_png, stem + ".manhattan.svg");
-    trait.qq_points_drawn = report::render_qq(results, trait.lambda_gc, section.qq_png, stem + ".qq.svg");
+    report::QqFacts qq_facts;
+    qq_facts.lambda_gc = trait.lambda_gc;
+    trait.qq_points_drawn = report::render_qq(results, qq_facts, section.qq_png, stem + ".qq.svg");
     for (const char* written : {".manhattan.png", ".manhattan.svg", ".qq.png", ".qq.svg"}) {
       summary.written_files.push_back(stem + written);
     }
@@ -168,12 +262,17 @@ ReportSummary run_report(const ReportOptions& options) {
                              std::to_string(trait.n_lead_loci),
                              format_number(results.max_neg_log_10_p, "%.2f"),
                              std::to_string(results.n_discordant)};
+    auto set_path = inputs.sets_of.find(path);
+    if (set_path != inputs.sets_of.end()) {
+      section.sets = report_sets(options, results.trait, set_path->second, stem, trait, top_sets_text, summary);
+    }
     page.sections.push_back(std::move(section));
     summary.traits.push_back(trait);
   }
 
   write_text(options.out_prefix + ".summary.tsv", summary_text, summary);
   write_text(options.out_prefix + ".loci.tsv", loci_text, summary);
+  if (!inputs.sets_of.empty()) write_text(options.out_prefix + ".top_sets.tsv", top_sets_text, summary);
   page.lead_threshold = options.lead_threshold;
   page.locus_radius = options.locus_radius;
   write_text(options.out_prefix + ".html", report::compose_html_page(page), summary);

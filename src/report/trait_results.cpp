@@ -48,46 +48,6 @@ struct ColumnPlaces {
         rsid(reader.column_index("rsid")) {}
 };
 
-// Maps contig names to indices; rows arrive grouped by contig, so the last
-// name is checked before the table.
-class ContigIndexer {
- public:
-  std::uint32_t index_of(std::string_view name, std::vector<std::string>& names) {
-    if (!names.empty() && name == names[last_index_]) return last_index_;
-    auto found = indices_.find(std::string(name));
-    if (found == indices_.end()) {
-      found = indices_.emplace(std::string(name), static_cast<std::uint32_t>(names.size())).first;
-      names.emplace_back(name);
-    }
-    last_index_ = found->second;
-    return last_index_;
-  }
-
- private:
-  std::unordered_map<std::string, std::uint32_t> indices_;
-  std::uint32_t last_index_ = 0;
-};
-
-// GWAS-SSF codes are plotted 1..25 whatever order the scan met them in;
-// contig names (as-is mode) keep their order of first appearance.
-void order_chromosomes(TraitResults& results) {
-  const auto& names = results.chromosome_names;
-  if (!std::all_of(names.begin(), names.end(), is_ssf_code)) return;
-  std::vector<std::uint32_t> order(names.size());
-  for (std::uint32_t idx = 0; idx < order.size(); ++idx) order[idx] = idx;
-  std::sort(order.begin(), order.end(), [&](std::uint32_t left, std::uint32_t right) {
-    return std::stoi(names[left]) < std::stoi(names[right]);
-  });
-  std::vector<std::uint32_t> new_index_of(names.size());
-  std::vector<std::string> sorted_names;
-  for (std::uint32_t rank = 0; rank < order.size(); ++rank) {
-    new_index_of[order[rank]] = rank;
-    sorted_names.push_back(names[order[rank]]);
-  }
-  for (std::uint32_t& chromosome : results.chromosome_of) chromosome = new_index_of[chromosome];
-  results.chromosome_names = std::move(sorted_names);
-}
-
 float float_or_nan(const std::optional<double>& value) {
   return value ? static_cast<float>(*value) : std::numeric_limits<float>::quiet_NaN();
 }
@@ -173,6 +133,35 @@ std::string strip_results_suffix(const std::string& name) {
 }
 
 }  // namespace
+
+std::uint32_t ContigIndexer::index_of(std::string_view name, std::vector<std::string>& names) {
+  if (!names.empty() && name == names[last_index_]) return last_index_;
+  auto found = indices_.find(std::string(name));
+  if (found == indices_.end()) {
+    found = indices_.emplace(std::string(name), static_cast<std::uint32_t>(names.size())).first;
+    names.emplace_back(name);
+  }
+  last_index_ = found->second;
+  return last_index_;
+}
+
+void order_chromosomes(TraitResults& results) {
+  const auto& names = results.chromosome_names;
+  if (!std::all_of(names.begin(), names.end(), is_ssf_code)) return;
+  std::vector<std::uint32_t> order(names.size());
+  for (std::uint32_t idx = 0; idx < order.size(); ++idx) order[idx] = idx;
+  std::sort(order.begin(), order.end(), [&](std::uint32_t left, std::uint32_t right) {
+    return std::stoi(names[left]) < std::stoi(names[right]);
+  });
+  std::vector<std::uint32_t> new_index_of(names.size());
+  std::vector<std::string> sorted_names;
+  for (std::uint32_t rank = 0; rank < order.size(); ++rank) {
+    new_index_of[order[rank]] = rank;
+    sorted_names.push_back(names[order[rank]]);
+  }
+  for (std::uint32_t& chromosome : results.chromosome_of) chromosome = new_index_of[chromosome];
+  results.chromosome_names = std::move(sorted_names);
+}
 
 std::optional<bool> p_text_is_below(std::string_view p_text, double threshold) {
   double value = 0.0;

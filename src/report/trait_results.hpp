@@ -8,6 +8,7 @@
 #include <optional>
 #include <string_view>
 #include <string>
+#include <unordered_map>
 #include <vector>
 
 namespace tamis::report {
@@ -41,6 +42,22 @@ struct TraitResults {
   std::size_t n_discordant = 0;         // confirmed rows with log10p_spread > 1
   double max_neg_log_10_p = 0.0;
 };
+
+// Maps contig names to indices into `names`, adding new ones in order of
+// first appearance; rows arrive grouped by contig, so the last name is
+// checked before the table.
+class ContigIndexer {
+ public:
+  std::uint32_t index_of(std::string_view name, std::vector<std::string>& names);
+
+ private:
+  std::unordered_map<std::string, std::uint32_t> indices_;
+  std::uint32_t last_index_ = 0;
+};
+
+// GWAS-SSF codes are plotted 1..25 whatever order the file met them in;
+// contig names (as-is mode) keep their order of first appearance.
+void order_chromosomes(TraitResults& results);
 
 // Streams one results file once. Throws tamis::Error (results_input) for a
 // malformed file.
