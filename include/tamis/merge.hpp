@@ -17,9 +17,15 @@ struct MergeSummary {
   int shard_count = 0;
 };
 
+// Set results (PREFIX.TRAIT.sets.tsv.gz, scan --sets) are joined in shard
+// order under one header and indexed afresh; their rows must stay sorted
+// (chromosomes in stream order, starts rising), as each set belongs to one
+// shard. result_files lists the traits' files, then the set files.
+//
 // Refuses (tamis::Error, usage) when a shard is missing or given twice, when
 // the parts come from different runs (fingerprints differ), when they
-// overlap, or when their traits differ.
+// overlap, when their traits differ, or when some parts have set results and
+// others not; (results_input) when the joined set rows would be out of order.
 MergeSummary merge_shards(const MergeOptions& options);
 
 }  // namespace tamis

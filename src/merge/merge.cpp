@@ -29,6 +29,7 @@ struct Part {
   std::string fingerprint;
   std::vector<Range> ranges;
   std::map<std::string, std::string> result_paths;  // trait -> file
+  std::map<std::string, std::string> set_paths;     // trait -> PREFIX.TRAIT.sets.tsv.gz (scan --sets)
   SidecarFields sidecar;                             // of the first trait's file
 };
 
@@ -36,7 +37,32 @@ struct Part {
   throw Error(ExitCode::usage, where, what, fix);
 }
 
-// Every PREFIX.TRAIT.tsv.gz beside the prefix, by trait.
+const std::string set_suffix = ".sets";
+
+bool ends_with(const std::string& text, const std::string& ending) {
+  return text.size() > ending.size() && text.compare(text.size() - ending.size(), ending.size(), ending) == 0;
+}
+
+// PREFIX.TRAIT.sets.tsv.gz files move from `files` (where the pattern
+// found them as trait "TRAIT.sets") to the set files of TRAIT, when TRAIT
+// has results of its own.
+std::map<std::string, std::string> take_set_files(std::map<std::string, std::string>& files) {
+  std::map<std::string, std::string> set_files;
+  for (auto entry = files.begin(); entry != files.end();) {
+    const std::string& name = entry->first;
+    const std::string trait = name.substr(0, name.size() - set_suffix.size());
+    if (ends_with(name, set_suffix) && files.count(trait) > 0) {
+      set_files[trait] = entry->second;
+      entry = files.erase(entry);
+    } else {
+      ++entry;
+    }
+  }
+  return set_files;
+}
+
+// Every PREFIX.TRAIT.tsv.gz beside the prefix, by trait (set files included,
+// as trait "TRAIT.sets"; see take_set_files).
 std::map<std::string, std::string> find_result_files(const std::string& prefix) {
   std::map<std::string, std::string> files;
   glob_t matches{};
@@ -84,6 +110,7 @@ Part read_part(const std::string& prefix) {
   Part part;
   part.prefix = prefix;
   part.result_paths = find_result_files(prefix);
+  part.set_paths = take_set_files(part.result_paths);
   const std::string sidecar_path = part.result_paths.begin()->second + "-meta.yaml";
   part.sidecar = read_metadata_sidecar(sidecar_path);
   const std::string shard = extra_value(part.sidecar, kShardKey);
@@ -96,6 +123,12 @@ Part read_part(const std::string& prefix) {
   return part;
 }
 
+std::set<std::string> traits_of(const std::map<std::string, std::string>& files) {
+  std::set<std::string> traits;
+  for (const auto& entry : files) traits.insert(entry.first);
+  return traits;
+}
+
 void check_same_run(const std::vector<Part>& parts) {
   const Part& first = parts.front();
   for (const Part& part : parts) {
@@ -106,13 +139,31 @@ void check_same_run(const std::vector<Part>& parts) {
                  std::to_string(first.shard_count) + ")",
              "merge parts scanned with the same inputs, options and shard count; rerun the odd ones out");
     }
-    std::set<std::string> traits, first_traits;
-    for (const auto& entry : part.result_paths) traits.insert(entry.first);
-    for (const auto& entry : first.result_paths) first_traits.insert(entry.first);
-    if (traits != first_traits) {
+    if (traits_of(part.result_paths) != traits_of(first.result_paths)) {
       refuse(part.prefix, "this part has results for other traits than " + first.prefix,
              "check that every part finished and that no files were removed");
     }
+  }
+}
+
+// Sets are tested in every shard of a run with --sets, so either every part
+// has a trait's set results or none has.
+void check_same_sets(const std::vector<Part>& parts) {
+  const Part& first = parts.front();
+  for (const Part& part : parts) {
+    if (traits_of(part.set_paths) == traits_of(first.set_paths)) continue;
+    const Part& lacking = part.set_paths.size() < first.set_paths.size() ? part : first;
+    const Part& having = &lacking == &part ? first : part;
+    std::string missing;
+    for (const auto& entry : having.set_paths) {
+      if (lacking.set_paths.count(entry.first) == 0) {
+        missing += (missing.empty() ? "" : ", ") + lacking.prefix + "." + entry.first + set_suffix + ".tsv.gz";
+      }
+    }
+    refuse(lacking.prefix,
+           "this part has no set results " + missing + ", which " + having.prefix + " has",
+           "set results come from `scan --sets`: scan every shard with the same --sets, or merge parts scanned "
+           "without it; check that no files were removed");
   }
 }
 
@@ -174,6 +225,69 @@ void copy_rows(const std::string& path, bool with_header, BgzfTextFile& out) {
   out.write(text);
 }
 
+// Where the last set row copied lies, to check that the parts' rows join in
+// order: chromosomes in the order the stream met them, starts rising within each.
+struct SetRowOrder {
+  std::vector<std::string> chromosomes_passed;
+  std::string chromosome;
+  std::int64_t start = 0;
+  std::string place;  // of the last row, for the message
+
+  void check(const ResultsReader& reader, std::size_t chromosome_column, std::size_t start_column) {
+    const std::string row_chromosome(reader.field(chromosome_column));
+    const std::int64_t row_start = reader.integer(start_column);
+    const bool passed = std::find(chromosomes_passed.begin(), chromosomes_passed.end(), row_chromosome) !=
+                        chromosomes_passed.end();
+    if (passed || (row_chromosome == chromosome && row_start < start)) {
+      throw Error(ExitCode::results_input, reader.place(),
+                  "set " + std::string(reader.field(0)) + " at " + row_chromosome + ":" +
+                      std::to_string(row_start) + " comes after " + chromosome + ":" + std::to_string(start) +
+                      " (" + place + "), so the merged set results would be out of order",
+                  "each set belongs to one shard and the shards follow the genome; rerun the shards of one "
+                  "`tamis scan --sets ... --shard K/N` run and merge them");
+    }
+    if (row_chromosome != chromosome) {
+      if (!chromosome.empty()) chromosomes_passed.push_back(chromosome);
+      chromosome = row_chromosome;
+    }
+    start = row_start;
+    place = reader.place();
+  }
+};
+
+void copy_set_rows(const std::string& path, SetRowOrder& order, BgzfTextFile& out) {
+  ResultsReader reader(path, set_result_columns());
+  if (reader.header() != set_result_columns()) {
+    throw Error(ExitCode::results_input, path + ", line 1",
+                "the set results' columns differ from those this version of tamis writes",
+                "merge parts written by one version of tamis");
+  }
+  const std::size_t chromosome_column = reader.column_index("chromosome");
+  const std::size_t start_column = reader.column_index("start");
+  std::string text;
+  while (reader.next_row()) {
+    order.check(reader, chromosome_column, start_column);
+    text.append(reader.line());
+    text += '\n';
+    if (text.size() > (1u << 20)) {
+      out.write(text);
+      text.clear();
+    }
+  }
+  out.write(text);
+}
+
+// The parts' set rows joined in shard order under one header, indexed afresh.
+std::string merge_trait_sets(const MergeOptions& options, const std::vector<Part>& parts, const std::string& trait) {
+  const std::string path = options.out_prefix + "." + trait + set_suffix + ".tsv.gz";
+  BgzfTextFile out(path);
+  out.write(set_result_header_line());
+  SetRowOrder order;
+  for (const Part& part : parts) copy_set_rows(part.set_paths.at(trait), order, out);
+  out.commit(IndexKind::tabix_sets);
+  return path;
+}
+
 // The merged file describes the whole run: shard entries go, the run's
 // fingerprint stays.
 void drop_shard_entries(SidecarFields& fields) {
@@ -218,6 +332,7 @@ MergeSummary merge_shards(const MergeOptions& options) {
   std::vector<Part> parts;
   for (const std::string& prefix : options.part_prefixes) parts.push_back(read_part(prefix));
   check_same_run(parts);
+  check_same_sets(parts);
   check_complete(parts);
   check_disjoint(parts);
   std::sort(parts.begin(), parts.end(), [](const Part& a, const Part& b) { return a.shard < b.shard; });
@@ -225,9 +340,14 @@ MergeSummary merge_shards(const MergeOptions& options) {
   MergeSummary summary;
   summary.shard_count = parts.front().shard_count;
   current_log().line("merging " + std::to_string(parts.size()) + " shards of run " + parts.front().fingerprint);
+  // Set results first: their order is checked as they are copied, and a
+  // refusal then leaves no merged file at all.
+  std::vector<std::string> set_files;
+  for (const auto& entry : parts.front().set_paths) set_files.push_back(merge_trait_sets(options, parts, entry.first));
   for (const auto& entry : parts.front().result_paths) {
     summary.result_files.push_back(merge_trait(options, parts, entry.first));
   }
+  summary.result_files.insert(summary.result_files.end(), set_files.begin(), set_files.end());
   write_combined_log(parts);
   return summary;
 }
