@@ -48,6 +48,13 @@ struct VariantSelection {
 void select_from_results(const std::string& results_path, double below, VariantSelection& selection,
                          std::vector<GenomicRegion>& regions);
 
+// For `confirm` of set results (PREFIX.TRAIT.sets.tsv.gz): the sets whose
+// overall p-value is below `below`, and their extents as index regions, so
+// that every variant there is refitted. Throws tamis::Error (results_input).
+void select_sets_from_results(const std::string& set_results_path, double below, std::set<std::string>& set_names,
+                              std::vector<GenomicRegion>& regions);
+bool is_set_results_path(const std::string& path);
+
 // Adds the variants of a list file, one per line. A complete chr:pos:ref:alt
 // (position from 1, alleles in bases, ALT also * or <ID>) is taken both as
 // that allele and as an ID, and adds an index region at its position; any

@@ -3,6 +3,7 @@
 #pragma once
 
 #include <cstddef>
+#include <set>
 #include <string>
 
 namespace tamis {
@@ -19,6 +20,8 @@ struct SetScanOptions {
   // pseudo-variant per set before the tests; 0 keeps every variant apart.
   double collapse_mac = 0.0;
   std::size_t max_variants = 5000;  // a larger set is skipped with a warning
+  // `confirm` of set results: only these sets are tested again (empty: every set).
+  std::set<std::string> only_sets;
   bool active() const { return !path.empty(); }
 };
 

@@ -340,6 +340,24 @@ void add_analysis_options(CLI::App* command, ScanArguments& arguments) {
       ->capture_default_str();
 }
 
+void add_set_options(CLI::App* command, ScanArguments& arguments) {
+  command->add_option("--sets", arguments.sets,
+                      "Variant sets to test together: a BED file (set name in column 4) or a list "
+                      "(set, variant as ID or chr:pos:ref:alt, optional weight); writes PREFIX.TRAIT.sets.tsv.gz");
+  command->add_option("--set-maf-ceiling", arguments.set_maf_ceiling,
+                      "Set tests take variants whose minor allele frequency is at most this")
+      ->capture_default_str();
+  command->add_option("--set-weights", arguments.set_weights,
+                      "beta (Beta(1,25) density of the frequency), flat, or listed (the set file's third column)")
+      ->capture_default_str();
+  command->add_option("--set-collapse-mac", arguments.set_collapse_mac,
+                      "Sum a set's variants with a minor allele count at most this into one (0: off; 10 is usual)")
+      ->capture_default_str();
+  command->add_option("--set-max-variants", arguments.set_max_variants,
+                      "Skip, with a warning, sets with more variants than this")
+      ->capture_default_str();
+}
+
 void add_scan_command(CLI::App& app, ScanArguments& arguments) {
   CLI::App* scan = app.add_subcommand("scan", "Test every variant against one or more traits");
   add_analysis_options(scan, arguments);
@@ -354,21 +372,7 @@ void add_scan_command(CLI::App& app, ScanArguments& arguments) {
   scan->add_option("--checkpoint-blocks", arguments.checkpoint_blocks,
                    "Blocks of 128 records between checkpoints that --resume can continue from")
       ->capture_default_str();
-  scan->add_option("--sets", arguments.sets,
-                   "Variant sets to test together: a BED file (set name in column 4) or a list "
-                   "(set, variant as ID or chr:pos:ref:alt, optional weight); writes PREFIX.TRAIT.sets.tsv.gz");
-  scan->add_option("--set-maf-ceiling", arguments.set_maf_ceiling,
-                   "Set tests take variants whose minor allele frequency is at most this")
-      ->capture_default_str();
-  scan->add_option("--set-weights", arguments.set_weights,
-                   "beta (Beta(1,25) density of the frequency), flat, or listed (the set file's third column)")
-      ->capture_default_str();
-  scan->add_option("--set-collapse-mac", arguments.set_collapse_mac,
-                   "Sum a set's variants with a minor allele count at most this into one (0: off; 10 is usual)")
-      ->capture_default_str();
-  scan->add_option("--set-max-variants", arguments.set_max_variants,
-                   "Skip, with a warning, sets with more variants than this")
-      ->capture_default_str();
+  add_set_options(scan, arguments);
 }
 
 void add_confirm_command(CLI::App& app, ScanArguments& arguments) {
@@ -379,6 +383,8 @@ void add_confirm_command(CLI::App& app, ScanArguments& arguments) {
                       "Results files of an earlier scan whose rows below --below are refitted");
   confirm->add_option("--below", arguments.below, "Take rows of --from-results with p below this")
       ->capture_default_str();
+  // With set results in --from-results, --sets tests the chosen sets again.
+  add_set_options(confirm, arguments);
 }
 
 void add_simulate_command(CLI::App& app, SimulationOptions& options) {
@@ -401,6 +407,10 @@ void add_simulate_command(CLI::App& app, SimulationOptions& options) {
       ->capture_default_str();
   simulate->add_option("--heritability", options.heritability,
                        "h² of a polygenic component of both traits, shared by relatives, in [0, 1)")
+      ->capture_default_str();
+  simulate->add_option("--causal-genes", options.causal_genes,
+                       "Genes of PREFIX.genes.bed whose rare variants (about half of them) carry effects on both "
+                       "traits; they are named in the truth file's gene column")
       ->capture_default_str();
 }
 
@@ -477,12 +487,28 @@ ScanOptions check_confirm_options(const ScanArguments& arguments, const std::str
   }
   std::vector<GenomicRegion> positions = options.regions;
   const bool indexed = arguments.variant_list.empty() || !options.regions.empty();
+  std::set<std::string> chosen_sets;
   for (const std::string& path : arguments.from_results) {
     check_readable("--from-results", path);
-    select_from_results(path, arguments.below, options.selection, positions);
+    if (is_set_results_path(path)) {
+      select_sets_from_results(path, arguments.below, chosen_sets, positions);
+    } else {
+      select_from_results(path, arguments.below, options.selection, positions);
+    }
   }
+  if (!chosen_sets.empty() && options.selection.active()) {
+    refuse_option("--from-results", "set results and variant results cannot be confirmed in one run",
+                  "confirm the set results and the variant results in two runs");
+  }
+  // Set hits: every variant in their extents is refitted, and with --sets the
+  // sets themselves are tested again.
+  if (options.sets.active() && chosen_sets.empty()) {
+    refuse_option("--sets", "confirm tests sets again only for set results (PREFIX.TRAIT.sets.tsv.gz)",
+                  "give set results to --from-results, or leave out --sets");
+  }
+  options.sets.only_sets = chosen_sets;
   options.regions = indexed ? positions : std::vector<GenomicRegion>{};
-  if (!options.selection.active()) {
+  if (!options.selection.active() && chosen_sets.empty()) {
     refuse_option("--from-results", "no row has p below " + std::to_string(arguments.below), "raise --below");
   }
   options.confirm_below = 1.0;
@@ -532,6 +558,7 @@ int execute_simulate(const SimulationOptions& options) {
   std::fprintf(stderr, "genotypes: %s\ntraits: %s\nplanted effects: %s\n", outputs.vcf_path.c_str(),
                outputs.table_path.c_str(), outputs.truth_path.c_str());
   if (!outputs.families_path.empty()) std::fprintf(stderr, "families: %s\n", outputs.families_path.c_str());
+  std::fprintf(stderr, "genes: %s\n", outputs.genes_path.c_str());
   return 0;
 }
 

@@ -582,10 +582,12 @@ void finish_set_tests(const std::vector<TraitContext>& traits, ScanProgress& pro
   }
 }
 
-void log_set_tallies(const VariantSets& sets, const std::vector<TraitContext>& traits, const ScanProgress& progress) {
+void log_set_tallies(const VariantSets& sets, const SetScanOptions& options, const std::vector<TraitContext>& traits,
+                     const ScanProgress& progress) {
+  const std::size_t chosen = options.only_sets.empty() ? sets.size() : options.only_sets.size();
   for (std::size_t trait_idx = 0; trait_idx < traits.size(); ++trait_idx) {
     const SetTally& tally = progress.set_accumulators[trait_idx]->tally();
-    const std::uint64_t empty = sets.size() - tally.tested - tally.too_large;
+    const std::uint64_t empty = chosen - std::min<std::uint64_t>(chosen, tally.tested + tally.too_large);
     std::ostringstream text;
     text << "trait " << traits[trait_idx].set.trait << ": " << tally.tested << " sets tested, " << empty
          << " with no variant left after filtering";
@@ -712,7 +714,7 @@ ScanSummary run_scan(const ScanOptions& requested) {
   for (const auto& file : progress.files) summary.result_files.push_back(file->final_path());
   for (const auto& file : progress.set_files) summary.set_files.push_back(file->final_path());
   log_tallies(summary, traits);
-  if (sets) log_set_tallies(*sets, traits, progress);
+  if (sets) log_set_tallies(*sets, options.sets, traits, progress);
   const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
   current_log().line("wall time: " + format_number(std::round(seconds * 100) / 100) + " s");
   return summary;

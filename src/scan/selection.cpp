@@ -22,8 +22,12 @@ std::vector<std::string> contig_candidates(const std::string& code) {
   return {code, "chr" + code};
 }
 
+void add_range(const std::string& code, std::int64_t first, std::int64_t last, std::vector<GenomicRegion>& regions) {
+  for (const std::string& contig : contig_candidates(code)) regions.push_back({contig, first, last});
+}
+
 void add_position(const std::string& code, std::int64_t position, std::vector<GenomicRegion>& regions) {
-  for (const std::string& contig : contig_candidates(code)) regions.push_back({contig, position, position});
+  add_range(code, position, position, regions);
 }
 
 std::string trim(const std::string& text) {
@@ -135,6 +139,27 @@ void select_from_results(const std::string& results_path, double below, VariantS
     chosen.insert(std::string(reader.field(variant_id)));
     add_position(std::string(reader.field(chromosome)), reader.integer(position), regions);
   }
+}
+
+void select_sets_from_results(const std::string& set_results_path, double below, std::set<std::string>& set_names,
+                              std::vector<GenomicRegion>& regions) {
+  ResultsReader reader(set_results_path, {"set", "chromosome", "start", "end", "neg_log_10_overall_p"});
+  const std::size_t name = reader.column_index("set");
+  const std::size_t chromosome = reader.column_index("chromosome");
+  const std::size_t start = reader.column_index("start");
+  const std::size_t end = reader.column_index("end");
+  const std::size_t neg_log_10_p = reader.column_index("neg_log_10_overall_p");
+  const double threshold = -std::log10(below);
+  while (reader.next_row()) {
+    if (!(reader.number(neg_log_10_p) > threshold)) continue;
+    set_names.insert(std::string(reader.field(name)));
+    add_range(std::string(reader.field(chromosome)), reader.integer(start), reader.integer(end), regions);
+  }
+}
+
+bool is_set_results_path(const std::string& path) {
+  const std::string suffix = ".sets.tsv.gz";
+  return path.size() > suffix.size() && path.compare(path.size() - suffix.size(), suffix.size(), suffix) == 0;
 }
 
 bool select_from_list(const std::string& list_path, ChromosomeCodes codes, VariantSelection& selection,

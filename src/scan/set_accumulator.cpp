@@ -248,7 +248,13 @@ SetResultRow test_set_variants(const TraitContext& trait, const SetScanOptions& 
 }
 
 SetAccumulator::SetAccumulator(const VariantSets& sets, const SetScanOptions& options, const TraitContext& trait)
-    : sets_(sets), options_(options), trait_(trait), done_(sets.size(), false) {}
+    : sets_(sets), options_(options), trait_(trait), done_(sets.size(), false) {
+  if (options.only_sets.empty()) return;
+  // Sets not chosen count as done from the start: their variants are not kept.
+  for (std::size_t set_idx = 0; set_idx < sets.size(); ++set_idx) {
+    done_[set_idx] = options.only_sets.count(sets.set(set_idx).name) == 0;
+  }
+}
 
 namespace {
 
@@ -271,7 +277,9 @@ void SetAccumulator::add_block(std::vector<SetVariant>& variants, const std::str
     auto shared = std::make_shared<const SetVariant>(std::move(variant));
     for (const SetMembership& membership : shared->sets) {
       if (done_[membership.set_index]) {
-        ++tally_.split_across_chromosomes;
+        if (options_.only_sets.empty() || options_.only_sets.count(sets_.set(membership.set_index).name)) {
+          ++tally_.split_across_chromosomes;
+        }
         continue;
       }
       OpenSet& open = open_[membership.set_index];
