@@ -9,6 +9,21 @@
 // With --families some residents are parents, children, siblings, half-siblings
 // or cousins of others; with --heritability both traits carry a polygenic
 // component that relatives share.
+//
+// The cohort's genes (invented names SRG0001, SRG0002, ...) are windows of 5
+// to 60 consecutive simulated variants, with gaps between some genes and a
+// few overlapping their neighbour; they are written as PREFIX.genes.bed
+// (BED: chromosome, start - 1, end, name) for `scan --sets`. With
+// --causal-genes K, K genes chosen at random carry rare-variant effects:
+// about half of each gene's rare variants (frequency below 1%) act on both
+// traits, -0.35 litres of fev1_litres and +1.0 on the logit of
+// winter_wheeze per allele (each gene in one direction, with one variant in
+// five acting the other way). The truth file then gains a column `gene`
+// naming each carrier's gene (#NA for the single planted variants).
+// The genes and their effects draw from random streams of their own, so
+// that without --causal-genes every other file is the same as before, and
+// with it the genotypes stay the same and only the traits and the truth
+// file change.
 #pragma once
 
 #include <cstdint>
@@ -28,6 +43,7 @@ struct SimulationOptions {
   int causal_per_trait = 6;      // 0 gives a null cohort
   double family_share = 0.0;     // share of samples in families of 2 to 6 (--families)
   double heritability = 0.0;     // h² of a polygenic component of both traits (--heritability)
+  int causal_genes = 0;          // genes with rare-variant effects on both traits (--causal-genes)
 };
 
 struct SimulationOutputs {
@@ -35,6 +51,7 @@ struct SimulationOutputs {
   std::string table_path;   // PREFIX.traits.tsv
   std::string truth_path;   // PREFIX.truth.tsv: the planted effects
   std::string families_path;  // PREFIX.families.tsv: each sample's family; empty without families
+  std::string genes_path;     // PREFIX.genes.bed: the genes, for scan --sets
 };
 
 SimulationOutputs simulate_cohort(const SimulationOptions& options);

@@ -4,9 +4,11 @@
 #include <array>
 #include <cmath>
 #include <cstdio>
+#include <optional>
 #include <string>
 #include <vector>
 
+#include "genes.hpp"
 #include "people.hpp"
 #include "polygenic.hpp"
 #include "random.hpp"
@@ -30,11 +32,21 @@ constexpr double kHaplotypeBreak = 0.15;
 // parent over 3,000 variants, so that relatives' sharing stays near its
 // expectation, as over a whole human genome).
 constexpr double kCrossover = 0.05;
+// --causal-genes: the share of a chosen gene's rare variants that carry an
+// effect, the effects (fev1_litres in litres, winter_wheeze on the logit
+// scale, per minor allele, in the direction of lower lung capacity and more
+// wheeze), and the chance that a variant acts the other way.
+constexpr double kGeneCarrierShare = 0.5;
+constexpr double kGeneFev1Effect = -0.35;
+constexpr double kGeneWheezeEffect = 1.0;
+constexpr double kGeneOppositeChance = 0.2;
+constexpr std::uint64_t kGeneEffectStream = 5;
 
 struct CausalVariant {
   std::size_t variant_idx = 0;
   int trait = 0;  // 0: fev1_litres, 1: winter_wheeze
   double effect = 0.0;
+  std::string gene;  // --causal-genes: the gene whose rare variants carry effects
   std::string chromosome;
   std::int64_t position = 0;
   std::vector<int> genotypes;
@@ -48,6 +60,7 @@ struct VariantDesign {
   double imputation_quality = 1.0;
   bool triallelic = false;
   double second_alt_frequency = 0.0;
+  bool rare = false;  // drawn with an ancestral frequency below 1%
 };
 
 VariantDesign design_variant(const SimulationOptions& options, Random& random) {
@@ -60,6 +73,7 @@ VariantDesign design_variant(const SimulationOptions& options, Random& random) {
   design.imputation_quality = random.bernoulli(0.3) ? 1.0 : random.uniform(0.6, 1.0);
   design.triallelic = random.bernoulli(0.01);
   design.second_alt_frequency = random.uniform(0.005, 0.05);
+  design.rare = rare;
   return design;
 }
 
@@ -155,21 +169,87 @@ void inherit_alleles(const Person& child, const std::vector<std::array<int, 2>>&
   }
 }
 
-// Writes the VCF record by record; keeps the genotypes of the planted variants.
-// People are visited parents first, so that children inherit this variant's alleles.
-void write_genotypes(const SimulationOptions& options, const Cohort& cohort, std::vector<CausalVariant>& causal,
-                     Random& random, const std::string& path) {
-  const std::vector<Person>& people = cohort.people;
+struct VariantPositions {
+  std::vector<std::vector<std::int64_t>> of_contig;
+  std::vector<std::int64_t> contig_lengths;
+};
+
+VariantPositions draw_positions(const SimulationOptions& options, Random& random) {
   const int per_chromosome = std::max(1, options.variants / options.chromosomes);
-  std::vector<std::int64_t> contig_lengths(static_cast<std::size_t>(options.chromosomes), 0);
-  std::vector<std::vector<std::int64_t>> positions(contig_lengths.size());
+  VariantPositions positions;
+  positions.contig_lengths.assign(static_cast<std::size_t>(options.chromosomes), 0);
+  positions.of_contig.resize(positions.contig_lengths.size());
   for (int variant_idx = 0; variant_idx < options.variants; ++variant_idx) {
-    const std::size_t contig = std::min<std::size_t>(variant_idx / per_chromosome, contig_lengths.size() - 1);
-    std::int64_t& last = contig_lengths[contig];
+    const std::size_t contig =
+        std::min<std::size_t>(variant_idx / per_chromosome, positions.contig_lengths.size() - 1);
+    std::int64_t& last = positions.contig_lengths[contig];
     last = (last == 0 ? 10000 : last) + 200 + static_cast<std::int64_t>(random.index(20000));
-    positions[contig].push_back(last);
+    positions.of_contig[contig].push_back(last);
   }
-  for (auto& length : contig_lengths) length += 10000;
+  for (auto& length : positions.contig_lengths) length += 10000;
+  return positions;
+}
+
+// --causal-genes: which variants lie in a chosen gene, and the effects of
+// those of its rare variants that carry one. Its draws come from a stream of
+// their own, so that the genotypes stay those of the cohort without it.
+class GeneEffects {
+ public:
+  GeneEffects(const std::vector<simulation::SimulatedGene>& genes, const std::vector<std::size_t>& chosen,
+              std::size_t variant_count, std::uint64_t seed)
+      : random_(simulation::stream_seed(seed, kGeneEffectStream)), gene_of_(variant_count, -1) {
+    for (std::size_t gene_idx : chosen) {
+      const simulation::SimulatedGene& gene = genes[gene_idx];
+      names_.push_back(gene.name);
+      directions_.push_back(random_.bernoulli(0.5) ? 1.0 : -1.0);
+      for (std::size_t variant_idx = gene.first_variant; variant_idx <= gene.last_variant; ++variant_idx) {
+        if (gene_of_[variant_idx] < 0) gene_of_[variant_idx] = static_cast<int>(names_.size() - 1);
+      }
+    }
+  }
+
+  // A new effect carrier (trait 0; its trait-1 twin is added at the end),
+  // or nothing for a variant outside the chosen genes, not rare, or not drawn.
+  std::optional<CausalVariant> draw_carrier(std::size_t variant_idx, const VariantDesign& design) {
+    const int gene = gene_of_[variant_idx];
+    if (gene < 0 || !design.rare || design.triallelic || !random_.bernoulli(kGeneCarrierShare)) return std::nullopt;
+    const double sign = directions_[static_cast<std::size_t>(gene)] * (random_.bernoulli(kGeneOppositeChance) ? -1 : 1);
+    CausalVariant carrier;
+    carrier.variant_idx = variant_idx;
+    carrier.effect = sign;  // scaled per trait in add_trait_effects
+    carrier.gene = names_[static_cast<std::size_t>(gene)];
+    return carrier;
+  }
+
+  // Each carrier acts on both traits.
+  static void add_trait_effects(std::vector<CausalVariant>& carriers, std::vector<CausalVariant>& causal) {
+    for (CausalVariant& carrier : carriers) {
+      CausalVariant wheeze = carrier;
+      carrier.trait = 0;
+      carrier.effect *= kGeneFev1Effect;
+      wheeze.trait = 1;
+      wheeze.effect *= kGeneWheezeEffect;
+      causal.push_back(std::move(carrier));
+      causal.push_back(std::move(wheeze));
+    }
+  }
+
+ private:
+  Random random_;
+  std::vector<int> gene_of_;  // index into names_, -1 outside the chosen genes
+  std::vector<std::string> names_;
+  std::vector<double> directions_;
+};
+
+// Writes the VCF record by record; keeps the genotypes of the planted variants
+// (and of the chosen genes' carriers in `carriers`, with `gene_effects`).
+// People are visited parents first, so that children inherit this variant's alleles.
+void write_genotypes(const SimulationOptions& options, const Cohort& cohort, const VariantPositions& variant_positions,
+                     std::vector<CausalVariant>& causal, GeneEffects* gene_effects,
+                     std::vector<CausalVariant>& carriers, Random& random, const std::string& path) {
+  const std::vector<Person>& people = cohort.people;
+  const std::vector<std::int64_t>& contig_lengths = variant_positions.contig_lengths;
+  const std::vector<std::vector<std::int64_t>>& positions = variant_positions.of_contig;
 
   BgzfTextFile vcf(path);
   vcf.write(vcf_header(options, cohort, contig_lengths));
@@ -191,6 +271,12 @@ void write_genotypes(const SimulationOptions& options, const Cohort& cohort, std
         design.triallelic = false;
         planted->chromosome = std::to_string(contig + 1);
         planted->position = position;
+      }
+      std::optional<CausalVariant> carrier;
+      if (gene_effects && !planted) carrier = gene_effects->draw_carrier(variant_idx, design);
+      if (carrier) {
+        carrier->chromosome = std::to_string(contig + 1);
+        carrier->position = position;
       }
       // Neighbouring common variants share haplotypes, so that associations
       // show as peaks of several variants in linkage disequilibrium.
@@ -218,6 +304,7 @@ void write_genotypes(const SimulationOptions& options, const Cohort& cohort, std
         }
         if (!person.genotyped) continue;
         if (planted) planted->genotypes.push_back(alleles[0] + alleles[1]);
+        if (carrier) carrier->genotypes.push_back(alleles[0] + alleles[1]);
         if (random.bernoulli(options.missing_rate)) {
           line += design.triallelic ? "\t./.:.,." : "\t./.:.";
           continue;
@@ -238,6 +325,7 @@ void write_genotypes(const SimulationOptions& options, const Cohort& cohort, std
       }
       line += '\n';
       vcf.write(line);
+      if (carrier) carriers.push_back(std::move(*carrier));
       previous_common = common;
       contig_start = false;
       ++variant_idx;
@@ -328,12 +416,16 @@ void write_table(const SimulationOptions& options, const Cohort& cohort, const s
   table.commit();
 }
 
-void write_truth(const std::vector<CausalVariant>& causal, const std::string& path) {
+// With --causal-genes a fifth column names the gene of each carrier (#NA
+// for the single planted variants); without it the file keeps four columns.
+void write_truth(const std::vector<CausalVariant>& causal, bool with_genes, const std::string& path) {
   PlainTextFile truth(path);
-  truth.write("trait\tchromosome\tposition\teffect\n");
+  truth.write(with_genes ? "trait\tchromosome\tposition\teffect\tgene\n" : "trait\tchromosome\tposition\teffect\n");
   for (const CausalVariant& variant : causal) {
-    truth.write(std::string(variant.trait == 0 ? "fev1_litres" : "winter_wheeze") + "\t" + variant.chromosome +
-                "\t" + std::to_string(variant.position) + "\t" + fixed(variant.effect, 3) + "\n");
+    std::string line = std::string(variant.trait == 0 ? "fev1_litres" : "winter_wheeze") + "\t" + variant.chromosome +
+                       "\t" + std::to_string(variant.position) + "\t" + fixed(variant.effect, 3);
+    if (with_genes) line += "\t" + (variant.gene.empty() ? std::string("#NA") : variant.gene);
+    truth.write(line + "\n");
   }
   truth.commit();
 }
@@ -357,6 +449,7 @@ void check_options(const SimulationOptions& options) {
   if (!(options.heritability >= 0.0 && options.heritability < 1.0)) {
     refuse("--heritability must lie in [0, 1)", "for example 0.6");
   }
+  if (options.causal_genes < 0) refuse("--causal-genes must be 0 or more", "for example 5");
 }
 
 }  // namespace
@@ -365,16 +458,33 @@ SimulationOutputs simulate_cohort(const SimulationOptions& options) {
   check_options(options);
   check_output_prefix_writable(options.out_prefix);
   SimulationOutputs outputs{options.out_prefix + ".vcf.gz", options.out_prefix + ".traits.tsv",
-                            options.out_prefix + ".truth.tsv", ""};
+                            options.out_prefix + ".truth.tsv", "", options.out_prefix + ".genes.bed"};
   Random random(options.seed);
   const Cohort cohort = simulation::make_cohort(options, random);
   std::vector<CausalVariant> causal = choose_causal_variants(options, random);
-  write_genotypes(options, cohort, causal, random, outputs.vcf_path);
+  const VariantPositions positions = draw_positions(options, random);
+  const std::vector<simulation::SimulatedGene> genes = simulation::lay_out_genes(positions.of_contig, options.seed);
+  if (static_cast<std::size_t>(options.causal_genes) > genes.size()) {
+    throw Error(ExitCode::usage, "tamis simulate",
+                "--causal-genes " + std::to_string(options.causal_genes) + " asks for more genes than the " +
+                    std::to_string(genes.size()) + " laid out over the variants",
+                "ask for fewer genes or more --variants");
+  }
+  std::optional<GeneEffects> gene_effects;
+  if (options.causal_genes > 0) {
+    gene_effects.emplace(genes, simulation::choose_causal_genes(genes.size(), options.causal_genes, options.seed),
+                         static_cast<std::size_t>(options.variants), options.seed);
+  }
+  std::vector<CausalVariant> carriers;
+  write_genotypes(options, cohort, positions, causal, gene_effects ? &*gene_effects : nullptr, carriers, random,
+                  outputs.vcf_path);
+  GeneEffects::add_trait_effects(carriers, causal);
+  simulation::write_gene_bed(genes, positions.of_contig, outputs.genes_path);
   const std::vector<std::array<double, 2>> genetic_values =
       options.heritability > 0.0 ? simulation::draw_genetic_values(cohort, options.seed)
                                  : std::vector<std::array<double, 2>>();
   write_table(options, cohort, causal, genetic_values, random, outputs.table_path);
-  write_truth(causal, outputs.truth_path);
+  write_truth(causal, options.causal_genes > 0, outputs.truth_path);
   if (options.family_share > 0.0) {
     outputs.families_path = options.out_prefix + ".families.tsv";
     simulation::write_families(cohort, outputs.families_path);
