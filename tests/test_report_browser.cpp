@@ -14,6 +14,7 @@
 #include <vector>
 
 #include "support/test_support.hpp"
+#include "tamis/results_writer.hpp"
 
 namespace tamis::testing {
 namespace {
@@ -129,6 +130,33 @@ std::string joined(const std::vector<std::string>& lines) {
   return text;
 }
 
+// Set results for fev1_litres, written here beside the scan's file as
+// `scan --sets` would write them: the page gains the set plots and table.
+void write_set_results(const std::string& path) {
+  BgzfTextFile file(path);
+  std::string text = set_result_header_line();
+  const char* const names[] = {"SRG0001", "SRG0002", "SRG0003", "SRG0004"};
+  for (int set_idx = 0; set_idx < 4; ++set_idx) {
+    SetResultRow row;
+    row.set = names[set_idx];
+    row.chromosome = std::to_string(1 + set_idx / 2);
+    row.start = 20000 + 400000 * set_idx;
+    row.end = row.start + 30000;
+    row.n_variants = 6;
+    row.total_mac = 14;
+    row.overall_log_p = row.burden_log_p = row.variance_log_p = row.optimal_log_p = row.cauchy_log_p =
+        -2.0 - 4.0 * set_idx;
+    row.burden_test = "score";
+    row.variance_method = "davies";
+    row.top_variant = std::string(names[set_idx]) + "_top";
+    row.weights = "beta_1_25";
+    row.n = 1500;
+    append_set_result_row(row, text);
+  }
+  file.write(text);
+  file.commit(IndexKind::tabix_sets);
+}
+
 class ReportInBrowser : public ::testing::Test {
  protected:
   void SetUp() override {
@@ -151,6 +179,7 @@ TEST_F(ReportInBrowser, EveryPlotLoadsAndThePageLogsNoError) {
                         "/cohort.traits.tsv --trait fev1_litres --trait winter_wheeze --covariates age,sex,pc1"
                         " --quiet --threads 2 --out " + dir + "/scan"),
             0);
+  write_set_results(dir + "/scan.fev1_litres.sets.tsv.gz");
   ASSERT_EQ(run_command(tamis_binary() + " report --results " + dir + "/scan.fev1_litres.tsv.gz " + dir +
                         "/scan.winter_wheeze.tsv.gz --locus-radius-kb 250 --out " + dir + "/report 2>/dev/null"),
             0);
@@ -164,6 +193,12 @@ TEST_F(ReportInBrowser, EveryPlotLoadsAndThePageLogsNoError) {
       const std::string size = png_size(dir + "/report." + trait + "." + plot + ".png");
       EXPECT_NE(size.find_first_not_of("0x"), std::string::npos) << trait << " " << plot;
       expected.push_back(std::string(plot) + " complete " + size);
+    }
+    if (std::string(trait) != "fev1_litres") continue;
+    for (const char* plot : {"manhattan", "qq"}) {
+      const std::string size = png_size(dir + "/report." + trait + ".sets." + plot + ".png");
+      EXPECT_NE(size.find_first_not_of("0x"), std::string::npos) << trait << " sets " << plot;
+      expected.push_back(std::string(plot) + " sets complete " + size);
     }
   }
   EXPECT_EQ(view.images, expected);
@@ -181,6 +216,7 @@ TEST_F(ReportInBrowser, EveryPlotLoadsAndThePageLogsNoError) {
     ++loci_tables;
   }
   EXPECT_EQ(loci_tables, 2u);
+  EXPECT_NE(dom.find("<table class=\"sets\">"), std::string::npos) << "the top sets of fev1_litres";
   EXPECT_NE(dom.find("within 250 kb of it"), std::string::npos);
 }
 
