@@ -454,6 +454,13 @@ TEST_F(RenderedReport, HtmlHoldsPlotsTablesAndLogHeader) {
   EXPECT_EQ(tamis::testing::capture_command(check), "0\n");
 }
 
+TEST(HtmlPieces, PThresholdsAsUsuallyWritten) {
+  using tamis::report::format_p_threshold;
+  EXPECT_EQ(format_p_threshold(5e-8), "5e-8");
+  EXPECT_EQ(format_p_threshold(0.05 / 3000, 2), "1.7e-5");  // the set plot's line for 3,000 sets
+  EXPECT_EQ(format_p_threshold(0.01, 2), "0.01");
+}
+
 TEST(HtmlPieces, Base64MatchesRfc4648Vectors) {
   // RFC 4648, section 10 test vectors.
   using tamis::report::encode_base64;

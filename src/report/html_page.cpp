@@ -144,10 +144,16 @@ std::string log_section(const PageContent& page) {
          "samples and null models.</p>\n" + html;
 }
 
-// 5e-08 -> "5e-8", as thresholds are usually written.
-std::string format_p_threshold(double p) {
+std::string format_distance(std::int64_t bases) {
+  if (bases >= 1000 && bases % 1000 == 0) return std::to_string(bases / 1000) + " kb";
+  return std::to_string(bases) + " bases";
+}
+
+}  // namespace
+
+std::string format_p_threshold(double p, int significant_digits) {
   char text[32];
-  std::snprintf(text, sizeof text, "%g", p);
+  std::snprintf(text, sizeof text, "%.*g", significant_digits, p);
   std::string written = text;
   for (const char* padded : {"e-0", "e+0"}) {
     std::size_t at = written.find(padded);
@@ -155,13 +161,6 @@ std::string format_p_threshold(double p) {
   }
   return written;
 }
-
-std::string format_distance(std::int64_t bases) {
-  if (bases >= 1000 && bases % 1000 == 0) return std::to_string(bases / 1000) + " kb";
-  return std::to_string(bases) + " bases";
-}
-
-}  // namespace
 
 std::string encode_base64(const std::string& bytes) {
   static const char alphabet[] = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";

@@ -46,6 +46,9 @@ struct PageContent {
 
 std::string compose_html_page(const PageContent& page);
 
+// 5e-08 -> "5e-8", as thresholds are usually written.
+std::string format_p_threshold(double p, int significant_digits = 6);
+
 // Pieces, exposed for the tests.
 std::string encode_base64(const std::string& bytes);
 std::string escape_html(const std::string& text);

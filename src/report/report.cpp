@@ -183,7 +183,7 @@ report::SetSection report_sets(const ReportOptions& options, const std::string& 
   facts.lead_noun_many = "sets below the line";
   facts.lines.clear();
   if (!sets.rows.empty()) {
-    section.line_text = format_number(std::pow(10.0, -sets.bonferroni_neg_log_10_p), "%.2g");
+    section.line_text = report::format_p_threshold(std::pow(10.0, -sets.bonferroni_neg_log_10_p), 2);
     facts.lines.push_back({sets.bonferroni_neg_log_10_p, section.line_text, true});
   }
   report::render_manhattan(sets.points, report::set_leads(sets), facts, section.manhattan_png,
