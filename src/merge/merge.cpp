@@ -210,11 +210,12 @@ void check_disjoint(const std::vector<Part>& parts) {
   }
 }
 
-void copy_rows(const std::string& path, bool with_header, BgzfTextFile& out) {
-  ResultsReader reader(path);
-  std::string text;
-  if (with_header) text = result_header_line();
+// Copies the reader's remaining rows after `text` (a header, or nothing) to
+// `out` in chunks of about a megabyte, showing each row to `check_row` first.
+template <typename CheckRow>
+void copy_reader_rows(ResultsReader& reader, std::string text, BgzfTextFile& out, CheckRow check_row) {
   while (reader.next_row()) {
+    check_row(reader);
     text.append(reader.line());
     text += '\n';
     if (text.size() > (1u << 20)) {
@@ -223,6 +224,11 @@ void copy_rows(const std::string& path, bool with_header, BgzfTextFile& out) {
     }
   }
   out.write(text);
+}
+
+void copy_rows(const std::string& path, bool with_header, BgzfTextFile& out) {
+  ResultsReader reader(path);
+  copy_reader_rows(reader, with_header ? result_header_line() : std::string(), out, [](const ResultsReader&) {});
 }
 
 // Where the last set row copied lies, to check that the parts' rows join in
@@ -264,17 +270,8 @@ void copy_set_rows(const std::string& path, SetRowOrder& order, BgzfTextFile& ou
   }
   const std::size_t chromosome_column = reader.column_index("chromosome");
   const std::size_t start_column = reader.column_index("start");
-  std::string text;
-  while (reader.next_row()) {
-    order.check(reader, chromosome_column, start_column);
-    text.append(reader.line());
-    text += '\n';
-    if (text.size() > (1u << 20)) {
-      out.write(text);
-      text.clear();
-    }
-  }
-  out.write(text);
+  copy_reader_rows(reader, std::string(), out,
+                   [&](const ResultsReader& row) { order.check(row, chromosome_column, start_column); });
 }
 
 // The parts' set rows joined in shard order under one header, indexed afresh.
