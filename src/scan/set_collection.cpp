@@ -70,12 +70,17 @@ void sparse_dosages(const TraitContext& trait, const DosageBlock& block, std::si
   const double* dosages = block.site_dosages(site_idx);
   out.samples.clear();
   out.values.clear();
-  for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) {
-    const double value = dosages[samples[sample_idx]];
-    if (value == 0.0) continue;
+  auto keep = [&](std::size_t sample_idx, double value) {
+    if (value == 0.0) return;
     out.samples.push_back(static_cast<std::uint32_t>(sample_idx));
     out.values.push_back(std::isnan(value) ? fill : value);
+  };
+  // Every genotype sample analysed (the usual case): one pass over the row.
+  if (samples.size() == block.sample_count) {
+    for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) keep(sample_idx, dosages[sample_idx]);
+    return;
   }
+  for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) keep(sample_idx, dosages[samples[sample_idx]]);
 }
 
 // The column a model adjusted (imputed and whitened) for the kernel, read
