@@ -20,8 +20,10 @@ enum class MixtureTailMethod {
   davies,           // characteristic-function inversion (Davies 1980) at its target accuracy
   saddlepoint,      // far tail: saddlepoint approximation (Kuonen 1999)
   moment_matching,  // Davies did not reach its accuracy and the saddlepoint did not apply (Liu et al. 2009)
+  contour_inversion,  // below p = 1e-3: the Bromwich integral along a parabola through the saddlepoint
 };
-const char* mixture_tail_method_name(MixtureTailMethod method);  // "chisq1", "davies", "saddlepoint", "moments"
+// "chisq1", "davies", "saddlepoint", "moments", "inversion"
+const char* mixture_tail_method_name(MixtureTailMethod method);
 
 struct MixtureTail {
   double log_p = 0.0;  // ln P(Q > q); finite, never -inf: p is never reported as 0
@@ -30,9 +32,13 @@ struct MixtureTail {
 
 // ln P(Q > q) for Q = sum_k lambda_k X_k, X_k independent chi-square(1),
 // lambda_k >= 0 (eigenvalues below 1e-12 of the largest are dropped).
-// Davies' inversion where it reaches its accuracy and p is above 1e-10; the
-// saddlepoint approximation below that, so that p far below 1e-10 keeps its
-// relative accuracy; moment matching where neither applies. q <= 0 gives 0.
+// Davies' inversion (absolute accuracy 1e-9) where it reaches that accuracy
+// and p is at least 1e-3, so that its relative error stays within 1e-6; the
+// contour inversion below that (relative accuracy about 1e-9 for any p, far
+// below 1e-300 too, and where Davies would need too many terms); the
+// saddlepoint approximation above the mean where the inversion does not
+// converge, moment matching where nothing else applies. q <= 0 gives 0, and
+// so does a mixture without a positive eigenvalue.
 MixtureTail mixture_chisq_upper_tail(const std::vector<double>& eigenvalues, double q);
 
 // The three methods on their own, for tests and the combination's integral.
@@ -49,8 +55,19 @@ DaviesTail davies_upper_tail(const std::vector<double>& eigenvalues, double q, d
 // first four cumulants. Returns ln p.
 double moment_matching_upper_log_tail(const std::vector<double>& eigenvalues, double q);
 // Kuonen (1999), Biometrika 86:929-935, Lugannani-Rice form. Returns ln p;
-// only for q above the mean (sum of eigenvalues).
+// only for q above the mean (sum of eigenvalues): NaN otherwise, and where q is
+// so close to the mean that the formula loses its digits.
 double saddlepoint_upper_log_tail(const std::vector<double>& eigenvalues, double q);
+// P(Q > q) = (1/2 pi i) int M(s) e^{-sq} / s ds, M(s) = E e^{sQ}, along the
+// parabola t + a y^2 + i y through the saddlepoint t (a: the steepest-descent
+// path's curvature there), summed by the trapezoidal rule with the step halved
+// until two sums agree to 1e-9.
+struct InversionTail {
+  double log_p = 0.0;
+  bool converged = false;
+  int nodes = 0;  // integrand evaluations
+};
+InversionTail contour_inversion_upper_log_tail(const std::vector<double>& eigenvalues, double q);
 
 // ---- Cauchy combination ------------------------------------------------------
 

@@ -1,0 +1,579 @@
+// Upper tails of Q = sum_k lambda_k X_k, X_k independent chi-square(1).
+//
+// Four routes, each from its paper:
+// - Davies (1980), Applied Statistics 29:323-333: the Gil-Pelaez inversion
+//   P(Q < c) = 1/2 - (1/pi) int_0^inf Im[phi(u) e^{-iuc}] / u du summed by the
+//   midpoint rule at u_k = (k + 1/2) Delta. Davies (1973, Biometrika
+//   60:415-417) showed that the infinite sum errs by at most
+//   P(Q < c - L) + P(Q > c + L), L = 2 pi / Delta; both tails are bounded here
+//   by Chernoff's bound exp(K(t) - t y) at the saddlepoint. The sum is cut at
+//   K terms with the truncation error bounded from |phi(u)| (the bound below).
+//   Where that needs too many terms, phi is multiplied by the convergence
+//   factor exp(-tau^2 u^2 / 2), i.e. Q + tau Z is inverted instead; the error
+//   this makes is at most tau^2 / 2 sup|f'| (second-order Taylor expansion of
+//   P(Q < c - tau Z) about c), with sup|f'| <= (1/pi) int_0^inf u |phi(u)| du.
+//   Every bound is a true bound, so `reached` is reported as the paper means.
+// - Kuonen (1999), Biometrika 86:929-935: the Lugannani-Rice saddlepoint
+//   approximation, carried in log space.
+// - Liu, Tang & Zhang (2009), CSDA 53:853-856: a chi-square matched on the
+//   first four cumulants (for central chi-square(1) terms, c3^2 <= c2 c4 by
+//   Cauchy-Schwarz, so the matched chi-square is central with l = c2^3 / c3^2
+//   degrees of freedom).
+// - The Bromwich integral P(Q > c) = (1/2 pi i) int M(s) e^{-sc} / s ds,
+//   M(s) = E e^{sQ}, along a parabola through the saddlepoint, bent to the
+//   right like the steepest-descent path and summed by the trapezoidal rule
+//   (Weideman & Trefethen 2007, Math. Comp. 76:1341-1356, for parabolic
+//   contours). Its integrand carries the factor exp(K(t) - tc) of the tail
+//   itself, so the result keeps its relative accuracy far below 1e-300 and
+//   for any number of terms; it is what the combination uses below p = 1e-3,
+//   where Davies' absolute accuracy of 1e-9 no longer gives relative accuracy
+//   1e-6 and the saddlepoint approximation errs by up to a few percent (the
+//   far tail of one dominant chi-square(1) term, Daniels 1987, ISR 55:37-48).
+#include <Eigen/Dense>
+#include <algorithm>
+#include <cmath>
+#include <complex>
+#include <limits>
+#include <stdexcept>
+
+#include "sets/mixture_cgf.hpp"
+#include "tamis/distributions.hpp"
+#include "tamis/set_tests.hpp"
+
+namespace tamis {
+
+using sets_detail::kept_eigenvalues;
+using sets_detail::log_add;
+using sets_detail::MixtureCgf;
+
+namespace sets_detail {
+
+std::vector<double> kept_eigenvalues(const std::vector<double>& eigenvalues) {
+  double largest = 0.0;
+  for (const double lambda : eigenvalues) {
+    if (!std::isfinite(lambda)) throw std::invalid_argument("mixture tail: an eigenvalue is not finite");
+    largest = std::max(largest, lambda);
+  }
+  std::vector<double> kept;
+  for (const double lambda : eigenvalues)
+    if (lambda > 0.0 && lambda >= 1e-12 * largest) kept.push_back(lambda);
+  std::sort(kept.begin(), kept.end(), std::greater<double>());
+  return kept;
+}
+
+double log_add(double a, double b) {
+  if (a < b) std::swap(a, b);
+  if (b == -std::numeric_limits<double>::infinity()) return a;
+  return a + std::log1p(std::exp(b - a));
+}
+
+MixtureCgf::MixtureCgf(std::vector<double> lambdas, double normal_variance)
+    : lambdas_(std::move(lambdas)), normal_variance_(normal_variance) {
+  const double largest = lambdas_.front();
+  gap_.reserve(lambdas_.size());
+  for (const double lambda : lambdas_) {
+    gap_.push_back((largest - lambda) / largest);
+    mean_ += lambda;
+  }
+}
+
+double MixtureCgf::cgf(double z) const {
+  // ln d_k by log1p near d_k = 1 (t near 0), where d_k - 1 = (z - 1)(1 - r_k)
+  // is exact enough; by log elsewhere, where d_k itself is.
+  double sum = 0.0;
+  for (std::size_t k = 0; k < lambdas_.size(); ++k) {
+    const double dk = d(k, z);
+    sum += dk < 0.5 ? std::log(dk) : std::log1p((z - 1.0) * (1.0 - gap_[k]));
+  }
+  const double t = t_of(z);
+  return -0.5 * sum + 0.5 * normal_variance_ * t * t;
+}
+
+double MixtureCgf::derivative(double z) const {
+  double sum = 0.0;
+  for (std::size_t k = 0; k < lambdas_.size(); ++k) sum += lambdas_[k] / d(k, z);
+  return sum + normal_variance_ * t_of(z);
+}
+
+double MixtureCgf::solve(double target) const {
+  // K'(t(z)) falls from +inf (z -> 0) as z grows; Newton's method in y = ln z
+  // inside a bracket that bisection keeps.
+  const double largest = lambdas_.front();
+  auto excess = [&](double y) { return derivative(std::exp(y)) - target; };
+  double y_low, y_high;
+  if (excess(0.0) < 0.0) {
+    y_high = 0.0;
+    // K'(t) >= lambda_1 / z + tau^2 t >= target for z <= lambda_1 / target.
+    y_low = std::log(largest / target);
+    while (excess(y_low) < 0.0) y_low -= 1.0;
+  } else {
+    y_low = 0.0;
+    y_high = 1.0;
+    while (excess(y_high) > 0.0 && y_high < 700.0) y_high = 2.0 * y_high + 1.0;
+  }
+  double y = 0.5 * (y_low + y_high);
+  for (int iteration = 0; iteration < 200; ++iteration) {
+    const double z = std::exp(y);
+    double slope = 0.0;  // d K'/d z
+    double value = -target + normal_variance_ * t_of(z);
+    for (std::size_t k = 0; k < lambdas_.size(); ++k) {
+      const double dk = d(k, z);
+      value += lambdas_[k] / dk;
+      slope -= lambdas_[k] * (1.0 - gap_[k]) / (dk * dk);
+    }
+    slope -= normal_variance_ / (2.0 * largest);
+    if (value == 0.0) return z;
+    if (value > 0.0) y_low = y; else y_high = y;
+    double next = y - value / (slope * z);
+    if (!(next > y_low && next < y_high)) next = 0.5 * (y_low + y_high);
+    if (std::fabs(next - y) <= 1e-15 * std::max(1.0, std::fabs(y)) || y_high - y_low <= 1e-15 * std::max(1.0, std::fabs(y)))
+      return std::exp(next);
+    y = next;
+  }
+  return std::exp(y);
+}
+
+double MixtureCgf::log_chernoff_bound(double y) const {
+  if (y == mean_) return 0.0;
+  if (y <= 0.0 && normal_variance_ == 0.0) return -std::numeric_limits<double>::infinity();
+  const double z = solve(y);
+  return std::min(0.0, cgf(z) - t_of(z) * y);
+}
+
+}  // namespace sets_detail
+
+namespace {
+
+constexpr double kPi = 3.14159265358979323846;
+
+// ---- Davies' inversion --------------------------------------------------------
+
+// ln of a bound on (1/pi) int_V^inf |phi(u)| exp(-tau^2 u^2 / 2) / u du, the
+// truncation error of the sum (its terms are that integrand at the midpoints
+// and the integrand falls, so the terms beyond (K - 1/2) Delta = V sum to no
+// more). |phi(u)| = prod_k (1 + a_k u^2)^(-1/4), a_k = 4 lambda_k^2. For the s
+// largest terms (1 + a_k u^2) >= a_k u^2, for the others the factor is at most
+// its value at V; integrating u^(-s/2 - 1) gives
+//   (2 / (pi s)) prod_{k > s} (1 + a_k V^2)^(-1/4) prod_{k <= s} (a_k V^2)^(-1/4),
+// the least over s. With the convergence factor, also
+//   |phi(V)| (1/pi) int_V^inf exp(-tau^2 u^2 / 2) / u du = |phi(V)| E1(x) / (2 pi),
+// x = tau^2 V^2 / 2, with E1(x) < exp(-x) ln(1 + 1/x).
+double log_truncation_bound(const std::vector<double>& lambdas, double v, double tau2) {
+  const std::size_t m = lambdas.size();
+  double total_log1p = 0.0;
+  std::vector<double> log1p_term(m), log_term(m);
+  for (std::size_t k = 0; k < m; ++k) {
+    const double x = 4.0 * lambdas[k] * lambdas[k] * v * v;
+    log1p_term[k] = std::log1p(x);
+    log_term[k] = std::log(x);
+    total_log1p += log1p_term[k];
+  }
+  double best = std::numeric_limits<double>::infinity();
+  double prefix_log1p = 0.0, prefix_log = 0.0;
+  for (std::size_t s = 1; s <= m; ++s) {
+    prefix_log1p += log1p_term[s - 1];
+    prefix_log += log_term[s - 1];
+    const double bound = std::log(2.0 / (kPi * static_cast<double>(s))) - 0.25 * (total_log1p - prefix_log1p + prefix_log);
+    best = std::min(best, bound);
+  }
+  if (tau2 > 0.0) {
+    const double x = 0.5 * tau2 * v * v;
+    best = std::min(best, -0.25 * total_log1p - x + std::log(std::log1p(1.0 / x)) - std::log(2.0 * kPi));
+  }
+  return best;
+}
+
+// The smallest V (within a few percent) whose truncation bound is at most
+// `log_allowance`; infinity if none below 1e300.
+double truncation_point(const std::vector<double>& lambdas, double tau2, double log_allowance) {
+  double high = 1.0 / lambdas.front();
+  while (log_truncation_bound(lambdas, high, tau2) > log_allowance) {
+    high *= 4.0;
+    if (high > 1e300) return std::numeric_limits<double>::infinity();
+  }
+  double low = high / 4.0;
+  for (int step = 0; step < 12; ++step) {
+    const double middle = std::sqrt(low * high);
+    (log_truncation_bound(lambdas, middle, tau2) > log_allowance ? low : high) = middle;
+  }
+  return high;
+}
+
+// The smallest L (within a few percent) with P(X < c - L) + P(X > c + L)
+// below e^log_allowance by Chernoff's bounds, X = Q + tau Z.
+double aliasing_span(const MixtureCgf& cgf, double c, double log_allowance) {
+  auto log_bound = [&](double span) {
+    const double upper = c + span > cgf.mean() ? cgf.log_chernoff_bound(c + span) : 0.0;
+    const double lower = c - span < cgf.mean() ? cgf.log_chernoff_bound(c - span) : 0.0;
+    return log_add(upper, lower);
+  };
+  double high = std::sqrt(2.0 * cgf.lambdas().front() * cgf.mean() + cgf.normal_variance());
+  while (log_bound(high) > log_allowance) high *= 2.0;
+  double low = high / 2.0;
+  for (int step = 0; step < 8; ++step) {
+    const double middle = 0.5 * (low + high);
+    (log_bound(middle) > log_allowance ? low : high) = middle;
+  }
+  return high;
+}
+
+// An upper bound on sup |f'| for the density f of Q:
+// (1/pi) int_0^inf u |phi(u)| du, finite with five or more terms. Summed by
+// the trapezoidal rule in ln u (accurate to far better than the 10% margin
+// added); below u0 the integrand is at most u, beyond the last node the tail
+// is bounded as in log_truncation_bound with u |phi(u)| <= C u^(1 - s/2),
+// s >= 5. Infinity where that fails.
+double density_slope_bound(const std::vector<double>& lambdas) {
+  const std::size_t m = lambdas.size();
+  if (m < 5) return std::numeric_limits<double>::infinity();
+  const double u0 = 1e-3 / lambdas.front();
+  const double step = 0.05;
+  auto log_abs_phi = [&](double u) {
+    double sum = 0.0;
+    for (const double lambda : lambdas) sum += std::log1p(4.0 * lambda * lambda * u * u);
+    return -0.25 * sum;
+  };
+  auto tail_bound = [&](double u) {  // bound on int_u^inf w |phi(w)| dw
+    double total_log1p = 0.0;
+    std::vector<double> log1p_term(m), log_term(m);
+    for (std::size_t k = 0; k < m; ++k) {
+      const double x = 4.0 * lambdas[k] * lambdas[k] * u * u;
+      log1p_term[k] = std::log1p(x);
+      log_term[k] = std::log(x);
+      total_log1p += log1p_term[k];
+    }
+    double best = std::numeric_limits<double>::infinity(), prefix_log1p = 0.0, prefix_log = 0.0;
+    for (std::size_t s = 1; s <= m; ++s) {
+      prefix_log1p += log1p_term[s - 1];
+      prefix_log += log_term[s - 1];
+      if (s < 5) continue;
+      const double log_c = -0.25 * (total_log1p - prefix_log1p + prefix_log);
+      best = std::min(best, std::exp(log_c) * u * u / (0.5 * static_cast<double>(s) - 2.0));
+    }
+    return best;
+  };
+  double integral = 0.5 * u0 * u0;
+  double log_u = std::log(u0);
+  double previous = u0 * u0 * std::exp(log_abs_phi(u0));
+  for (int node = 1; node <= 4000; ++node) {
+    log_u += step;
+    const double u = std::exp(log_u);
+    const double value = u * u * std::exp(log_abs_phi(u));
+    integral += 0.5 * step * (previous + value);
+    previous = value;
+    if (node % 20 == 0) {
+      const double tail = tail_bound(u);
+      if (tail < 1e-3 * integral) return 1.1 * (integral + tail) / kPi;
+    }
+  }
+  return std::numeric_limits<double>::infinity();
+}
+
+struct DaviesPlan {
+  double delta = 0.0;   // step of the midpoint rule
+  double tau2 = 0.0;    // variance of the convergence factor's normal term
+  double terms = 0.0;   // terms needed (a double: it can be astronomically large)
+};
+
+// Step and number of terms for absolute accuracy `accuracy`: the error is
+// aliasing + truncation (+ smoothing), each within its share.
+DaviesPlan plan_davies(const std::vector<double>& lambdas, double c, double accuracy, double tau2) {
+  DaviesPlan plan;
+  plan.tau2 = tau2;
+  const double share = tau2 > 0.0 ? accuracy / 3.0 : accuracy / 2.0;
+  const MixtureCgf cgf(lambdas, tau2);
+  const double span = aliasing_span(cgf, c, std::log(share));
+  plan.delta = 2.0 * kPi / span;
+  const double v = truncation_point(lambdas, tau2, std::log(share));
+  plan.terms = std::ceil(v / plan.delta + 0.5);
+  return plan;
+}
+
+// P(Q > c) = 1/2 + sum_k |phi_k| e^{-tau^2 u_k^2 / 2} sin(theta_k) / (pi (k + 1/2)),
+// theta(u) = 1/2 sum_j atan(2 lambda_j u) - u c.
+double davies_sum(const std::vector<double>& lambdas, double c, const DaviesPlan& plan, long terms) {
+  double sum = 0.0;
+  for (long k = 0; k < terms; ++k) {
+    const double half_index = static_cast<double>(k) + 0.5;
+    const double u = half_index * plan.delta;
+    double log_modulus = -0.5 * plan.tau2 * u * u;
+    double angle = -u * c;
+    for (const double lambda : lambdas) {
+      const double x = 2.0 * lambda * u;
+      log_modulus -= 0.25 * std::log1p(x * x);
+      angle += 0.5 * std::atan(x);
+    }
+    sum += std::exp(log_modulus) * std::sin(angle) / (kPi * half_index);
+  }
+  return 0.5 + sum;
+}
+
+// `sum_unreached`: sum term_limit terms where the plan needs more (an estimate
+// without its accuracy); the combination skips that work.
+DaviesTail davies_on_kept(const std::vector<double>& lambdas, double q, double accuracy, int term_limit,
+                          bool sum_unreached = true) {
+  DaviesTail result;
+  if (q <= 0.0) {
+    result.reached = true;
+    return result;
+  }
+  DaviesPlan plan = plan_davies(lambdas, q, accuracy, 0.0);
+  if (plan.terms > term_limit) {
+    const double slope_bound = density_slope_bound(lambdas);
+    if (std::isfinite(slope_bound)) {
+      // tau^2 / 2 sup|f'| within a third of the accuracy.
+      const DaviesPlan smoothed = plan_davies(lambdas, q, accuracy, 2.0 * (accuracy / 3.0) / slope_bound);
+      if (smoothed.terms < plan.terms) plan = smoothed;
+    }
+  }
+  result.reached = plan.terms <= term_limit;
+  if (!result.reached && !sum_unreached) return result;
+  result.terms = static_cast<int>(std::min<double>(plan.terms, term_limit));
+  result.p = std::clamp(davies_sum(lambdas, q, plan, result.terms), 0.0, 1.0);
+  return result;
+}
+
+// ---- moment matching ------------------------------------------------------------
+
+// ln Q(a, x), the regularized upper incomplete gamma function: the series for
+// P(a, x) below x = a + 1, the continued fraction for Q (modified Lentz)
+// above, both in log space.
+double log_upper_incomplete_gamma(double a, double x) {
+  if (x <= 0.0) return 0.0;
+  const double log_prefix = -x + a * std::log(x) - std::lgamma(a);
+  if (x < a + 1.0) {
+    double term = 1.0 / a, sum = term;
+    for (int n = 1; n < 100000; ++n) {
+      term *= x / (a + n);
+      sum += term;
+      if (term < sum * 1e-17) break;
+    }
+    return std::log1p(-std::min(1.0, std::exp(log_prefix + std::log(sum))));
+  }
+  const double tiny = 1e-300;
+  double b = x + 1.0 - a, cc = 1.0 / tiny, dd = 1.0 / b, h = dd;
+  for (int n = 1; n < 100000; ++n) {
+    const double an = -n * (n - a);
+    b += 2.0;
+    dd = an * dd + b;
+    if (std::fabs(dd) < tiny) dd = tiny;
+    cc = b + an / cc;
+    if (std::fabs(cc) < tiny) cc = tiny;
+    dd = 1.0 / dd;
+    const double delta = dd * cc;
+    h *= delta;
+    if (std::fabs(delta - 1.0) < 1e-16) break;
+  }
+  return log_prefix + std::log(h);
+}
+
+struct MatchedChisq {
+  double mean = 0.0, sd = 0.0, df = 0.0;
+};
+
+MatchedChisq match_moments(const std::vector<double>& lambdas) {
+  double c1 = 0.0, c2 = 0.0, c3 = 0.0;
+  for (const double lambda : lambdas) {
+    c1 += lambda;
+    c2 += lambda * lambda;
+    c3 += lambda * lambda * lambda;
+  }
+  return {c1, std::sqrt(2.0 * c2), c2 * c2 * c2 / (c3 * c3)};
+}
+
+double moment_matching_on_kept(const std::vector<double>& lambdas, double q) {
+  const MatchedChisq matched = match_moments(lambdas);
+  const double x = (q - matched.mean) / matched.sd * std::sqrt(2.0 * matched.df) + matched.df;
+  return log_upper_incomplete_gamma(0.5 * matched.df, 0.5 * x);
+}
+
+// ---- saddlepoint --------------------------------------------------------------------
+
+// Returns NaN where q is too close to the mean for w and v to carry digits.
+double saddlepoint_on_kept(const std::vector<double>& lambdas, double q) {
+  const MixtureCgf cgf(lambdas);
+  if (!(q > cgf.mean())) return std::numeric_limits<double>::quiet_NaN();
+  const double z = cgf.solve(q);
+  const double t = cgf.t_of(z);
+  const double half_w2 = t * q - cgf.cgf(z);
+  double second = 0.0;
+  for (std::size_t k = 0; k < lambdas.size(); ++k) {
+    const double b = 2.0 * lambdas[k] / cgf.d(k, z);
+    second += 0.5 * b * b;
+  }
+  if (!(half_w2 > 1e-10 * std::max(1.0, t * q))) return std::numeric_limits<double>::quiet_NaN();
+  const double w = std::sqrt(2.0 * half_w2);
+  const double v = t * std::sqrt(second);
+  return log_normal_upper_tail(w + std::log(v / w) / w);
+}
+
+// ---- the Bromwich integral along a parabola -------------------------------------------
+
+// The crossing point t, the parabola's curvature a and the trapezoidal step.
+struct Contour {
+  double t = 0.0;
+  double z = 1.0;
+  double curvature = 0.0;
+  double step = 0.0;
+  double scale = 0.0;  // 1 / sqrt(K''(t)): the width of the peak
+};
+
+// Distance from the real y axis to the nearest y with t + a y^2 + i y = s*,
+// for a real singularity s* = t + offset.
+double strip_width(double curvature, double offset) {
+  if (offset < 0.0) return (std::sqrt(1.0 + 4.0 * curvature * -offset) - 1.0) / (2.0 * curvature);
+  const double discriminant = 1.0 - 4.0 * curvature * offset;
+  if (discriminant <= 0.0) return 1.0 / (2.0 * curvature);
+  return (1.0 - std::sqrt(discriminant)) / (2.0 * curvature);
+}
+
+InversionTail invert_on_kept(const std::vector<double>& lambdas, double q) {
+  InversionTail result;
+  const MixtureCgf cgf(lambdas);
+  const double half_over_largest = 0.5 / lambdas.front();  // 1 / (2 lambda_1), the first branch point
+  Contour contour;
+  contour.z = cgf.solve(q);
+  contour.t = cgf.t_of(contour.z);
+  auto second_and_third = [&](double z, double& second, double& third) {
+    second = third = 0.0;
+    for (std::size_t k = 0; k < lambdas.size(); ++k) {
+      const double b = 2.0 * lambdas[k] / cgf.d(k, z);
+      second += 0.5 * b * b;
+      third += b * b * b;
+    }
+  };
+  double second, third;
+  second_and_third(contour.z, second, third);
+  // Near the mean the saddlepoint meets the pole of 1/s at 0: cross the axis
+  // at least half the peak's width (or half way to the branch point) away.
+  const double scale = 1.0 / std::sqrt(second);
+  const double keep_off = 0.5 * std::min(scale, half_over_largest);
+  if (std::fabs(contour.t) < keep_off) {
+    contour.t = contour.t >= 0.0 ? keep_off : -keep_off;
+    contour.z = 1.0 - 2.0 * lambdas.front() * contour.t;
+    second_and_third(contour.z, second, third);
+  }
+  contour.scale = 1.0 / std::sqrt(second);
+  contour.curvature = third / (6.0 * second);  // the steepest-descent path's at the saddlepoint
+  const double width = std::min(strip_width(contour.curvature, half_over_largest * contour.z),  // s_1 - t = z / (2 lambda_1)
+                                strip_width(contour.curvature, -contour.t));                    // the pole at s = 0
+  contour.step = 0.5 * std::min(width, contour.scale);
+
+  // Everything relative to the integrand's value at y = 0: e^{K(t) - tq} / t.
+  const double log_level = cgf.cgf(contour.z) - contour.t * q;
+  std::vector<double> b(lambdas.size());
+  for (std::size_t k = 0; k < lambdas.size(); ++k) b[k] = 2.0 * lambdas[k] / cgf.d(k, contour.z);
+  // (1/pi) Im[exp(K(s) - K(t) - (s - t) q) (2 a y + i) / s], s = t + a y^2 + i y.
+  auto integrand = [&](double y) {
+    const std::complex<double> offset(contour.curvature * y * y, y);
+    std::complex<double> log_ratio = -offset * q;
+    for (const double bk : b) log_ratio -= 0.5 * std::log(1.0 - offset * bk);
+    const std::complex<double> value =
+        std::exp(log_ratio) * std::complex<double>(2.0 * contour.curvature * y, 1.0) / (contour.t + offset);
+    return value.imag() / kPi;
+  };
+  // Trapezoidal sum h [F(0)/2 + sum_k F(kh)], nodes out to where they stop counting.
+  auto sum_from = [&](double first, double spacing, double scale_of_sum) {
+    double sum = 0.0;
+    int small_in_a_row = 0;
+    for (int node = 0; node < 200000; ++node) {
+      const double y = first + spacing * node;
+      const double value = integrand(y);
+      sum += value;
+      ++result.nodes;
+      const bool small = std::fabs(value) * spacing <= 1e-17 * std::max(std::fabs(sum * spacing), scale_of_sum);
+      small_in_a_row = small ? small_in_a_row + 1 : 0;
+      if (small_in_a_row >= 4 && y > 4.0 * contour.scale) return sum;
+    }
+    return std::numeric_limits<double>::quiet_NaN();
+  };
+  double step = contour.step;
+  const double at_zero = integrand(0.0);
+  double estimate = step * (0.5 * at_zero + sum_from(step, step, 0.0));
+  for (int halving = 0; halving < 8 && std::isfinite(estimate); ++halving) {
+    const double refined = 0.5 * estimate + 0.5 * step * sum_from(0.5 * step, step, std::fabs(estimate));
+    step *= 0.5;
+    const bool converged = std::fabs(refined - estimate) <= 1e-9 * std::fabs(refined);
+    estimate = refined;
+    if (converged && halving >= 1) {
+      result.converged = true;
+      break;
+    }
+  }
+  if (!std::isfinite(estimate)) return result;
+  if (contour.t > 0.0) {
+    result.converged = result.converged && estimate > 0.0;
+    result.log_p = log_level + std::log(std::fabs(estimate));
+  } else {
+    // Crossing left of the pole at 0 gives P(Q > q) - 1 = -P(Q <= q).
+    const double lower = -std::exp(log_level) * estimate;
+    result.converged = result.converged && lower >= 0.0 && lower < 1.0;
+    result.log_p = std::log1p(-std::clamp(lower, 0.0, 1.0));
+  }
+  return result;
+}
+
+}  // namespace
+
+const char* mixture_tail_method_name(MixtureTailMethod method) {
+  switch (method) {
+    case MixtureTailMethod::single_chisq: return "chisq1";
+    case MixtureTailMethod::davies: return "davies";
+    case MixtureTailMethod::saddlepoint: return "saddlepoint";
+    case MixtureTailMethod::moment_matching: return "moments";
+    case MixtureTailMethod::contour_inversion: return "inversion";
+  }
+  return "unknown";
+}
+
+DaviesTail davies_upper_tail(const std::vector<double>& eigenvalues, double q, double accuracy, int term_limit) {
+  const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);
+  if (lambdas.empty()) return {q < 0.0 ? 1.0 : 0.0, true, 0};
+  return davies_on_kept(lambdas, q, accuracy, term_limit);
+}
+
+double moment_matching_upper_log_tail(const std::vector<double>& eigenvalues, double q) {
+  const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);
+  if (lambdas.empty() || q <= 0.0) return 0.0;
+  return moment_matching_on_kept(lambdas, q);
+}
+
+double saddlepoint_upper_log_tail(const std::vector<double>& eigenvalues, double q) {
+  const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);
+  if (lambdas.empty()) return 0.0;
+  return saddlepoint_on_kept(lambdas, q);
+}
+
+InversionTail contour_inversion_upper_log_tail(const std::vector<double>& eigenvalues, double q) {
+  const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);
+  if (lambdas.empty() || q <= 0.0) return {0.0, true, 0};
+  return invert_on_kept(lambdas, q);
+}
+
+MixtureTail mixture_chisq_upper_tail(const std::vector<double>& eigenvalues, double q) {
+  const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);
+  if (lambdas.empty() || q <= 0.0) return {0.0, MixtureTailMethod::single_chisq};
+  if (lambdas.size() == 1) return {log_chisq1_upper_tail(q / lambdas.front()), MixtureTailMethod::single_chisq};
+
+  // Davies' absolute accuracy of 1e-9 is relative accuracy 1e-6 down to
+  // p = 1e-3. Chernoff's bound tells without a sum when p is surely below.
+  constexpr double kDaviesAccuracy = 1e-9;
+  constexpr double kDaviesFloor = 1e-3;
+  const MixtureCgf cgf(lambdas);
+  if (q <= cgf.mean() || cgf.log_chernoff_bound(q) > std::log(kDaviesFloor)) {
+    // Davies' sum costs a logarithm and an arc tangent per term and
+    // eigenvalue, the inversion a complex logarithm per node and eigenvalue
+    // over a few hundred nodes: beyond 2000 terms the inversion is the
+    // cheaper (and no less accurate) of the two.
+    constexpr int term_budget = 2000;
+    const DaviesTail davies = davies_on_kept(lambdas, q, kDaviesAccuracy, term_budget, false);
+    if (davies.reached && davies.p >= kDaviesFloor) return {std::log(davies.p), MixtureTailMethod::davies};
+  }
+  const InversionTail inverted = invert_on_kept(lambdas, q);
+  if (inverted.converged && inverted.log_p <= 0.0) return {inverted.log_p, MixtureTailMethod::contour_inversion};
+  const double saddlepoint = saddlepoint_on_kept(lambdas, q);
+  if (std::isfinite(saddlepoint)) return {saddlepoint, MixtureTailMethod::saddlepoint};
+  return {moment_matching_on_kept(lambdas, q), MixtureTailMethod::moment_matching};
+}
+
+}  // namespace tamis
