@@ -5,11 +5,14 @@
 # variance-component p-values against Imhof's (1961) integral evaluated with
 # mpmath (imhof_upper_tail.py).
 #
-# A simulated cohort (mostly rare variants, 1% of calls missing) is kept to
+# A simulated cohort (mostly rare variants, 1% of calls missing, rare-variant
+# effects planted in 6 of its genes, so that some sets have small p) is kept to
 # its biallelic records (bcftools view -m2 -M2); sets are windows of
 # consecutive variants, as a BED file and as a list of chr:pos:ref:alt with
-# weights. Three scans: BED with flat weights, BED with Beta(1, 25) weights,
-# the list with its weights and --binary-score plain.
+# weights. Four scans: BED with flat weights, BED with Beta(1, 25) weights,
+# the list with its weights and --binary-score plain, and BED with flat
+# weights over every variant (--set-maf-ceiling 0.5, which takes the common
+# planted variants too).
 # Usage:
 #   check_sets_against_r.sh TAMIS WORKDIR [SAMPLES VARIANTS SEED [IMHOF_SETS]]
 set -euo pipefail
@@ -21,7 +24,7 @@ python=/usr/bin/python3
 "$python" -c 'import mpmath' || { echo "mpmath is needed: apt-get install python3-mpmath" >&2; exit 1; }
 rm -rf "$work"; mkdir -p "$work"
 "$tamis" simulate --out "$work/cohort" --samples "$samples" --variants "$variants" --seed "$seed" \
-  --rare-fraction 0.9 2>/dev/null
+  --rare-fraction 0.9 --causal-genes 6 2>/dev/null
 bcftools view -m2 -M2 -Oz -o "$work/biallelic.vcf.gz" "$work/cohort.vcf.gz"
 
 # Dosages, one row per variant (bcftools 1.16).
@@ -56,6 +59,7 @@ scan() {  # OUT SETS WEIGHTS [more options]
 scan flat "$work/windows.bed" flat
 scan beta "$work/windows.bed" beta
 scan listed "$work/windows.txt" listed --binary-score plain
+scan common "$work/windows.bed" flat --set-maf-ceiling 0.5
 
 Rscript "$here/check_sets_against_r.R" "$work" "$covariates" "$imhof_sets" fev1_litres winter_wheeze
 "$python" "$here/imhof_upper_tail.py" "$work/mixtures.tsv"
