@@ -11,6 +11,7 @@
 #include <tuple>
 
 #include "scan/trait_pass.hpp"
+#include "sets/mixture_cgf.hpp"
 #include "tamis/distributions.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/saddlepoint.hpp"
@@ -133,34 +134,76 @@ Eigen::MatrixXd score_covariance(const TraitContext& trait, const std::vector<Te
   return scale * covariance;
 }
 
-// The burden's dosages over the analysis samples, for the saddlepoint.
-Eigen::VectorXd burden_dosages(const TraitContext& trait, const std::vector<TestUnit>& units) {
+// ln p of a score by the saddlepoint, as a single variant's (the normal
+// tail is kept below two standard errors).
+double saddlepoint_log_p(const TraitContext& trait, const Eigen::VectorXd& dosages, double u, double variance) {
+  constexpr double kNormalCutoff = 2.0;
+  const double chisq = u * u / variance;
+  if (chisq < kNormalCutoff * kNormalCutoff) return log_chisq1_upper_tail(chisq);
+  ScoreResult score;
+  score.u = u;
+  score.v = variance;
+  const double matched = trait.tests->saddlepoint_variance(*trait.saddlepoint, dosages, score);
+  if (!(matched > 0.0)) return log_chisq1_upper_tail(chisq);
+  return saddlepoint_score_log_p(*trait.saddlepoint, dosages, u * std::sqrt(matched / variance), matched,
+                                 kNormalCutoff)
+      .log_p;
+}
+
+Eigen::VectorXd unit_dosages(const TraitContext& trait, const TestUnit& unit, double factor) {
   Eigen::VectorXd dosages = Eigen::VectorXd::Zero(trait.model.sample_count());
-  for (const TestUnit& unit : units) {
-    const SparseColumn& column = unit.dosages.samples.empty() ? unit.column : unit.dosages;
-    for (std::size_t entry = 0; entry < column.samples.size(); ++entry) {
-      dosages[static_cast<Eigen::Index>(column.samples[entry])] += unit.weight * column.values[entry];
-    }
+  const SparseColumn& column = unit.dosages.samples.empty() ? unit.column : unit.dosages;
+  for (std::size_t entry = 0; entry < column.samples.size(); ++entry) {
+    dosages[static_cast<Eigen::Index>(column.samples[entry])] += factor * column.values[entry];
   }
   return dosages;
 }
 
-// Binary traits: the burden's p-value from the saddlepoint, as a single
-// variant's (the normal tail is kept below two standard errors).
-void calibrate_burden(const TraitContext& trait, const std::vector<TestUnit>& units, SetResultRow& row,
-                      const SetTestResult& tests) {
-  constexpr double kNormalCutoff = 2.0;
-  if (!trait.saddlepoint || !(tests.burden_variance > 0.0)) return;
-  row.burden_test = "score_spa";
-  if (tests.burden_chisq < kNormalCutoff * kNormalCutoff) return;
-  const Eigen::VectorXd dosages = burden_dosages(trait, units);
-  ScoreResult score;
-  score.u = tests.burden_score;
-  score.v = tests.burden_variance;
-  const double variance = trait.tests->saddlepoint_variance(*trait.saddlepoint, dosages, score);
-  if (!(variance > 0.0)) return;
-  const double u = score.u * std::sqrt(variance / score.v);
-  row.burden_log_p = saddlepoint_score_log_p(*trait.saddlepoint, dosages, u, variance, kNormalCutoff).log_p;
+// The variance a saddlepoint p-value implies for a score u: the one under
+// which the normal test gives the same p.
+double implied_variance(double u, double log_p) {
+  const double quantile = sets_detail::chisq1_upper_quantile_from_log(log_p);
+  return quantile > 0.0 ? u * u / quantile : 0.0;
+}
+
+// Binary traits: the scores' covariance matched to the saddlepoint (Zhao et
+// al. 2020, AJHG 106:3-12, from memory): each score whose normal test the
+// saddlepoint replaced gets the variance its saddlepoint p implies, its
+// covariances scaled alike, and the whole matrix is then scaled so that the
+// burden's variance is the one its own saddlepoint p implies. Rare variants
+// in unbalanced case-control samples have skewed scores, and without this
+// the variance-component and optimal tests run anti-conservative. Returns
+// the burden's ln p.
+double match_covariance_to_saddlepoint(const TraitContext& trait, std::vector<TestUnit>& units,
+                                       const Eigen::VectorXd& u, const Eigen::VectorXd& weights,
+                                       Eigen::MatrixXd& covariance) {
+  const Eigen::Index count = u.size();
+  Eigen::VectorXd root_ratio = Eigen::VectorXd::Ones(count);
+  for (Eigen::Index unit_idx = 0; unit_idx < count; ++unit_idx) {
+    TestUnit& unit = units[static_cast<std::size_t>(unit_idx)];
+    const double variance = covariance(unit_idx, unit_idx);
+    if (!(variance > 0.0)) continue;
+    if (std::isnan(unit.log_p)) unit.log_p = saddlepoint_log_p(trait, unit_dosages(trait, unit, 1.0), u[unit_idx], variance);
+    if (u[unit_idx] * u[unit_idx] / variance < 4.0) continue;  // the normal tail stood
+    const double implied = implied_variance(u[unit_idx], unit.log_p);
+    if (implied > 0.0) root_ratio[unit_idx] = std::sqrt(implied / variance);
+  }
+  const double burden = weights.dot(u), burden_variance = weights.dot(covariance * weights);
+  if (!(burden_variance > 0.0)) return 0.0;
+  Eigen::VectorXd burden_dosages = Eigen::VectorXd::Zero(trait.model.sample_count());
+  for (Eigen::Index unit_idx = 0; unit_idx < count; ++unit_idx) {
+    burden_dosages += unit_dosages(trait, units[static_cast<std::size_t>(unit_idx)], weights[unit_idx]);
+  }
+  const double burden_log_p = saddlepoint_log_p(trait, burden_dosages, burden, burden_variance);
+  covariance = root_ratio.asDiagonal() * covariance * root_ratio.asDiagonal();
+  double target = burden_variance;
+  if (burden * burden / burden_variance >= 4.0) {
+    const double implied = implied_variance(burden, burden_log_p);
+    if (implied > 0.0) target = implied;
+  }
+  const double adjusted = weights.dot(covariance * weights);
+  if (adjusted > 0.0) covariance *= target / adjusted;
+  return burden_log_p;
 }
 
 // The Cauchy combination of the units' own p-values, weighted as the
@@ -219,22 +262,27 @@ SetResultRow test_set_variants(const TraitContext& trait, const SetScanOptions& 
   }
   if (collapsed) *collapsed = row.n_collapsed;
 
-  const Eigen::MatrixXd covariance = score_covariance(trait, units);
+  Eigen::MatrixXd covariance = score_covariance(trait, units);
   Eigen::VectorXd u(static_cast<Eigen::Index>(units.size())), weights(static_cast<Eigen::Index>(units.size()));
   for (std::size_t unit_idx = 0; unit_idx < units.size(); ++unit_idx) {
     u[static_cast<Eigen::Index>(unit_idx)] = units[unit_idx].u;
     weights[static_cast<Eigen::Index>(unit_idx)] = units[unit_idx].weight;
   }
-  const SetTestResult tests = test_variant_set(u, covariance, weights);
-  row.burden_log_p = tests.burden_log_p;
-  row.burden_chisq = tests.burden_chisq;
-  // The one-step estimate per weighted minor allele, as a single variant's.
+  // The burden's statistic and one-step estimate per weighted minor allele,
+  // as a single variant's, from the scores' own covariance.
+  const double burden = weights.dot(u), burden_variance = weights.dot(covariance * weights);
   const double scale = trait.model.kind == TraitKind::quantitative ? trait.model.sigma2 : 1.0;
-  if (tests.burden_variance > 0.0) {
-    row.burden_beta = tests.burden_score * scale / tests.burden_variance;
-    row.burden_se = scale / std::sqrt(tests.burden_variance);
+  if (burden_variance > 0.0) {
+    row.burden_chisq = burden * burden / burden_variance;
+    row.burden_beta = burden * scale / burden_variance;
+    row.burden_se = scale / std::sqrt(burden_variance);
   }
-  calibrate_burden(trait, units, row, tests);
+  if (trait.saddlepoint) {
+    row.burden_test = "score_spa";
+    match_covariance_to_saddlepoint(trait, units, u, weights, covariance);
+  }
+  const SetTestResult tests = test_variant_set(u, covariance, weights);
+  row.burden_log_p = tests.burden_log_p;  // the saddlepoint's, where the covariance was matched to it
   row.variance_q = tests.variance_q;
   row.variance_log_p = tests.variance_log_p;
   row.variance_method = mixture_tail_method_name(tests.variance_method);
