@@ -148,39 +148,54 @@ constexpr double kPi = 3.14159265358979323846;
 
 // ---- Davies' inversion --------------------------------------------------------
 
-// ln of a bound on (1/pi) int_V^inf |phi(u)| exp(-tau^2 u^2 / 2) / u du, the
-// truncation error of the sum (its terms are that integrand at the midpoints
-// and the integrand falls, so the terms beyond (K - 1/2) Delta = V sum to no
-// more). |phi(u)| = prod_k (1 + a_k u^2)^(-1/4), a_k = 4 lambda_k^2. For the s
-// largest terms (1 + a_k u^2) >= a_k u^2, for the others the factor is at most
-// its value at V; integrating u^(-s/2 - 1) gives
-//   (2 / (pi s)) prod_{k > s} (1 + a_k V^2)^(-1/4) prod_{k <= s} (a_k V^2)^(-1/4),
-// the least over s. With the convergence factor, also
-//   |phi(V)| (1/pi) int_V^inf exp(-tau^2 u^2 / 2) / u du = |phi(V)| E1(x) / (2 pi),
-// x = tau^2 V^2 / 2, with E1(x) < exp(-x) ln(1 + 1/x).
-double log_truncation_bound(const std::vector<double>& lambdas, double v, double tau2) {
+// |phi(u)| = prod_k (1 + a_k u^2)^(-1/4), a_k = 4 lambda_k^2, falls at least
+// as fast as u^(-s/2) beyond V for the s largest terms, since there
+// (1 + a_k u^2) >= a_k u^2, while the other factors are at most their values
+// at V. So for u >= V
+//   |phi(u)| <= C_s(V) (u / V)^(-s/2),
+//   C_s(V) = prod_{k > s} (1 + a_k V^2)^(-1/4) prod_{k <= s} (a_k V^2)^(-1/4).
+// Returns ln|phi(V)| and, for the bound of an integral of |phi| against a
+// power of u, the least over s >= s_min of ln C_s(V) + log_factor(s).
+struct SplitBound {
+  double log_abs_phi = 0.0;
+  double least = std::numeric_limits<double>::infinity();
+};
+template <class LogFactor>
+SplitBound split_bound(const std::vector<double>& lambdas, double v, std::size_t s_min, LogFactor log_factor) {
   const std::size_t m = lambdas.size();
-  double total_log1p = 0.0;
   std::vector<double> log1p_term(m), log_term(m);
+  double total_log1p = 0.0;
   for (std::size_t k = 0; k < m; ++k) {
     const double x = 4.0 * lambdas[k] * lambdas[k] * v * v;
     log1p_term[k] = std::log1p(x);
     log_term[k] = std::log(x);
     total_log1p += log1p_term[k];
   }
-  double best = std::numeric_limits<double>::infinity();
+  SplitBound bound;
+  bound.log_abs_phi = -0.25 * total_log1p;
   double prefix_log1p = 0.0, prefix_log = 0.0;
   for (std::size_t s = 1; s <= m; ++s) {
     prefix_log1p += log1p_term[s - 1];
     prefix_log += log_term[s - 1];
-    const double bound = std::log(2.0 / (kPi * static_cast<double>(s))) - 0.25 * (total_log1p - prefix_log1p + prefix_log);
-    best = std::min(best, bound);
+    if (s < s_min) continue;
+    bound.least = std::min(bound.least, -0.25 * (total_log1p - prefix_log1p + prefix_log) + log_factor(s));
   }
-  if (tau2 > 0.0) {
-    const double x = 0.5 * tau2 * v * v;
-    best = std::min(best, -0.25 * total_log1p - x + std::log(std::log1p(1.0 / x)) - std::log(2.0 * kPi));
-  }
-  return best;
+  return bound;
+}
+
+// ln of a bound on (1/pi) int_V^inf |phi(u)| exp(-tau^2 u^2 / 2) / u du, the
+// truncation error of the sum (its terms are that integrand at the midpoints
+// and the integrand falls, so the terms beyond (K - 1/2) Delta = V sum to no
+// more): integrating u^(-s/2 - 1) in split_bound gives C_s(V) 2 / (pi s).
+// With the convergence factor, also
+//   |phi(V)| (1/pi) int_V^inf exp(-tau^2 u^2 / 2) / u du = |phi(V)| E1(x) / (2 pi),
+// x = tau^2 V^2 / 2, with E1(x) < exp(-x) ln(1 + 1/x).
+double log_truncation_bound(const std::vector<double>& lambdas, double v, double tau2) {
+  const SplitBound bound =
+      split_bound(lambdas, v, 1, [](std::size_t s) { return std::log(2.0 / (kPi * static_cast<double>(s))); });
+  if (!(tau2 > 0.0)) return bound.least;
+  const double x = 0.5 * tau2 * v * v;
+  return std::min(bound.least, bound.log_abs_phi - x + std::log(std::log1p(1.0 / x)) - std::log(2.0 * kPi));
 }
 
 // The smallest V (within a few percent) whose truncation bound is at most
@@ -233,24 +248,11 @@ double density_slope_bound(const std::vector<double>& lambdas) {
     for (const double lambda : lambdas) sum += std::log1p(4.0 * lambda * lambda * u * u);
     return -0.25 * sum;
   };
-  auto tail_bound = [&](double u) {  // bound on int_u^inf w |phi(w)| dw
-    double total_log1p = 0.0;
-    std::vector<double> log1p_term(m), log_term(m);
-    for (std::size_t k = 0; k < m; ++k) {
-      const double x = 4.0 * lambdas[k] * lambdas[k] * u * u;
-      log1p_term[k] = std::log1p(x);
-      log_term[k] = std::log(x);
-      total_log1p += log1p_term[k];
-    }
-    double best = std::numeric_limits<double>::infinity(), prefix_log1p = 0.0, prefix_log = 0.0;
-    for (std::size_t s = 1; s <= m; ++s) {
-      prefix_log1p += log1p_term[s - 1];
-      prefix_log += log_term[s - 1];
-      if (s < 5) continue;
-      const double log_c = -0.25 * (total_log1p - prefix_log1p + prefix_log);
-      best = std::min(best, std::exp(log_c) * u * u / (0.5 * static_cast<double>(s) - 2.0));
-    }
-    return best;
+  auto tail_bound = [&](double u) {  // bound on int_u^inf w |phi(w)| dw = C_s(u) u^2 / (s/2 - 2)
+    const SplitBound bound = split_bound(lambdas, u, 5, [&](std::size_t s) {
+      return 2.0 * std::log(u) - std::log(0.5 * static_cast<double>(s) - 2.0);
+    });
+    return std::exp(bound.least);
   };
   double integral = 0.5 * u0 * u0;
   double log_u = std::log(u0);
