@@ -497,7 +497,7 @@ InversionTail invert_on_kept(const std::vector<double>& lambdas, double q) {
     step *= 0.5;
     const bool converged = std::fabs(refined - estimate) <= 1e-9 * std::fabs(refined);
     estimate = refined;
-    if (converged && halving >= 1) {
+    if (converged) {
       result.converged = true;
       break;
     }
