@@ -16,11 +16,11 @@ namespace tamis {
 
 // How mixture_chisq_upper_tail reached its value.
 enum class MixtureTailMethod {
-  single_chisq,     // one non-zero eigenvalue: the chi-square(1) tail itself
-  davies,           // characteristic-function inversion (Davies 1980) at its target accuracy
-  saddlepoint,      // far tail: saddlepoint approximation (Kuonen 1999)
-  moment_matching,  // Davies did not reach its accuracy and the saddlepoint did not apply (Liu et al. 2009)
-  contour_inversion,  // below p = 1e-3: the Bromwich integral along a parabola through the saddlepoint
+  single_chisq,       // one non-zero eigenvalue: the chi-square(1) tail itself
+  davies,             // characteristic-function inversion (Davies 1980) at its target accuracy
+  saddlepoint,        // the contour inversion did not converge: saddlepoint approximation (Kuonen 1999)
+  moment_matching,    // nothing else applied (Liu et al. 2009)
+  contour_inversion,  // p below 1e-3, or Davies too costly: the Bromwich integral through the saddlepoint
 };
 // "chisq1", "davies", "saddlepoint", "moments", "inversion"
 const char* mixture_tail_method_name(MixtureTailMethod method);
@@ -33,22 +33,25 @@ struct MixtureTail {
 // ln P(Q > q) for Q = sum_k lambda_k X_k, X_k independent chi-square(1),
 // lambda_k >= 0 (eigenvalues below 1e-12 of the largest are dropped).
 // Davies' inversion (absolute accuracy 1e-9) where it reaches that accuracy
-// and p is at least 1e-3, so that its relative error stays within 1e-6; the
-// contour inversion below that (relative accuracy about 1e-9 for any p, far
-// below 1e-300 too, and where Davies would need too many terms); the
+// within 2000 terms and p is at least 1e-3, so that its relative error stays
+// within 1e-6; the contour inversion otherwise (relative accuracy about 1e-9
+// for any p, far below 1e-300 too: within 1.2e-13 of mpmath in
+// tests/test_set_tests.cpp); the
 // saddlepoint approximation above the mean where the inversion does not
 // converge, moment matching where nothing else applies. q <= 0 gives 0, and
 // so does a mixture without a positive eigenvalue.
 MixtureTail mixture_chisq_upper_tail(const std::vector<double>& eigenvalues, double q);
 
-// The three methods on their own, for tests and the combination's integral.
+// The methods on their own, for tests.
 struct DaviesTail {
   double p = 1.0;           // P(Q > q)
   bool reached = false;     // the truncation and integration error bound met the accuracy
-  int terms = 0;            // integration terms used
+  int terms = 0;            // integration terms used (term_limit where not reached)
 };
 // Davies (1980), Applied Statistics 29:323-333, for central chi-square(1)
 // terms and no normal component; `accuracy` is the absolute error bound on p.
+// Where more than term_limit terms would be needed, even with the
+// convergence factor, the sum of term_limit terms is returned unreached.
 DaviesTail davies_upper_tail(const std::vector<double>& eigenvalues, double q, double accuracy = 1e-9,
                              int term_limit = 100000);
 // Liu, Tang & Zhang (2009), CSDA 53:853-856: the chi-square matched on the
