@@ -22,8 +22,9 @@
 #     Phi_jj) by the Cauchy combination (Liu & Xie 2020, JASA 115:393-402)
 #     with weights w^2 maf (1 - maf), and overall_p as the equal-weight
 #     Cauchy combination of tamis's own four p-values;
-# and writes, for the beta-weighted and the common-variant scans, Q and the eigenvalues of
-# diag(w) Phi diag(w) (eigen()) to mixtures.tsv, for imhof_upper_tail.py.
+# and writes, for the beta-weighted, listed and common-variant scans (binary
+# traits: the plain ones), Q and the eigenvalues of diag(w) Phi diag(w)
+# (eigen()) to mixtures.tsv, for imhof_upper_tail.py.
 # Reference: R's stats package (lm, glm, anova, pchisq, dbeta, qr, eigen),
 # R 4.2.2 as printed below. Tolerances (relative): 1e-8 for linear models,
 # 1e-6 for logistic ones (two IRLS fits that each stop at their own
@@ -70,10 +71,13 @@ list_sets <- lapply(unique(listed$set), function(name) {
 })
 # 0.01 is tamis's default --set-maf-ceiling; the "common" scan takes every
 # variant (--set-maf-ceiling 0.5), planted common ones too, for small p.
-runs <- list(list(prefix = "flat", sets = bed_sets, weighting = "flat", ceiling = 0.01),
-             list(prefix = "beta", sets = bed_sets, weighting = "beta", ceiling = 0.01),
-             list(prefix = "listed", sets = list_sets, weighting = "listed", ceiling = 0.01),
-             list(prefix = "common", sets = bed_sets, weighting = "flat", ceiling = 0.5))
+# `plain`: run with --binary-score plain, where a binary trait's scores keep
+# their own covariance (with the saddlepoint, tamis matches it to the
+# saddlepoint p-values, which R's stats has no counterpart of).
+runs <- list(list(prefix = "flat", sets = bed_sets, weighting = "flat", ceiling = 0.01, plain = FALSE),
+             list(prefix = "beta", sets = bed_sets, weighting = "beta", ceiling = 0.01, plain = FALSE),
+             list(prefix = "listed", sets = list_sets, weighting = "listed", ceiling = 0.01, plain = TRUE),
+             list(prefix = "common", sets = bed_sets, weighting = "flat", ceiling = 0.5, plain = TRUE))
 
 rel_err <- function(ours, ref) abs(ours - ref) / pmax(abs(ref), 1e-300)
 worst <- list()
@@ -165,10 +169,10 @@ for (trait in traits) {
         note(kind, "burden_chisq (anova Rao)", abs(row$burden_chisq - rao) / max(rao, 1e-4), limit)
         # Below chi-square 4 the p-value is the normal one; above it (and
         # with the saddlepoint) only the plain scan's is comparable.
-        if (rao < 4 || run$prefix == "listed") {
+        if (rao < 4 || run$plain) {
           note(kind, "burden_p (pchisq of Rao)", rel_err(row$burden_p, pchisq(rao, 1, lower.tail = FALSE)), limit)
         }
-        if (run$prefix == "listed") stopifnot(row$burden_test == "score")
+        stopifnot(row$burden_test == if (run$plain) "score" else "score_spa")
       } else {
         residual_b <- qr.resid(qr_x, b)
         chisq <- sum(b * r)^2 / (sigma2 * sum(residual_b^2))
@@ -188,13 +192,13 @@ for (trait in traits) {
       note(kind, "variance_q", rel_err(row$variance_q, q), limit)
 
       single_p <- pchisq(u^2 / diag(phi), 1, lower.tail = FALSE)
-      if ((!binary || run$prefix == "listed") && all(single_p < 1 - 1e-12)) {
+      if ((!binary || run$plain) && all(single_p < 1 - 1e-12)) {
         note(kind, "cauchy_p", rel_err(row$cauchy_p, cauchy_p(single_p, w^2 * maf[idx] * (1 - maf[idx]))), limit)
       }
       note(kind, "overall_p (Cauchy of the four)",
            rel_err(row$overall_p, cauchy_p(c(row$burden_p, row$variance_p, row$optimal_p, row$cauchy_p))), 1e-6)
 
-      if (run$prefix %in% c("beta", "common")) {
+      if (run$prefix != "flat" && (!binary || run$plain)) {
         lambda <- eigen(phi * outer(w, w), symmetric = TRUE, only.values = TRUE)$values
         mixture_rows <- rbind(mixture_rows, data.frame(
           trait = trait, set = set$name, variance_method = row$variance_method,
@@ -210,7 +214,7 @@ for (trait in traits) {
 # of smallest variance_p above 1e-10 (the planted genes' among them) and as
 # many in the file's order.
 chosen <- do.call(rbind, lapply(split(mixture_rows, mixture_rows$trait), function(rows) {
-  rows <- rows[!duplicated(rows[, c("set", "q", "eigenvalues")]), ]  # a set without common variants: the same in both scans
+  rows <- rows[!duplicated(rows[, c("set", "q", "eigenvalues")]), ]  # a set's rare variants: the same in two scans
   small <- head(rows[order(rows$p), ][rows$p[order(rows$p)] > 1e-10, ], imhof_sets %/% 2)
   rbind(small, head(rows[!rows$set %in% small$set, ], imhof_sets - nrow(small)))
 }))

@@ -12,7 +12,7 @@
 # weights. Four scans: BED with flat weights, BED with Beta(1, 25) weights,
 # the list with its weights and --binary-score plain, and BED with flat
 # weights over every variant (--set-maf-ceiling 0.5, which takes the common
-# planted variants too).
+# planted variants too) and --binary-score plain.
 # Usage:
 #   check_sets_against_r.sh TAMIS WORKDIR [SAMPLES VARIANTS SEED [IMHOF_SETS]]
 set -euo pipefail
@@ -59,7 +59,7 @@ scan() {  # OUT SETS WEIGHTS [more options]
 scan flat "$work/windows.bed" flat
 scan beta "$work/windows.bed" beta
 scan listed "$work/windows.txt" listed --binary-score plain
-scan common "$work/windows.bed" flat --set-maf-ceiling 0.5
+scan common "$work/windows.bed" flat --set-maf-ceiling 0.5 --binary-score plain
 
 Rscript "$here/check_sets_against_r.R" "$work" "$covariates" "$imhof_sets" fev1_litres winter_wheeze
 "$python" "$here/imhof_upper_tail.py" "$work/mixtures.tsv"
