@@ -1,8 +1,7 @@
 #include "scan/set_accumulator.hpp"
 
-#include <tbb/parallel_for.h>
+#include <tbb/task_group.h>
 
-#include <Eigen/Sparse>
 #include <algorithm>
 #include <cstring>
 #include <type_traits>
@@ -109,27 +108,36 @@ TestUnit collapse_units(const SetScanOptions& options, const std::vector<TestUni
 
 // The score covariance of the units: scale (X'WX - P'P), X the columns and P
 // their projections on the kernel's basis; the same sums the kernel takes
-// for each variant's own variance.
+// for each variant's own variance. X'WX goes column by column: one column
+// spread over the samples, the others' entries read against it, so the
+// cost is the units times their entries, not the samples.
 Eigen::MatrixXd score_covariance(const TraitContext& trait, const std::vector<TestUnit>& units) {
   const Eigen::Index unit_count = static_cast<Eigen::Index>(units.size());
   const Eigen::Index basis_columns = static_cast<Eigen::Index>(units.front().projections.size());
-  std::vector<Eigen::Triplet<double>> entries;
   Eigen::MatrixXd projections(basis_columns, unit_count);
   for (Eigen::Index unit_idx = 0; unit_idx < unit_count; ++unit_idx) {
-    const TestUnit& unit = units[static_cast<std::size_t>(unit_idx)];
-    for (std::size_t entry = 0; entry < unit.column.samples.size(); ++entry) {
-      const std::uint32_t sample = unit.column.samples[entry];
-      const double root_weight = std::sqrt(trait.model.weights[static_cast<Eigen::Index>(sample)]);
-      entries.emplace_back(static_cast<Eigen::Index>(sample), unit_idx, root_weight * unit.column.values[entry]);
-    }
-    for (Eigen::Index column_idx = 0; column_idx < basis_columns; ++column_idx) {
-      projections(column_idx, unit_idx) = unit.projections[static_cast<std::size_t>(column_idx)];
-    }
+    const std::vector<double>& unit_projections = units[static_cast<std::size_t>(unit_idx)].projections;
+    projections.col(unit_idx) = Eigen::Map<const Eigen::VectorXd>(unit_projections.data(), basis_columns);
   }
-  Eigen::SparseMatrix<double> columns(trait.model.sample_count(), unit_count);
-  columns.setFromTriplets(entries.begin(), entries.end());
-  const Eigen::SparseMatrix<double> cross = columns.transpose() * columns;
-  Eigen::MatrixXd covariance = Eigen::MatrixXd(cross) - projections.transpose() * projections;
+  Eigen::MatrixXd covariance = -(projections.transpose() * projections);
+  const Eigen::VectorXd& weights = trait.model.weights;
+  std::vector<double> spread(static_cast<std::size_t>(trait.model.sample_count()), 0.0);
+  for (Eigen::Index first = 0; first < unit_count; ++first) {
+    const SparseColumn& column = units[static_cast<std::size_t>(first)].column;
+    for (std::size_t entry = 0; entry < column.samples.size(); ++entry) {
+      spread[column.samples[entry]] = weights[static_cast<Eigen::Index>(column.samples[entry])] * column.values[entry];
+    }
+    for (Eigen::Index second = first; second < unit_count; ++second) {
+      const SparseColumn& other = units[static_cast<std::size_t>(second)].column;
+      double cross = 0.0;
+      for (std::size_t entry = 0; entry < other.samples.size(); ++entry) {
+        cross += spread[other.samples[entry]] * other.values[entry];
+      }
+      covariance(first, second) += cross;
+      if (second != first) covariance(second, first) += cross;
+    }
+    for (const std::uint32_t sample : column.samples) spread[sample] = 0.0;
+  }
   const double scale = trait.model.kind == TraitKind::quantitative ? trait.model.sigma2 : 1.0;
   return scale * covariance;
 }
@@ -185,8 +193,11 @@ double match_covariance_to_saddlepoint(const TraitContext& trait, std::vector<Te
     if (!(variance > 0.0)) continue;
     if (std::isnan(unit.log_p)) unit.log_p = saddlepoint_log_p(trait, unit_dosages(trait, unit, 1.0), u[unit_idx], variance);
     if (u[unit_idx] * u[unit_idx] / variance < 4.0) continue;  // the normal tail stood
+    // Only ever widened: where the saddlepoint finds a score more extreme
+    // than the normal tail does (the short side of a skewed score), the
+    // score's own variance stands.
     const double implied = implied_variance(u[unit_idx], unit.log_p);
-    if (implied > 0.0) root_ratio[unit_idx] = std::sqrt(implied / variance);
+    if (implied > variance) root_ratio[unit_idx] = std::sqrt(implied / variance);
   }
   const double burden = weights.dot(u), burden_variance = weights.dot(covariance * weights);
   if (!(burden_variance > 0.0)) return 0.0;
@@ -196,13 +207,15 @@ double match_covariance_to_saddlepoint(const TraitContext& trait, std::vector<Te
   }
   const double burden_log_p = saddlepoint_log_p(trait, burden_dosages, burden, burden_variance);
   covariance = root_ratio.asDiagonal() * covariance * root_ratio.asDiagonal();
-  double target = burden_variance;
+  // Where the saddlepoint replaced the burden's normal tail, the matrix is
+  // scaled so that the burden's variance is the one its p implies; where it
+  // did not, the widened scores stand (scaling back to the burden's own
+  // variance would undo them).
   if (burden * burden / burden_variance >= 4.0) {
     const double implied = implied_variance(burden, burden_log_p);
-    if (implied > 0.0) target = implied;
+    const double adjusted = weights.dot(covariance * weights);
+    if (implied > 0.0 && adjusted > 0.0) covariance *= implied / adjusted;
   }
-  const double adjusted = weights.dot(covariance * weights);
-  if (adjusted > 0.0) covariance *= target / adjusted;
   return burden_log_p;
 }
 
@@ -277,12 +290,13 @@ SetResultRow test_set_variants(const TraitContext& trait, const SetScanOptions& 
     row.burden_beta = burden * scale / burden_variance;
     row.burden_se = scale / std::sqrt(burden_variance);
   }
+  double burden_log_p = std::numeric_limits<double>::quiet_NaN();
   if (trait.saddlepoint) {
     row.burden_test = "score_spa";
-    match_covariance_to_saddlepoint(trait, units, u, weights, covariance);
+    burden_log_p = match_covariance_to_saddlepoint(trait, units, u, weights, covariance);
   }
   const SetTestResult tests = test_variant_set(u, covariance, weights);
-  row.burden_log_p = tests.burden_log_p;  // the saddlepoint's, where the covariance was matched to it
+  row.burden_log_p = std::isnan(burden_log_p) ? tests.burden_log_p : burden_log_p;
   row.variance_q = tests.variance_q;
   row.variance_log_p = tests.variance_log_p;
   row.variance_method = mixture_tail_method_name(tests.variance_method);
@@ -296,7 +310,8 @@ SetResultRow test_set_variants(const TraitContext& trait, const SetScanOptions& 
 }
 
 SetAccumulator::SetAccumulator(const VariantSets& sets, const SetScanOptions& options, const TraitContext& trait)
-    : sets_(sets), options_(options), trait_(trait), done_(sets.size(), false) {
+    : sets_(sets), options_(options), trait_(trait), done_(sets.size(), false),
+      tasks_(std::make_unique<tbb::task_group>()) {
   if (options.only_sets.empty()) return;
   // Sets not chosen count as done from the start: their variants are not kept.
   for (std::size_t set_idx = 0; set_idx < sets.size(); ++set_idx) {
@@ -351,54 +366,75 @@ void SetAccumulator::close_passed_sets(const std::string& contig_key, std::int64
   release_finished_contig(contig_key);
 }
 
+SetAccumulator::~SetAccumulator() {
+  // A scan unwinding from an error must not leave tasks reading this object.
+  tasks_->cancel();
+  tasks_->wait();
+}
+
 void SetAccumulator::finish() {
   std::vector<std::uint32_t> closing;
   for (const auto& entry : open_) closing.push_back(entry.first);
   test_and_keep(closing);
+  collect_closed_sets();
   release_finished_contig(std::string(1, '\0'));  // no contig has this key: everything goes out
 }
 
+// A closed set's test runs as a task of its own, beside the pipeline's
+// blocks: the serial writer only hands it over. Its row is collected when
+// its chromosome ends (or at a checkpoint), after the tasks are waited for.
 void SetAccumulator::test_and_keep(const std::vector<std::uint32_t>& closing) {
-  if (closing.empty()) return;
-  std::vector<PendingSetRow> rows(closing.size());
-  std::vector<std::size_t> collapsed(closing.size(), 0);
-  std::vector<bool> tested(closing.size(), false);
-  // Sets are tested in parallel; their rows keep the order of `closing`.
-  tbb::parallel_for(std::size_t{0}, closing.size(), [&](std::size_t closing_idx) {
-    const std::uint32_t set_index = closing[closing_idx];
-    const OpenSet& open = open_.at(set_index);
-    if (open.variants.size() > options_.max_variants) return;
-    const VariantSetDefinition& definition = sets_.set(set_index);
-    SetResultRow row = test_set_variants(trait_, options_, definition.name, open.variants, open.listed_weights,
-                                         &collapsed[closing_idx]);
-    const std::int64_t first = open.variants.front()->position, last = open.variants.back()->position;
-    row.start = definition.start > 0 ? std::min(definition.start, first) : first;
-    row.end = std::max(definition.end, last);
-    PendingSetRow& pending = rows[closing_idx];
-    pending.contig_key = open.variants.front()->contig_key;
-    pending.contig_rank = contig_rank_.at(pending.contig_key);
-    pending.start = row.start;
-    pending.end = row.end;
-    pending.set_index = set_index;
-    append_set_result_row(row, pending.text);
-    tested[closing_idx] = true;
-  });
-  for (std::size_t closing_idx = 0; closing_idx < closing.size(); ++closing_idx) {
-    const std::uint32_t set_index = closing[closing_idx];
-    if (tested[closing_idx]) {
-      ++tally_.tested;
-      tally_.variants_collapsed += collapsed[closing_idx];
-      pending_.push_back(std::move(rows[closing_idx]));
-    } else {
-      ++tally_.too_large;
-      if (tally_.too_large_names.size() < 5) tally_.too_large_names.push_back(sets_.set(set_index).name);
-    }
+  for (const std::uint32_t set_index : closing) {
+    auto job = std::make_unique<ClosedSet>();
+    job->open = std::move(open_.at(set_index));
+    job->row.set_index = set_index;
+    job->row.contig_key = job->open.variants.front()->contig_key;
+    job->row.contig_rank = contig_rank_.at(job->row.contig_key);
     open_.erase(set_index);
     done_[set_index] = true;
+    ClosedSet* task = job.get();
+    closed_.push_back(std::move(job));
+    if (task->open.variants.size() > options_.max_variants) continue;
+    tasks_->run([this, task] { test_closed_set(*task); });
   }
 }
 
+void SetAccumulator::test_closed_set(ClosedSet& job) const {
+  const VariantSetDefinition& definition = sets_.set(job.row.set_index);
+  const std::vector<std::shared_ptr<const SetVariant>>& variants = job.open.variants;
+  SetResultRow row =
+      test_set_variants(trait_, options_, definition.name, variants, job.open.listed_weights, &job.collapsed);
+  const std::int64_t first = variants.front()->position, last = variants.back()->position;
+  row.start = definition.start > 0 ? std::min(definition.start, first) : first;
+  row.end = std::max(definition.end, last);
+  job.row.start = row.start;
+  job.row.end = row.end;
+  append_set_result_row(row, job.row.text);
+  job.tested = true;
+  job.open = OpenSet{};  // the variants go as soon as the set is tested
+}
+
+void SetAccumulator::collect_closed_sets() {
+  if (closed_.empty()) return;
+  tasks_->wait();
+  for (std::unique_ptr<ClosedSet>& job : closed_) {
+    if (job->tested) {
+      ++tally_.tested;
+      tally_.variants_collapsed += job->collapsed;
+      pending_.push_back(std::move(job->row));
+    } else {
+      ++tally_.too_large;
+      if (tally_.too_large_names.size() < 5) tally_.too_large_names.push_back(sets_.set(job->row.set_index).name);
+    }
+  }
+  closed_.clear();
+}
+
 void SetAccumulator::release_finished_contig(const std::string& contig_key) {
+  const bool other_contig_closed = std::any_of(closed_.begin(), closed_.end(), [&](const auto& job) {
+    return job->row.contig_key != contig_key;
+  });
+  if (other_contig_closed) collect_closed_sets();
   auto finished = std::stable_partition(pending_.begin(), pending_.end(),
                                         [&](const PendingSetRow& row) { return row.contig_key == contig_key; });
   if (finished == pending_.end()) return;
@@ -532,7 +568,8 @@ SetVariant restore_variant(StateReader& reader) {
 
 }  // namespace
 
-void SetAccumulator::save(std::string& out) const {
+void SetAccumulator::save(std::string& out) {
+  collect_closed_sets();
   StateWriter writer(out);
   writer.text(stream_contig_);
   writer.number<std::uint64_t>(contig_rank_.size());

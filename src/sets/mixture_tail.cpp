@@ -271,6 +271,40 @@ double density_slope_bound(const std::vector<double>& lambdas) {
   return std::numeric_limits<double>::infinity();
 }
 
+// ln|phi(u)| = -1/4 sum_k ln(1 + x_k^2) and theta(u) = 1/2 sum_k atan(x_k),
+// x_k = 2 lambda_k u, the characteristic function's modulus and argument
+// (before the -u c of the point), from the product of the factors
+// (1 + i x_k): one atan2 and one logarithm per node instead of one of each
+// per eigenvalue. Each factor turns the product by less than pi / 2, so the
+// argument's turns are counted where the product crosses the negative real
+// axis (its imaginary part going from >= 0 to < 0); the product is rescaled
+// now and then, its scale kept in logarithms.
+struct CharacteristicTerm {
+  double log_modulus = 0.0;
+  double angle = 0.0;
+};
+CharacteristicTerm characteristic_term(const std::vector<double>& lambdas, double u) {
+  double re = 1.0, im = 0.0, log_scale = 0.0;
+  int turns = 0;
+  for (const double lambda : lambdas) {
+    const double x = 2.0 * lambda * u;
+    const double next_re = re - im * x, next_im = im + re * x;
+    if (im >= 0.0 && next_im < 0.0) ++turns;
+    re = next_re;
+    im = next_im;
+    if (std::fabs(re) > 1e100 || std::fabs(im) > 1e100) {
+      const double magnitude = std::hypot(re, im);
+      log_scale += std::log(magnitude);
+      re /= magnitude;
+      im /= magnitude;
+    }
+  }
+  CharacteristicTerm term;
+  term.log_modulus = -0.5 * (0.5 * std::log(re * re + im * im) + log_scale);
+  term.angle = 0.5 * (std::atan2(im, re) + 2.0 * kPi * turns);
+  return term;
+}
+
 struct DaviesPlan {
   double delta = 0.0;   // step of the midpoint rule
   double tau2 = 0.0;    // variance of the convergence factor's normal term
@@ -298,14 +332,9 @@ double davies_sum(const std::vector<double>& lambdas, double c, const DaviesPlan
   for (long k = 0; k < terms; ++k) {
     const double half_index = static_cast<double>(k) + 0.5;
     const double u = half_index * plan.delta;
-    double log_modulus = -0.5 * plan.tau2 * u * u;
-    double angle = -u * c;
-    for (const double lambda : lambdas) {
-      const double x = 2.0 * lambda * u;
-      log_modulus -= 0.25 * std::log1p(x * x);
-      angle += 0.5 * std::atan(x);
-    }
-    sum += std::exp(log_modulus) * std::sin(angle) / (kPi * half_index);
+    const CharacteristicTerm term = characteristic_term(lambdas, u);
+    const double log_modulus = term.log_modulus - 0.5 * plan.tau2 * u * u;
+    sum += std::exp(log_modulus) * std::sin(term.angle - u * c) / (kPi * half_index);
   }
   return 0.5 + sum;
 }
@@ -334,6 +363,69 @@ DaviesTail davies_on_kept(const std::vector<double>& lambdas, double q, double a
   result.p = std::clamp(davies_sum(lambdas, q, plan, result.terms), 0.0, 1.0);
   return result;
 }
+
+// ---- many points of one mixture ------------------------------------------------
+
+}  // namespace
+
+namespace sets_detail {
+
+MixtureTailTable::MixtureTailTable(const std::vector<double>& eigenvalues, double low, double high)
+    : lambdas_(kept_eigenvalues(eigenvalues)), low_(std::max(low, 0.0)), high_(high) {
+  if (lambdas_.size() < 2 || !(high_ >= low_)) return;
+  // The step must keep the aliasing error within its share at both ends of
+  // the range (at the low end the upper tail beyond c + L, at the high end
+  // the lower tail below c - L): the larger of the two spans serves every
+  // point between. The truncation point does not depend on c.
+  constexpr double kAccuracy = 1e-9;
+  constexpr int kTermBudget = 2000;
+  const double share = kAccuracy / 2.0;
+  const MixtureCgf cgf(lambdas_);
+  const double span = std::max(aliasing_span(cgf, std::max(low_, 1e-300), std::log(share)),
+                               aliasing_span(cgf, high_, std::log(share)));
+  delta_ = 2.0 * kPi / span;
+  const double v = truncation_point(lambdas_, 0.0, std::log(share));
+  const double terms = std::ceil(v / delta_ + 0.5);
+  if (!(terms <= kTermBudget)) return;
+  const long count = static_cast<long>(terms);
+  terms_re_.resize(static_cast<std::size_t>(count));
+  terms_im_.resize(static_cast<std::size_t>(count));
+  for (long k = 0; k < count; ++k) {
+    const double half_index = static_cast<double>(k) + 0.5;
+    const double u = half_index * delta_;
+    const CharacteristicTerm term = characteristic_term(lambdas_, u);
+    const double amplitude = std::exp(term.log_modulus) / (kPi * half_index);
+    terms_re_[static_cast<std::size_t>(k)] = amplitude * std::cos(term.angle);
+    terms_im_[static_cast<std::size_t>(k)] = amplitude * std::sin(term.angle);
+  }
+  usable_ = true;
+}
+
+double MixtureTailTable::log_upper_tail(double q, bool absolute_will_do) const {
+  if (q <= 0.0) return 0.0;
+  if (usable_ && q >= low_ && q <= high_) {
+    // sum_k Im[E_k e^{-i u_k q}], u_k = (k + 1/2) delta: Horner's rule in
+    // r = e^{-i delta q}, then the half step.
+    const double step_re = std::cos(delta_ * q), step_im = -std::sin(delta_ * q);
+    double sum_re = 0.0, sum_im = 0.0;
+    for (std::size_t k = terms_re_.size(); k-- > 0;) {
+      const double re = sum_re * step_re - sum_im * step_im + terms_re_[k];
+      const double im = sum_re * step_im + sum_im * step_re + terms_im_[k];
+      sum_re = re;
+      sum_im = im;
+    }
+    const double half_re = std::cos(0.5 * delta_ * q), half_im = -std::sin(0.5 * delta_ * q);
+    const double p = 0.5 + (sum_re * half_im + sum_im * half_re);
+    constexpr double kDaviesFloor = 1e-3;  // as in mixture_chisq_upper_tail
+    if (p >= kDaviesFloor && p <= 1.0) return std::log(p);
+    if (absolute_will_do) return std::log(std::clamp(p, 1e-300, 1.0));
+  }
+  return mixture_chisq_upper_tail(lambdas_, q).log_p;
+}
+
+}  // namespace sets_detail
+
+namespace {
 
 // ---- moment matching ------------------------------------------------------------
 

@@ -45,6 +45,7 @@
 #include <cmath>
 #include <functional>
 #include <limits>
+#include <memory>
 #include <stdexcept>
 
 #include "sets/mixture_cgf.hpp"
@@ -120,13 +121,16 @@ struct KappaLaw {
   std::vector<double> eta_eigenvalues;
   double mean = 0.0;      // of eta and of kappa
   double sd_ratio = 0.0;  // sd(eta) / sd(kappa)
+  std::unique_ptr<MixtureTailTable> eta_tail;  // eta's tail over every point the integral meets
+  double on_eta_scale(double d) const { return (d - mean) * sd_ratio + mean; }
 };
 
-// ln P(kappa > d).
-double log_kappa_upper_tail(const KappaLaw& kappa, double d) {
-  const double on_eta_scale = (d - kappa.mean) * kappa.sd_ratio + kappa.mean;
+// ln P(kappa > d). With `absolute_will_do` (the integral is at least 1e-3),
+// the table's absolute accuracy is enough everywhere.
+double log_kappa_upper_tail(const KappaLaw& kappa, double d, bool absolute_will_do) {
+  const double on_eta_scale = kappa.on_eta_scale(d);
   if (on_eta_scale <= 0.0) return 0.0;
-  return mixture_chisq_upper_tail(kappa.eta_eigenvalues, on_eta_scale).log_p;
+  return kappa.eta_tail->log_upper_tail(on_eta_scale, absolute_will_do);
 }
 
 // delta(x) = min over the lines (intercept - slope x).
@@ -169,13 +173,18 @@ double mixture_upper_quantile(const std::vector<double>& eigenvalues, double log
   const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);
   if (lambdas.empty() || !(log_p < 0.0)) return 0.0;
   if (lambdas.size() == 1) return lambdas.front() * chisq1_upper_quantile_from_log(log_p);
-  auto excess = [&](double q) { return mixture_chisq_upper_tail(lambdas, q).log_p - log_p; };
+  std::unique_ptr<MixtureTailTable> table;  // made once the bracket is known
+  // Away from the root the search only needs the sign: below p = 1e-3 the
+  // table's absolute accuracy points the way when the target is above it.
+  const bool absolute_will_do = log_p >= std::log(1e-3);
+  auto excess = [&](double q) { return table->log_upper_tail(q, absolute_will_do) - log_p; };
   // P(Q > q) >= P(lambda_1 X_1 > q) puts the root above the first bracket;
   // Chernoff's bound puts it below the second.
   double low = lambdas.front() * chisq1_upper_quantile_from_log(log_p);
   const MixtureCgf cgf(lambdas);
   double high = std::max(cgf.mean(), low) * 2.0;
   while (cgf.log_chernoff_bound(high) > log_p) high *= 2.0;
+  table = std::make_unique<MixtureTailTable>(lambdas, low, high);
   double excess_low = excess(low), excess_high = excess(high);
   if (excess_low <= 0.0) return low;
   if (excess_high >= 0.0) return high;
@@ -268,10 +277,16 @@ double optimal_log_p_from_family(const Eigen::MatrixXd& k, const RhoFamily& fami
     return within_bounds(log_chisq1_upper_tail(x_first));
   }
   kappa.sd_ratio = std::sqrt(eta_variance / (eta_variance + zeta_variance));
+  // delta falls as x grows: its value at x = 0 is the farthest point.
+  kappa.eta_tail = std::make_unique<MixtureTailTable>(kappa.eta_eigenvalues, 0.0,
+                                                      kappa.on_eta_scale(lower_envelope(lines, 0.0)));
 
+  // p >= T: with T at least 1e-3, absolute accuracy 1e-9 in the integrand is
+  // relative accuracy 1e-6 in p.
+  const bool absolute_will_do = min_log_p >= std::log(1e-3);
   // x = v^2: the integrand is P(kappa > delta(v^2)) 2 phi(v).
   auto log_integrand = [&](double v) {
-    return log_kappa_upper_tail(kappa, lower_envelope(lines, v * v)) + std::log(2.0) - 0.5 * v * v -
+    return log_kappa_upper_tail(kappa, lower_envelope(lines, v * v), absolute_will_do) + std::log(2.0) - 0.5 * v * v -
            0.5 * std::log(2.0 * kPi);
   };
   // Without rho = 1 the range is cut where P(chisq1 > v^2) is negligible
