@@ -12,6 +12,8 @@
 #include <string>
 #include <vector>
 
+#include <tbb/task_group.h>
+
 #include "scan/set_collection.hpp"
 #include "tamis/results_writer.hpp"
 
@@ -45,6 +47,9 @@ struct PendingSetRow {
 class SetAccumulator {
  public:
   SetAccumulator(const VariantSets& sets, const SetScanOptions& options, const TraitContext& trait);
+  ~SetAccumulator();
+  SetAccumulator(const SetAccumulator&) = delete;
+  SetAccumulator& operator=(const SetAccumulator&) = delete;
 
   // The block's set variants, in stream order, then where the stream stands
   // after the block (contig key and position of its last site). Sets the
@@ -59,7 +64,7 @@ class SetAccumulator {
   // The state a checkpoint keeps (open sets, rows waiting, tallies), as
   // bytes, and its return on --resume; restore throws tamis::Error (usage)
   // naming `source` when the bytes are damaged.
-  void save(std::string& out) const;
+  void save(std::string& out);
   void restore(const std::string& bytes, std::size_t& offset, const std::string& source);
 
   const SetTally& tally() const { return tally_; }
@@ -67,7 +72,17 @@ class SetAccumulator {
 
  private:
   void close_passed_sets(const std::string& contig_key, std::int64_t position);
+  // A set the stream has passed, tested by a task of its own.
+  struct ClosedSet {
+    OpenSet open;
+    PendingSetRow row;
+    bool tested = false;
+    std::size_t collapsed = 0;
+  };
   void test_and_keep(const std::vector<std::uint32_t>& closing);
+  void test_closed_set(ClosedSet& job) const;
+  // Waits for the tasks and moves their rows to pending_, with their tallies.
+  void collect_closed_sets();
   void release_finished_contig(const std::string& contig_key);
 
   const VariantSets& sets_;
@@ -77,8 +92,9 @@ class SetAccumulator {
   std::map<std::string, std::size_t> contig_rank_;
   std::map<std::uint32_t, OpenSet> open_;
   std::vector<bool> done_;
+  std::vector<std::unique_ptr<ClosedSet>> closed_;  // handed to tasks, not yet collected
+  std::unique_ptr<tbb::task_group> tasks_;
   std::vector<PendingSetRow> pending_;
-  std::string pending_contig_;
   std::string ready_;
   SetTally tally_;
 };
