@@ -364,6 +364,27 @@ DaviesTail davies_on_kept(const std::vector<double>& lambdas, double q, double a
   return result;
 }
 
+// A Davies plan that serves every point of [low, high]: the step keeps the
+// aliasing error within its share at both ends (at the low end the upper
+// tail beyond c + L, at the high end the lower tail below c - L), so at
+// every point between; the truncation point and the smoothing error do not
+// depend on the point.
+struct TablePlan {
+  double delta = 0.0, tau2 = 0.0, terms = 0.0;
+};
+TablePlan plan_table(const std::vector<double>& lambdas, double low, double high, double accuracy, double tau2) {
+  TablePlan plan;
+  plan.tau2 = tau2;
+  const double share = tau2 > 0.0 ? accuracy / 3.0 : accuracy / 2.0;
+  const MixtureCgf cgf(lambdas, tau2);
+  const double span = std::max(aliasing_span(cgf, std::max(low, 1e-300), std::log(share)),
+                               aliasing_span(cgf, high, std::log(share)));
+  plan.delta = 2.0 * kPi / span;
+  const double v = truncation_point(lambdas, tau2, std::log(share));
+  plan.terms = std::ceil(v / plan.delta + 0.5);
+  return plan;
+}
+
 // ---- many points of one mixture ------------------------------------------------
 
 }  // namespace
@@ -373,28 +394,28 @@ namespace sets_detail {
 MixtureTailTable::MixtureTailTable(const std::vector<double>& eigenvalues, double low, double high)
     : lambdas_(kept_eigenvalues(eigenvalues)), low_(std::max(low, 0.0)), high_(high) {
   if (lambdas_.size() < 2 || !(high_ >= low_)) return;
-  // The step must keep the aliasing error within its share at both ends of
-  // the range (at the low end the upper tail beyond c + L, at the high end
-  // the lower tail below c - L): the larger of the two spans serves every
-  // point between. The truncation point does not depend on c.
   constexpr double kAccuracy = 1e-9;
   constexpr int kTermBudget = 2000;
-  const double share = kAccuracy / 2.0;
-  const MixtureCgf cgf(lambdas_);
-  const double span = std::max(aliasing_span(cgf, std::max(low_, 1e-300), std::log(share)),
-                               aliasing_span(cgf, high_, std::log(share)));
-  delta_ = 2.0 * kPi / span;
-  const double v = truncation_point(lambdas_, 0.0, std::log(share));
-  const double terms = std::ceil(v / delta_ + 0.5);
-  if (!(terms <= kTermBudget)) return;
-  const long count = static_cast<long>(terms);
+  TablePlan plan = plan_table(lambdas_, low_, high_, kAccuracy, 0.0);
+  if (plan.terms > kTermBudget) {
+    // As davies_on_kept does: the convergence factor, where the density's
+    // slope is bounded, makes its error independent of the point as well.
+    const double slope_bound = density_slope_bound(lambdas_);
+    if (std::isfinite(slope_bound)) {
+      const TablePlan smoothed = plan_table(lambdas_, low_, high_, kAccuracy, 2.0 * (kAccuracy / 3.0) / slope_bound);
+      if (smoothed.terms < plan.terms) plan = smoothed;
+    }
+  }
+  if (!(plan.terms <= kTermBudget)) return;
+  delta_ = plan.delta;
+  const long count = static_cast<long>(plan.terms);
   terms_re_.resize(static_cast<std::size_t>(count));
   terms_im_.resize(static_cast<std::size_t>(count));
   for (long k = 0; k < count; ++k) {
     const double half_index = static_cast<double>(k) + 0.5;
     const double u = half_index * delta_;
     const CharacteristicTerm term = characteristic_term(lambdas_, u);
-    const double amplitude = std::exp(term.log_modulus) / (kPi * half_index);
+    const double amplitude = std::exp(term.log_modulus - 0.5 * plan.tau2 * u * u) / (kPi * half_index);
     terms_re_[static_cast<std::size_t>(k)] = amplitude * std::cos(term.angle);
     terms_im_[static_cast<std::size_t>(k)] = amplitude * std::sin(term.angle);
   }
