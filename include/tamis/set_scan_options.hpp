@@ -20,6 +20,10 @@ struct SetScanOptions {
   // pseudo-variant per set before the tests; 0 keeps every variant apart.
   double collapse_mac = 0.0;
   std::size_t max_variants = 5000;  // a larger set is skipped with a warning
+  // Every set is first tested with the screening tails (saddlepoint and
+  // moment matching); a set whose variance-component or optimal p comes
+  // out below this is tested again with the exact tails. 1: every set exactly.
+  double exact_below = 1e-3;
   // `confirm` of set results: only these sets are tested again (empty: every set).
   std::set<std::string> only_sets;
   bool active() const { return !path.empty(); }

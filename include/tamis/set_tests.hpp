@@ -12,6 +12,14 @@
 
 namespace tamis {
 
+// How precisely the mixture tails are taken. `exact`: as
+// mixture_chisq_upper_tail (relative accuracy 1e-6 or better at any p).
+// `screening`: the saddlepoint approximation above the mean and moment
+// matching below it, a few percent at worst but some hundred times cheaper;
+// a scan screens every set so and takes the sets that come out small again
+// exactly, as it refits only the single variants that come out small.
+enum class SetTestPrecision { exact, screening };
+
 // ---- tails of mixtures of chi-square(1) variables --------------------------
 
 // How mixture_chisq_upper_tail reached its value.
@@ -41,6 +49,8 @@ struct MixtureTail {
 // converge, moment matching where nothing else applies. q <= 0 gives 0, and
 // so does a mixture without a positive eigenvalue.
 MixtureTail mixture_chisq_upper_tail(const std::vector<double>& eigenvalues, double q);
+// The screening tail: saddlepoint above the mean, moment matching elsewhere.
+MixtureTail screening_mixture_upper_tail(const std::vector<double>& eigenvalues, double q);
 
 // The methods on their own, for tests.
 struct DaviesTail {
@@ -109,12 +119,13 @@ struct SetTestResult {
 // (m, positive). `rho_grid` values in [0, 1], increasing, including 0.
 SetTestResult test_variant_set(const Eigen::VectorXd& u, const Eigen::MatrixXd& covariance,
                                const Eigen::VectorXd& weights,
-                               const std::vector<double>& rho_grid = kOptimalRhoGrid);
+                               const std::vector<double>& rho_grid = kOptimalRhoGrid,
+                               SetTestPrecision precision = SetTestPrecision::exact);
 
 // The optimal combination's p-value for a given smallest per-rho p (ln
 // min_log_p), from K's decomposition (exposed for the reference check).
 double optimal_combination_log_p(const Eigen::MatrixXd& weighted_covariance, const std::vector<double>& rho_grid,
-                                 double min_log_p);
+                                 double min_log_p, SetTestPrecision precision = SetTestPrecision::exact);
 
 // Beta(maf; a, b) density as a variant weight (Wu et al. 2011, AJHG 89:82-93:
 // a = 1, b = 25 by default), maf the minor allele frequency in (0, 0.5].

@@ -102,6 +102,7 @@ struct ScanArguments {
   std::string set_weights = "beta";
   double set_collapse_mac = 0.0;
   std::size_t set_max_variants = 5000;
+  double set_exact_below = 1e-3;
 };
 
 // --sets and the options that shape the set tests.
@@ -127,6 +128,10 @@ void check_set_options(const ScanArguments& arguments, SetScanOptions& sets) {
   sets.collapse_mac = arguments.set_collapse_mac;
   if (arguments.set_max_variants < 1) refuse_option("--set-max-variants", "must be at least 1", "the default is 5000");
   sets.max_variants = arguments.set_max_variants;
+  if (!(arguments.set_exact_below > 0.0 && arguments.set_exact_below <= 1.0)) {
+    refuse_option("--set-exact-below", "must be a p-value in (0, 1]", "1 takes every set's tails exactly");
+  }
+  sets.exact_below = arguments.set_exact_below;
 }
 
 void check_trait_names(const std::vector<std::string>& traits) {
@@ -352,6 +357,10 @@ void add_set_options(CLI::App* command, ScanArguments& arguments) {
       ->capture_default_str();
   command->add_option("--set-collapse-mac", arguments.set_collapse_mac,
                       "Sum a set's variants with a minor allele count at most this into one (0: off; 10 is usual)")
+      ->capture_default_str();
+  command->add_option("--set-exact-below", arguments.set_exact_below,
+                      "Sets are screened with saddlepoint tails and tested again with exact ones when a p-value "
+                      "falls below this (1: every set exactly)")
       ->capture_default_str();
   command->add_option("--set-max-variants", arguments.set_max_variants,
                       "Skip, with a warning, sets with more variants than this")

@@ -73,7 +73,8 @@ std::vector<std::string> describe_run(const ScanOptions& options, bool with_shar
     const SetScanOptions& sets = options.sets;
     lines.push_back("sets=" + describe_file(sets.path));
     lines.push_back("set_options=" + number_text(sets.maf_ceiling) + "," + set_weighting_name(sets.weighting) + "," +
-                    number_text(sets.collapse_mac) + "," + std::to_string(sets.max_variants));
+                    number_text(sets.collapse_mac) + "," + std::to_string(sets.max_variants) + "," +
+                    number_text(sets.exact_below));
     if (!sets.only_sets.empty()) {
       lines.push_back("only_sets=" + join(std::vector<std::string>(sets.only_sets.begin(), sets.only_sets.end())));
     }

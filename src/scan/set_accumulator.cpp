@@ -295,7 +295,14 @@ SetResultRow test_set_variants(const TraitContext& trait, const SetScanOptions& 
     row.burden_test = "score_spa";
     burden_log_p = match_covariance_to_saddlepoint(trait, units, u, weights, covariance);
   }
-  const SetTestResult tests = test_variant_set(u, covariance, weights);
+  // Screened with the cheap tails; the sets that come out small are tested
+  // again exactly, as hits of the single-variant screen are refitted.
+  SetTestResult tests = test_variant_set(u, covariance, weights, kOptimalRhoGrid, SetTestPrecision::screening);
+  const double exact_below = std::log(options.exact_below);
+  if (options.exact_below >= 1.0 || tests.variance_log_p < exact_below || tests.optimal_log_p < exact_below ||
+      tests.optimal_min_log_p < exact_below) {
+    tests = test_variant_set(u, covariance, weights, kOptimalRhoGrid, SetTestPrecision::exact);
+  }
   row.burden_log_p = std::isnan(burden_log_p) ? tests.burden_log_p : burden_log_p;
   row.variance_q = tests.variance_q;
   row.variance_log_p = tests.variance_log_p;

@@ -6,6 +6,8 @@
 
 #include <vector>
 
+#include "tamis/set_tests.hpp"
+
 namespace tamis::sets_detail {
 
 // The eigenvalues that count: positive, at least 1e-12 of the largest, sorted
@@ -71,7 +73,8 @@ class MixtureTailTable {
 
 // q with ln P(Q > q) = log_p for the mixture (root-finding on its tail),
 // started from the moment-matching quantile.
-double mixture_upper_quantile(const std::vector<double>& eigenvalues, double log_p);
+double mixture_upper_quantile(const std::vector<double>& eigenvalues, double log_p,
+                              SetTestPrecision precision = SetTestPrecision::exact);
 
 // q with ln P(X > q) = log_p for X ~ chi-square(1), for any log_p < 0
 // (also below the smallest double).

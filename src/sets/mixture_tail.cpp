@@ -665,6 +665,15 @@ InversionTail contour_inversion_upper_log_tail(const std::vector<double>& eigenv
   return invert_on_kept(lambdas, q);
 }
 
+MixtureTail screening_mixture_upper_tail(const std::vector<double>& eigenvalues, double q) {
+  const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);
+  if (lambdas.empty() || q <= 0.0) return {0.0, MixtureTailMethod::single_chisq};
+  if (lambdas.size() == 1) return {log_chisq1_upper_tail(q / lambdas.front()), MixtureTailMethod::single_chisq};
+  const double saddlepoint = saddlepoint_on_kept(lambdas, q);
+  if (std::isfinite(saddlepoint) && saddlepoint <= 0.0) return {saddlepoint, MixtureTailMethod::saddlepoint};
+  return {std::min(0.0, moment_matching_on_kept(lambdas, q)), MixtureTailMethod::moment_matching};
+}
+
 MixtureTail mixture_chisq_upper_tail(const std::vector<double>& eigenvalues, double q) {
   const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);
   if (lambdas.empty() || q <= 0.0) return {0.0, MixtureTailMethod::single_chisq};

@@ -107,12 +107,12 @@ double gauss_legendre(const std::function<double(double)>& f, double a, double b
 // `whole` is the rule's value on [a, b]; the interval is accepted when its two
 // halves agree with it to `tolerance` (absolute, shared out by length).
 double integrate_adaptively(const std::function<double(double)>& f, double a, double b, double whole,
-                            double tolerance, int depth) {
+                            double tolerance, int depth, int max_depth) {
   const double middle = 0.5 * (a + b);
   const double left = gauss_legendre(f, a, middle), right = gauss_legendre(f, middle, b);
-  if (std::fabs(left + right - whole) <= tolerance || depth >= 30) return left + right;
-  return integrate_adaptively(f, a, middle, left, 0.5 * tolerance, depth + 1) +
-         integrate_adaptively(f, middle, b, right, 0.5 * tolerance, depth + 1);
+  if (std::fabs(left + right - whole) <= tolerance || depth >= max_depth) return left + right;
+  return integrate_adaptively(f, a, middle, left, 0.5 * tolerance, depth + 1, max_depth) +
+         integrate_adaptively(f, middle, b, right, 0.5 * tolerance, depth + 1, max_depth);
 }
 
 // ---- the decomposition ---------------------------------------------------------------
@@ -121,7 +121,7 @@ struct KappaLaw {
   std::vector<double> eta_eigenvalues;
   double mean = 0.0;      // of eta and of kappa
   double sd_ratio = 0.0;  // sd(eta) / sd(kappa)
-  std::unique_ptr<MixtureTailTable> eta_tail;  // eta's tail over every point the integral meets
+  std::unique_ptr<MixtureTailTable> eta_tail;  // eta's tail over every point the integral meets (exact)
   double on_eta_scale(double d) const { return (d - mean) * sd_ratio + mean; }
 };
 
@@ -130,6 +130,7 @@ struct KappaLaw {
 double log_kappa_upper_tail(const KappaLaw& kappa, double d, bool absolute_will_do) {
   const double on_eta_scale = kappa.on_eta_scale(d);
   if (on_eta_scale <= 0.0) return 0.0;
+  if (!kappa.eta_tail) return screening_mixture_upper_tail(kappa.eta_eigenvalues, on_eta_scale).log_p;
   return kappa.eta_tail->log_upper_tail(on_eta_scale, absolute_will_do);
 }
 
@@ -169,7 +170,7 @@ double chisq1_upper_quantile_from_log(double log_p) {
   return q;
 }
 
-double mixture_upper_quantile(const std::vector<double>& eigenvalues, double log_p) {
+double mixture_upper_quantile(const std::vector<double>& eigenvalues, double log_p, SetTestPrecision precision) {
   const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);
   if (lambdas.empty() || !(log_p < 0.0)) return 0.0;
   if (lambdas.size() == 1) return lambdas.front() * chisq1_upper_quantile_from_log(log_p);
@@ -177,14 +178,19 @@ double mixture_upper_quantile(const std::vector<double>& eigenvalues, double log
   // Away from the root the search only needs the sign: below p = 1e-3 the
   // table's absolute accuracy points the way when the target is above it.
   const bool absolute_will_do = log_p >= std::log(1e-3);
-  auto excess = [&](double q) { return table->log_upper_tail(q, absolute_will_do) - log_p; };
+  const bool screening = precision == SetTestPrecision::screening;
+  auto excess = [&](double q) {
+    const double log_tail = screening ? screening_mixture_upper_tail(lambdas, q).log_p
+                                      : table->log_upper_tail(q, absolute_will_do);
+    return log_tail - log_p;
+  };
   // P(Q > q) >= P(lambda_1 X_1 > q) puts the root above the first bracket;
   // Chernoff's bound puts it below the second.
   double low = lambdas.front() * chisq1_upper_quantile_from_log(log_p);
   const MixtureCgf cgf(lambdas);
   double high = std::max(cgf.mean(), low) * 2.0;
   while (cgf.log_chernoff_bound(high) > log_p) high *= 2.0;
-  table = std::make_unique<MixtureTailTable>(lambdas, low, high);
+  if (!screening) table = std::make_unique<MixtureTailTable>(lambdas, low, high);
   double excess_low = excess(low), excess_high = excess(high);
   if (excess_low <= 0.0) return low;
   if (excess_high >= 0.0) return high;
@@ -232,7 +238,8 @@ RhoFamily decompose_rho_family(const Eigen::MatrixXd& weighted_covariance, const
   return family;
 }
 
-double optimal_log_p_from_family(const Eigen::MatrixXd& k, const RhoFamily& family, double min_log_p) {
+double optimal_log_p_from_family(const Eigen::MatrixXd& k, const RhoFamily& family, double min_log_p,
+                                 SetTestPrecision precision) {
   const std::size_t grid_size = family.rho.size();
   if (grid_size <= 1 || !(min_log_p < 0.0)) return std::min(0.0, min_log_p);
   const Eigen::Index m = k.rows();
@@ -248,7 +255,7 @@ double optimal_log_p_from_family(const Eigen::MatrixXd& k, const RhoFamily& fami
   for (std::size_t index = 0; index < grid_size; ++index) {
     const double rho = family.rho[index];
     const double tau = rho * burden_variance + (1.0 - rho) * spread;
-    const double quantile = mixture_upper_quantile(family.eigenvalues[index], min_log_p);
+    const double quantile = mixture_upper_quantile(family.eigenvalues[index], min_log_p, precision);
     if (rho == 1.0) {
       x_max = std::min(x_max, quantile / tau);
     } else {
@@ -278,8 +285,10 @@ double optimal_log_p_from_family(const Eigen::MatrixXd& k, const RhoFamily& fami
   }
   kappa.sd_ratio = std::sqrt(eta_variance / (eta_variance + zeta_variance));
   // delta falls as x grows: its value at x = 0 is the farthest point.
-  kappa.eta_tail = std::make_unique<MixtureTailTable>(kappa.eta_eigenvalues, 0.0,
-                                                      kappa.on_eta_scale(lower_envelope(lines, 0.0)));
+  if (precision == SetTestPrecision::exact) {
+    kappa.eta_tail = std::make_unique<MixtureTailTable>(kappa.eta_eigenvalues, 0.0,
+                                                        kappa.on_eta_scale(lower_envelope(lines, 0.0)));
+  }
 
   // p >= T: with T at least 1e-3, absolute accuracy 1e-9 in the integrand is
   // relative accuracy 1e-6 in p.
@@ -320,6 +329,11 @@ double optimal_log_p_from_family(const Eigen::MatrixXd& k, const RhoFamily& fami
   std::sort(breaks.begin(), breaks.end());
   breaks.erase(std::unique(breaks.begin(), breaks.end()), breaks.end());
 
+  // The screening tails switch method at the mean and carry their own few
+  // percent: their integral is taken to 1e-4, and not chased into a jump.
+  const bool screening = precision == SetTestPrecision::screening;
+  const double relative_tolerance = screening ? 1e-4 : 1e-8;
+  const int max_depth = screening ? 8 : 30;
   // Scale by the largest value on the pieces' quadrature nodes, then add up.
   const GaussLegendreRule& rule = gauss_legendre_rule();
   const std::size_t pieces = breaks.size() - 1;
@@ -344,7 +358,7 @@ double optimal_log_p_from_family(const Eigen::MatrixXd& k, const RhoFamily& fami
   double integral = 0.0;
   for (std::size_t piece = 0; piece < pieces; ++piece)
     integral += integrate_adaptively(scaled, breaks[piece], breaks[piece + 1], wholes[piece],
-                                     1e-8 * total / static_cast<double>(pieces), 0);
+                                     relative_tolerance * total / static_cast<double>(pieces), 0, max_depth);
   double log_p = log_scale + std::log(integral);
   if (std::isfinite(x_max)) log_p = log_add(log_p, log_chisq1_upper_tail(x_max));
   return within_bounds(log_p);
@@ -353,9 +367,9 @@ double optimal_log_p_from_family(const Eigen::MatrixXd& k, const RhoFamily& fami
 }  // namespace sets_detail
 
 double optimal_combination_log_p(const Eigen::MatrixXd& weighted_covariance, const std::vector<double>& rho_grid,
-                                 double min_log_p) {
+                                 double min_log_p, SetTestPrecision precision) {
   const sets_detail::RhoFamily family = sets_detail::decompose_rho_family(weighted_covariance, rho_grid);
-  return sets_detail::optimal_log_p_from_family(weighted_covariance, family, min_log_p);
+  return sets_detail::optimal_log_p_from_family(weighted_covariance, family, min_log_p, precision);
 }
 
 }  // namespace tamis

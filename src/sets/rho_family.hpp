@@ -5,6 +5,8 @@
 #include <Eigen/Dense>
 #include <vector>
 
+#include "tamis/set_tests.hpp"
+
 namespace tamis::sets_detail {
 
 // Eigenvalues of a symmetric matrix, tiny negatives (rounding) set to 0.
@@ -21,6 +23,6 @@ RhoFamily decompose_rho_family(const Eigen::MatrixXd& weighted_covariance, const
 
 // ln of the optimal combination's p-value for the smallest per-rho ln p.
 double optimal_log_p_from_family(const Eigen::MatrixXd& weighted_covariance, const RhoFamily& family,
-                                 double min_log_p);
+                                 double min_log_p, SetTestPrecision precision = SetTestPrecision::exact);
 
 }  // namespace tamis::sets_detail

@@ -15,7 +15,12 @@
 namespace tamis {
 
 SetTestResult test_variant_set(const Eigen::VectorXd& u, const Eigen::MatrixXd& covariance,
-                               const Eigen::VectorXd& weights, const std::vector<double>& rho_grid) {
+                               const Eigen::VectorXd& weights, const std::vector<double>& rho_grid,
+                               SetTestPrecision precision) {
+  auto tail = [precision](const std::vector<double>& eigenvalues, double q) {
+    return precision == SetTestPrecision::exact ? mixture_chisq_upper_tail(eigenvalues, q)
+                                                : screening_mixture_upper_tail(eigenvalues, q);
+  };
   const Eigen::Index m = u.size();
   if (m == 0 || covariance.rows() != m || covariance.cols() != m || weights.size() != m)
     throw std::invalid_argument("test_variant_set: u, covariance and weights must agree in size (and not be empty)");
@@ -35,7 +40,7 @@ SetTestResult test_variant_set(const Eigen::VectorXd& u, const Eigen::MatrixXd& 
 
   result.variance_q = weighted_u.squaredNorm();
   const std::vector<double> eigenvalues = sets_detail::nonnegative_eigenvalues(0.5 * (k + k.transpose()));
-  const MixtureTail variance_tail = mixture_chisq_upper_tail(eigenvalues, result.variance_q);
+  const MixtureTail variance_tail = tail(eigenvalues, result.variance_q);
   result.variance_log_p = variance_tail.log_p;
   result.variance_method = variance_tail.method;
 
@@ -52,14 +57,14 @@ SetTestResult test_variant_set(const Eigen::VectorXd& u, const Eigen::MatrixXd& 
       log_p = result.burden_log_p;
     } else {
       const double q_rho = (1.0 - rho) * result.variance_q + rho * result.burden_score * result.burden_score;
-      log_p = mixture_chisq_upper_tail(family.eigenvalues[index], q_rho).log_p;
+      log_p = tail(family.eigenvalues[index], q_rho).log_p;
     }
     if (log_p < result.optimal_min_log_p) {
       result.optimal_min_log_p = log_p;
       result.optimal_rho = rho;
     }
   }
-  result.optimal_log_p = sets_detail::optimal_log_p_from_family(k, family, result.optimal_min_log_p);
+  result.optimal_log_p = sets_detail::optimal_log_p_from_family(k, family, result.optimal_min_log_p, precision);
   return result;
 }
 
