@@ -121,7 +121,10 @@ Eigen::MatrixXd score_covariance(const TraitContext& trait, const std::vector<Te
   }
   Eigen::MatrixXd covariance = -(projections.transpose() * projections);
   const Eigen::VectorXd& weights = trait.model.weights;
-  std::vector<double> spread(static_cast<std::size_t>(trait.model.sample_count()), 0.0);
+  // Kept per thread and left all zero after each set: a set costs its
+  // entries, not a pass over the samples.
+  thread_local std::vector<double> spread;
+  spread.resize(std::max(spread.size(), static_cast<std::size_t>(trait.model.sample_count())), 0.0);
   for (Eigen::Index first = 0; first < unit_count; ++first) {
     const SparseColumn& column = units[static_cast<std::size_t>(first)].column;
     for (std::size_t entry = 0; entry < column.samples.size(); ++entry) {

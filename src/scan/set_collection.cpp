@@ -75,9 +75,19 @@ void sparse_dosages(const TraitContext& trait, const DosageBlock& block, std::si
     out.samples.push_back(static_cast<std::uint32_t>(sample_idx));
     out.values.push_back(std::isnan(value) ? fill : value);
   };
-  // Every genotype sample analysed (the usual case): one pass over the row.
+  // Every genotype sample analysed (the usual case): one pass over the row,
+  // eight at a time past the runs of zeros (NaN, a missing dosage, is not
+  // zero and so is kept).
   if (samples.size() == block.sample_count) {
-    for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) keep(sample_idx, dosages[sample_idx]);
+    constexpr std::size_t kRun = 8;
+    std::size_t sample_idx = 0;
+    for (; sample_idx + kRun <= samples.size(); sample_idx += kRun) {
+      bool any = false;
+      for (std::size_t lane = 0; lane < kRun; ++lane) any |= dosages[sample_idx + lane] != 0.0;
+      if (!any) continue;
+      for (std::size_t lane = 0; lane < kRun; ++lane) keep(sample_idx + lane, dosages[sample_idx + lane]);
+    }
+    for (; sample_idx < samples.size(); ++sample_idx) keep(sample_idx, dosages[sample_idx]);
     return;
   }
   for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) keep(sample_idx, dosages[samples[sample_idx]]);

@@ -130,7 +130,8 @@ struct KappaLaw {
 double log_kappa_upper_tail(const KappaLaw& kappa, double d, bool absolute_will_do) {
   const double on_eta_scale = kappa.on_eta_scale(d);
   if (on_eta_scale <= 0.0) return 0.0;
-  if (!kappa.eta_tail) return screening_mixture_upper_tail(kappa.eta_eigenvalues, on_eta_scale).log_p;
+  // The screen: the moment-matched chi-square at every node.
+  if (!kappa.eta_tail) return std::min(0.0, moment_matching_upper_log_tail(kappa.eta_eigenvalues, on_eta_scale));
   return kappa.eta_tail->log_upper_tail(on_eta_scale, absolute_will_do);
 }
 
@@ -180,7 +181,9 @@ double mixture_upper_quantile(const std::vector<double>& eigenvalues, double log
   const bool absolute_will_do = log_p >= std::log(1e-3);
   const bool screening = precision == SetTestPrecision::screening;
   auto excess = [&](double q) {
-    const double log_tail = screening ? screening_mixture_upper_tail(lambdas, q).log_p
+    // The screen takes its quantiles from the moment-matched chi-square,
+    // as the paper does: a closed form instead of a saddlepoint per step.
+    const double log_tail = screening ? std::min(0.0, moment_matching_upper_log_tail(lambdas, q))
                                       : table->log_upper_tail(q, absolute_will_do);
     return log_tail - log_p;
   };
