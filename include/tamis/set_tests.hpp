@@ -127,6 +127,10 @@ SetTestResult test_variant_set(const Eigen::VectorXd& u, const Eigen::MatrixXd& 
 double optimal_combination_log_p(const Eigen::MatrixXd& weighted_covariance, const std::vector<double>& rho_grid,
                                  double min_log_p, SetTestPrecision precision = SetTestPrecision::exact);
 
+// q with ln P(chi-square(1) > q) = log_p, for any log_p < 0 (also far below
+// the smallest double): the chi-square a p-value stands for.
+double chisq1_quantile_of_log_p(double log_p);
+
 // Beta(maf; a, b) density as a variant weight (Wu et al. 2011, AJHG 89:82-93:
 // a = 1, b = 25 by default), maf the minor allele frequency in (0, 0.5].
 double beta_density_weight(double maf, double a = 1.0, double b = 25.0);

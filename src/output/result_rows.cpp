@@ -54,6 +54,14 @@ void append_optional_p_value(std::string& out, const std::optional<double>& log_
 
 void append_count(std::string& out, std::size_t value) { out += std::to_string(value); }
 
+void append_optional_count(std::string& out, const std::optional<std::size_t>& value) {
+  if (value) {
+    append_count(out, *value);
+  } else {
+    out += missing_text;
+  }
+}
+
 // Matches format_p_value: a p-value written as "1" has -log10 p of exactly 0
 // (never "-0").
 double negative_log10_p(double log_p) {
@@ -177,11 +185,7 @@ void append_result_row(const ResultRow& row, std::string& out) {
   out += '\t';
   append_optional_p_value(out, row.hwe_log_p);
   out += '\t';
-  if (row.n_cases) {
-    append_count(out, *row.n_cases);
-  } else {
-    out += missing_text;
-  }
+  append_optional_count(out, row.n_cases);
   out += '\n';
 }
 
@@ -251,11 +255,7 @@ void append_set_result_row(const SetResultRow& row, std::string& out) {
   out += '\t';
   append_count(out, row.n);
   out += '\t';
-  if (row.n_cases) {
-    append_count(out, *row.n_cases);
-  } else {
-    out += missing_text;
-  }
+  append_optional_count(out, row.n_cases);
   out += '\n';
 }
 

@@ -10,7 +10,6 @@
 #include <tuple>
 
 #include "scan/trait_pass.hpp"
-#include "sets/mixture_cgf.hpp"
 #include "tamis/distributions.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/saddlepoint.hpp"
@@ -173,7 +172,7 @@ Eigen::VectorXd unit_dosages(const TraitContext& trait, const TestUnit& unit, do
 // The variance a saddlepoint p-value implies for a score u: the one under
 // which the normal test gives the same p.
 double implied_variance(double u, double log_p) {
-  const double quantile = sets_detail::chisq1_upper_quantile_from_log(log_p);
+  const double quantile = chisq1_quantile_of_log_p(log_p);
   return quantile > 0.0 ? u * u / quantile : 0.0;
 }
 
@@ -407,6 +406,10 @@ void SetAccumulator::test_and_keep(const std::vector<std::uint32_t>& closing) {
     if (task->open.variants.size() > options_.max_variants) continue;
     tasks_->run([this, task] { test_closed_set(*task); });
   }
+  // Back-pressure: when the tests fall behind the stream, the writer waits
+  // for them, so that memory holds a bounded number of closed sets' variants.
+  constexpr std::size_t kMostInFlight = 2048;
+  if (closed_.size() > kMostInFlight) collect_closed_sets();
 }
 
 void SetAccumulator::test_closed_set(ClosedSet& job) const {

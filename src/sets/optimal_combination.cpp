@@ -369,6 +369,8 @@ double optimal_log_p_from_family(const Eigen::MatrixXd& k, const RhoFamily& fami
 
 }  // namespace sets_detail
 
+double chisq1_quantile_of_log_p(double log_p) { return sets_detail::chisq1_upper_quantile_from_log(log_p); }
+
 double optimal_combination_log_p(const Eigen::MatrixXd& weighted_covariance, const std::vector<double>& rho_grid,
                                  double min_log_p, SetTestPrecision precision) {
   const sets_detail::RhoFamily family = sets_detail::decompose_rho_family(weighted_covariance, rho_grid);
