@@ -408,7 +408,7 @@ void SetAccumulator::test_and_keep(const std::vector<std::uint32_t>& closing) {
   }
   // Back-pressure: when the tests fall behind the stream, the writer waits
   // for them, so that memory holds a bounded number of closed sets' variants.
-  constexpr std::size_t kMostInFlight = 2048;
+  constexpr std::size_t kMostInFlight = 512;
   if (closed_.size() > kMostInFlight) collect_closed_sets();
 }
 
