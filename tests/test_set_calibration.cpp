@@ -267,10 +267,10 @@ void expect_calibrated(const std::string& dir, const std::string& trait) {
 TEST_F(SetCalibration, QuantitativeNullTraitIsCalibrated) { expect_calibrated(dir_, "q_null"); }
 
 // Known open problem (issue 16): on other cohorts the variance-component,
-// optimal and overall tests of this binary trait run above their level even
-// with the scores matched to the saddlepoint: TAMIS_CALIBRATION_SEED=7 gives
-// 32 variance p-values below 0.01 of 1,500 (bound 29), 424242 gives 9 below
-// 0.001 (bound 7). The default cohort stays within the bounds.
+// optimal and overall tests of this binary trait can run above their level
+// even with the scores widened to their saddlepoint variances:
+// TAMIS_CALIBRATION_SEED=424242 gives 9 variance p-values below 0.001 of
+// 1,500 (bound 7); seed 7 and the default cohort stay within the bounds.
 TEST_F(SetCalibration, BinaryNullTraitAtFivePercentPrevalenceIsCalibrated) {
   expect_calibrated(dir_, "b_null");
 }

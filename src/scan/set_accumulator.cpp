@@ -216,7 +216,7 @@ double match_covariance_to_saddlepoint(const TraitContext& trait, std::vector<Te
   if (burden * burden / burden_variance >= 4.0) {
     const double implied = implied_variance(burden, burden_log_p);
     const double adjusted = weights.dot(covariance * weights);
-    if (implied > 0.0 && adjusted > 0.0) covariance *= implied / adjusted;
+    if (implied > adjusted && adjusted > 0.0) covariance *= implied / adjusted;
   }
   return burden_log_p;
 }
