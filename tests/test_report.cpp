@@ -458,6 +458,8 @@ TEST(HtmlPieces, PThresholdsAsUsuallyWritten) {
   using tamis::report::format_p_threshold;
   EXPECT_EQ(format_p_threshold(5e-8), "5e-8");
   EXPECT_EQ(format_p_threshold(0.05 / 3000, 2), "1.7e-5");  // the set plot's line for 3,000 sets
+  EXPECT_EQ(format_p_threshold(0.05 / 92, 2), "5.4e-4");    // not "0.00054", which outgrows the plot's margin
+  EXPECT_EQ(format_p_threshold(0.0005, 2), "5e-4");
   EXPECT_EQ(format_p_threshold(0.01, 2), "0.01");
 }
 

@@ -1,3 +1,4 @@
+#include <algorithm>
 #include "report/html_page.hpp"
 
 #include <cstdio>
@@ -155,6 +156,19 @@ std::string format_p_threshold(double p, int significant_digits) {
   char text[32];
   std::snprintf(text, sizeof text, "%.*g", significant_digits, p);
   std::string written = text;
+  // Below 1e-3 in exponent form ("5.4e-4", not "0.00054"): it fits the
+  // label beside a plot's line.
+  if (p < 1e-3 && written.find('e') == std::string::npos) {
+    std::snprintf(text, sizeof text, "%.*e", std::max(significant_digits - 1, 0), p);
+    written = text;
+    const std::size_t exponent = written.find('e');
+    std::string mantissa = written.substr(0, exponent);
+    if (mantissa.find('.') != std::string::npos) {
+      while (mantissa.back() == '0') mantissa.pop_back();
+      if (mantissa.back() == '.') mantissa.pop_back();
+    }
+    written = mantissa + written.substr(exponent);
+  }
   for (const char* padded : {"e-0", "e+0"}) {
     std::size_t at = written.find(padded);
     if (at != std::string::npos) written.erase(at + 2, 1);
