@@ -112,11 +112,17 @@ TEST_F(Families, FileListsEverySampleOnceAndAConsistentPedigree) {
     } else {
       EXPECT_EQ(relative.family.rfind("saltmarsh_f", 0), 0u) << relative.family;
     }
-    if (relative.role == "ancestor") EXPECT_EQ(relative.participant.rfind("saltmarsh_a", 0), 0u);
-    if (relative.role == "child") EXPECT_NE(relative.father, "NA");
+    if (relative.role == "ancestor") {
+      EXPECT_EQ(relative.participant.rfind("saltmarsh_a", 0), 0u);
+    }
+    if (relative.role == "child") {
+      EXPECT_NE(relative.father, "NA");
+    }
     // Fathers are men and mothers women, in the table where the value is not missing.
     for (const auto& [parent, sex] : {std::make_pair(relative.father, "M"), std::make_pair(relative.mother, "F")}) {
-      if (table.count(parent) && table.at(parent).at("sex") != "NA") EXPECT_EQ(table.at(parent).at("sex"), sex);
+      if (table.count(parent) && table.at(parent).at("sex") != "NA") {
+        EXPECT_EQ(table.at(parent).at("sex"), sex);
+      }
     }
   }
   // The genotyped people are exactly the VCF's samples, in its order.

@@ -97,7 +97,9 @@ TEST_F(SetRuns, ConfirmingSetHitsTestsThoseSetsAgainAndRefitsTheirVariants) {
   for (const std::vector<std::string>& row : data_rows(read_gzip_file(set_file(prefix, "fev1_litres")))) {
     confirmed.insert(row[0]);
     for (const std::vector<std::string>& original : data_rows(read_gzip_file(whole))) {
-      if (original[0] == row[0]) EXPECT_EQ(original, row) << "the set is tested again with every variant";
+      if (original[0] == row[0]) {
+        EXPECT_EQ(original, row) << "the set is tested again with every variant";
+      }
     }
   }
   EXPECT_EQ(confirmed, hits);
