@@ -483,6 +483,7 @@ class StateWriter {
   template <typename T>
   void numbers(const std::vector<T>& values) {
     number<std::uint64_t>(values.size());
+    if (values.empty()) return;  // an empty vector's data() may be null
     out_.append(reinterpret_cast<const char*>(values.data()), values.size() * sizeof(T));
   }
 
@@ -509,7 +510,7 @@ class StateReader {
     const std::uint64_t count = number<std::uint64_t>();
     if (count > bytes_.size() / sizeof(T)) damaged();
     std::vector<T> values(count);
-    std::memcpy(values.data(), take(count * sizeof(T)), count * sizeof(T));
+    if (count > 0) std::memcpy(values.data(), take(count * sizeof(T)), count * sizeof(T));
     return values;
   }
 
