@@ -188,6 +188,8 @@ SidecarFields read_metadata_sidecar(const std::string& sidecar_path, std::string
 inline constexpr const char* kShardKey = "tamis_shard";
 inline constexpr const char* kShardRangesKey = "tamis_shard_ranges";
 inline constexpr const char* kFingerprintKey = "tamis_run_fingerprint";
+// The variants a scan conditioned on (--condition-on), as given.
+inline constexpr const char* kConditionedOnKey = "tamis_conditioned_on";
 // The relatedness matrix of a mixed-model scan: its files and their md5.
 inline constexpr const char* kRelatednessKey = "tamis_relatedness";
 // A mixed-model scan's null fit of the trait (model, variance, iterations).

@@ -64,6 +64,11 @@ bool is_set_results_path(const std::string& path);
 bool select_from_list(const std::string& list_path, ChromosomeCodes codes, VariantSelection& selection,
                       std::vector<GenomicRegion>& regions);
 
+// The conditioning variants of a list file (--condition-list), one per line
+// (blank lines and '#' comments skipped). Throws tamis::Error (usage) for an
+// unreadable file.
+std::vector<std::string> read_condition_list(const std::string& path);
+
 // Variant QC floors, applied per trait on its analysis samples; 0 turns one off.
 struct QcFloors {
   double minor_allele_frequency = 0.0;
@@ -102,6 +107,9 @@ struct ScanOptions {
   // --relatedness: the files of one relatedness matrix (a whole one, or the
   // parts of one); quantitative traits then get a linear mixed null model.
   std::vector<std::string> relatedness_paths;
+  // --condition-on: variants (chr:pos:ref:alt or IDs) whose dosages join
+  // every trait's covariates.
+  std::vector<std::string> condition_on;
   QcFloors floors;
   SetScanOptions sets;  // --sets: variant-set tests beside the single-variant ones
   std::string keep_samples_path;  // one sample ID per line

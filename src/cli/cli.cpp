@@ -92,6 +92,8 @@ struct ScanArguments {
   QcFloors floors;
   std::string keep_samples;
   std::vector<std::string> relatedness;
+  std::vector<std::string> condition_on;
+  std::string condition_list;
   std::string drop_samples;
   std::vector<std::string> rank_normalize;
   int haploid_dosage = 1;
@@ -207,6 +209,23 @@ int thread_count_from(int requested) {
   return requested == 0 ? static_cast<int>(cores) : requested;
 }
 
+// --condition-on entries, then those of --condition-list: each one variant.
+void check_condition_entries(const ScanArguments& arguments, std::vector<std::string>& entries) {
+  entries = arguments.condition_on;
+  if (!arguments.condition_list.empty()) {
+    check_readable("--condition-list", arguments.condition_list);
+    for (const std::string& entry : read_condition_list(arguments.condition_list)) entries.push_back(entry);
+  }
+  std::set<std::string> seen;
+  for (const std::string& entry : entries) {
+    if (entry.empty() || entry == "." || entry.find_first_of(" \t,") != std::string::npos) {
+      refuse_option("--condition-on", "'" + entry + "' is not one variant",
+                    "give an ID of the VCF ID column or chr:pos:ref:alt, one per option or line");
+    }
+    if (!seen.insert(entry).second) refuse_option("--condition-on", "'" + entry + "' is given twice", "");
+  }
+}
+
 ScanOptions check_scan_options(const ScanArguments& arguments, const std::string& command_line) {
   ScanOptions options;
   // The output location comes first: a scan that cannot write must not start reading.
@@ -258,6 +277,7 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
   options.keep_samples_path = arguments.keep_samples;
   for (const std::string& path : arguments.relatedness) check_readable("--relatedness", path);
   options.relatedness_paths = arguments.relatedness;
+  check_condition_entries(arguments, options.condition_on);
   options.drop_samples_path = arguments.drop_samples;
   for (const std::string& trait : arguments.rank_normalize) {
     if (std::find(arguments.trait_names.begin(), arguments.trait_names.end(), trait) == arguments.trait_names.end()) {
@@ -338,6 +358,10 @@ void add_analysis_options(CLI::App* command, ScanArguments& arguments) {
                       "Relatedness matrix of the samples (one file, or every part of one): quantitative traits get "
                       "a linear mixed null model");
   command->add_option("--drop-samples", arguments.drop_samples, "Leave out the sample IDs in this file");
+  command->add_option("--condition-on", arguments.condition_on,
+                      "Variant (ID or chr:pos:ref:alt) whose dosages join every trait's covariates (repeatable)");
+  command->add_option("--condition-list", arguments.condition_list,
+                      "File of variants to condition on, one per line (as --condition-on)");
   command->add_option("--rank-normalize", arguments.rank_normalize,
                       "Quantitative trait to give a rank-based inverse normal transform (repeatable)");
   command->add_option("--haploid-dosage", arguments.haploid_dosage,

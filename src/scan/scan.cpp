@@ -17,10 +17,12 @@
 
 #include "scan/block_sizing.hpp"
 #include "scan/checkpoint.hpp"
+#include "scan/conditioning.hpp"
 #include "scan/progress.hpp"
 #include "scan/related_samples.hpp"
 #include "scan/sample_lists.hpp"
 #include "scan/set_accumulator.hpp"
+#include "scan/trait_setup.hpp"
 #include "scan/trait_pass.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/trait_transform.hpp"
@@ -58,6 +60,13 @@ void log_inputs(const ScanOptions& options, const GenotypeReader& reader, const 
   log.detail("covariates: " + (options.covariates.empty() ? std::string("(none)") : join(options.covariates, ", ")));
   log.line("samples: " + std::to_string(reader.sample_ids().size()) + " in the genotype files, " +
            std::to_string(table.row_count()) + " rows in the table");
+}
+
+void log_conditions(const std::vector<ConditionVariant>& conditions) {
+  for (const ConditionVariant& variant : conditions) {
+    current_log().line("conditioning on " + variant.label + (variant.requested == variant.label ? std::string()
+                       : " (" + variant.requested + ")") + ": its dosages join every trait's covariates");
+  }
 }
 
 void log_samples(const AnalysisSet& set) {
@@ -123,35 +132,53 @@ std::vector<std::size_t> samples_outside(const std::vector<std::size_t>& genotyp
   return outside;
 }
 
+}  // namespace
+
+AnalysisSet prepare_analysis_set(const ScanOptions& options, const TraitTable& table,
+                                 const std::vector<std::string>& samples, const std::vector<bool>& excluded,
+                                 const std::string& trait) {
+  AnalysisRequest request;
+  request.trait = trait;
+  request.covariates = options.covariates;
+  auto override_it = options.kind_overrides.find(request.trait);
+  if (override_it != options.kind_overrides.end()) request.kind_override = override_it->second;
+  request.excluded_samples = excluded;
+  AnalysisSet set = build_analysis_set(table, samples, request);
+  log_samples(set);
+  apply_rank_normalization(options, set);
+  return set;
+}
+
+void fit_trait_null_model(const ScanOptions& options, const std::vector<std::string>& samples,
+                          const ScanRelatedness* relatedness, TraitContext& trait) {
+  const std::string& name = trait.set.trait;
+  try {
+    trait.model = fit_null_model(name, trait.set.kind, trait.set.y, trait.set.design, trait.set.design_names);
+  } catch (const Error& error) {
+    // The model knows the trait, not the file: name the table it came from.
+    throw Error(error.code(), options.traits_path + ", column '" + name + "'",
+                error.where().empty() ? error.problem() : error.where() + ": " + error.problem(), error.fix());
+  }
+  if (relatedness) {
+    fit_mixed_null_model(*relatedness, samples, trait);
+  } else {
+    log_null_model(name, trait.model);
+  }
+}
+
+namespace {
+
 std::vector<TraitContext> prepare_traits(const ScanOptions& options, const TraitTable& table,
                                          const std::vector<std::string>& samples,
-                                         const ScanRelatedness* relatedness) {
+                                         const ScanRelatedness* relatedness,
+                                         const std::vector<ConditionVariant>& conditions) {
   std::vector<TraitContext> traits(options.traits.size());
   const std::vector<bool> excluded = excluded_samples(options.keep_samples_path, options.drop_samples_path, samples);
   for (std::size_t trait_idx = 0; trait_idx < options.traits.size(); ++trait_idx) {
-    AnalysisRequest request;
-    request.trait = options.traits[trait_idx];
-    request.covariates = options.covariates;
-    auto override_it = options.kind_overrides.find(request.trait);
-    if (override_it != options.kind_overrides.end()) request.kind_override = override_it->second;
-    request.excluded_samples = excluded;
     TraitContext& trait = traits[trait_idx];
-    trait.set = build_analysis_set(table, samples, request);
-    log_samples(trait.set);
-    apply_rank_normalization(options, trait.set);
-    try {
-      trait.model = fit_null_model(request.trait, trait.set.kind, trait.set.y, trait.set.design,
-                                   trait.set.design_names);
-    } catch (const Error& error) {
-      // The model knows the trait, not the file: name the table it came from.
-      throw Error(error.code(), options.traits_path + ", column '" + request.trait + "'",
-                  error.where().empty() ? error.problem() : error.where() + ": " + error.problem(), error.fix());
-    }
-    if (relatedness) {
-      fit_mixed_null_model(*relatedness, samples, trait);
-    } else {
-      log_null_model(request.trait, trait.model);
-    }
+    trait.set = prepare_analysis_set(options, table, samples, excluded, options.traits[trait_idx]);
+    add_condition_columns(conditions, trait.set);
+    fit_trait_null_model(options, samples, relatedness, trait);
     trait.confirm_below = options.confirm_below;
     trait.spread_flag = options.spread_flag;
     if (options.selection.active()) trait.selection = &options.selection;
@@ -177,6 +204,8 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
       trait.set_context = std::make_unique<TraitSetContext>();
       trait.set_context->maf_ceiling = options.sets.maf_ceiling;
       trait.set_context->kernel_row_of_sample = kernel_row_of_sample(trait);
+      trait.set_context->analysis_row_of_genotype_sample =
+          analysis_row_of_genotype_sample(trait.set.genotype_index, samples.size());
     }
   }
   return traits;
@@ -484,6 +513,11 @@ void write_sidecar(const ScanOptions& options, const TraitContext& trait, const 
   fields.software_version = TAMIS_VERSION;
   fields.adjusted_covariates = options.covariates;
   fields.extra = provenance;
+  if (!options.condition_on.empty()) {
+    const std::string conditions = join(options.condition_on, ", ");
+    for (const std::string& variant : options.condition_on) fields.adjusted_covariates.push_back(variant);
+    fields.extra.emplace_back(kConditionedOnKey, conditions);
+  }
   if (!trait.null_model_summary.empty()) fields.extra.emplace_back(kNullModelKey, trait.null_model_summary);
   write_metadata_sidecar(path, fields);
 }
@@ -678,8 +712,10 @@ ScanSummary run_scan(const ScanOptions& requested) {
   if (!options.relatedness_paths.empty()) {
     relatedness = load_scan_relatedness(options.relatedness_paths, reader.sample_ids());
   }
+  const std::vector<ConditionVariant> conditions = read_condition_variants(options);
+  log_conditions(conditions);
   const std::vector<TraitContext> traits =
-      prepare_traits(options, table, reader.sample_ids(), relatedness ? &*relatedness : nullptr);
+      prepare_traits(options, table, reader.sample_ids(), relatedness ? &*relatedness : nullptr, conditions);
 
   ScanProgress progress;
   progress.state.run_description = describe_run(options, true);

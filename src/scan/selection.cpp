@@ -9,18 +9,19 @@
 #include "tamis/errors.hpp"
 #include "tamis/results_reader.hpp"
 #include "tamis/results_writer.hpp"
+#include "scan/variant_keys.hpp"
 #include "tamis/scan.hpp"
 
 namespace tamis {
-namespace {
 
-// The contig names a written chromosome code can stand for in a VCF.
 std::vector<std::string> contig_candidates(const std::string& code) {
   if (code == "23") return {"X", "chrX", "23", "chr23"};
   if (code == "24") return {"Y", "chrY", "24", "chr24"};
   if (code == "25") return {"MT", "chrM", "M", "chrMT", "25"};
   return {code, "chr" + code};
 }
+
+namespace {
 
 void add_range(const std::string& code, std::int64_t first, std::int64_t last, std::vector<GenomicRegion>& regions) {
   for (const std::string& contig : contig_candidates(code)) regions.push_back({contig, first, last});
@@ -62,13 +63,7 @@ bool is_allele(const std::string& text, bool alt) {
   return !text.empty() && text.find_first_not_of("ACGTNacgtn") == std::string::npos;
 }
 
-// A list entry that names one allele: chromosome, position >= 1, ref, alt.
-struct AlleleKey {
-  std::string chromosome;
-  std::int64_t position = 0;
-  std::string ref;
-  std::string alt;
-};
+}  // namespace
 
 std::optional<AlleleKey> parse_allele_key(const std::string& entry) {
   std::vector<std::string> parts;
@@ -87,6 +82,8 @@ std::optional<AlleleKey> parse_allele_key(const std::string& entry) {
   if (position < 1) return std::nullopt;
   return AlleleKey{parts[0], position, parts[2], parts[3]};
 }
+
+namespace {
 
 // A list line that cannot be an ID: "." (the ID column's missing value,
 // which would take every unnamed record) or one holding whitespace, which no
