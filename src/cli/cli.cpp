@@ -18,6 +18,7 @@
 #include "tamis/results_writer.hpp"
 #include "tamis/run_log.hpp"
 #include "tamis/scan.hpp"
+#include "tamis/signals.hpp"
 #include "tamis/simulate.hpp"
 
 namespace tamis {
@@ -548,6 +549,79 @@ ScanOptions check_confirm_options(const ScanArguments& arguments, const std::str
   return options;
 }
 
+struct SignalArguments {
+  ScanArguments analysis;
+  std::string loci;
+  double select_below = 5e-8;
+  double window_kb = 500.0;
+  std::size_t max_signals = 10;
+  double prior_effect_sd = 0.0;
+};
+
+void add_signals_command(CLI::App& app, SignalArguments& arguments) {
+  CLI::App* command = app.add_subcommand(
+      "signals", "Independent signals at lead loci (stepwise conditional selection, joint fit) and credible sets");
+  add_analysis_options(command, arguments.analysis);
+  command->add_option("--loci", arguments.loci, "The loci file of `tamis report` (PREFIX.loci.tsv)");
+  command->add_option("--region", arguments.analysis.regions,
+                      "CHR:FROM-TO: follow up this stretch for every trait (repeatable), instead of --loci");
+  command->add_option("--select-below", arguments.select_below,
+                      "A further signal needs its conditional p-value below this")
+      ->capture_default_str();
+  command->add_option("--window-kb", arguments.window_kb,
+                      "Kilobases either side of a lead that are tested (a locus' span is always covered)")
+      ->capture_default_str();
+  command->add_option("--max-signals", arguments.max_signals, "Most signals selected per locus")->capture_default_str();
+  command->add_option("--prior-effect-sd", arguments.prior_effect_sd,
+                      "Prior SD of a causal effect in the Bayes factors (default: 0.2 log odds for binary traits, "
+                      "0.15 trait SDs for quantitative ones)");
+}
+
+SignalOptions check_signal_options(const SignalArguments& arguments, const std::string& command_line) {
+  SignalOptions options;
+  ScanArguments analysis = arguments.analysis;
+  analysis.regions.clear();  // windows, not the scan's regions
+  options.scan = check_scan_options(analysis, command_line);
+  if (arguments.loci.empty() == arguments.analysis.regions.empty()) {
+    refuse_option("tamis signals", "give either --loci or --region", "--loci takes the loci file of `tamis report`");
+  }
+  if (!arguments.loci.empty()) check_readable("--loci", arguments.loci);
+  options.loci_path = arguments.loci;
+  for (const std::string& text : arguments.analysis.regions) parse_region(text);
+  options.region_texts = arguments.analysis.regions;
+  if (!(arguments.select_below > 0.0 && arguments.select_below < 1.0)) {
+    refuse_option("--select-below", "must be a p-value in (0, 1)", "the default, 5e-8, is the genome-wide level");
+  }
+  options.select_below = arguments.select_below;
+  if (!(arguments.window_kb >= 0.0 && arguments.window_kb <= 1e6)) {
+    refuse_option("--window-kb", "must be between 0 and 1,000,000 kilobases", "the default is 500");
+  }
+  options.window_radius = static_cast<std::int64_t>(std::llround(arguments.window_kb * 1000.0));
+  if (arguments.max_signals < 1) refuse_option("--max-signals", "must be at least 1", "the default is 10");
+  options.max_signals = arguments.max_signals;
+  if (!(arguments.prior_effect_sd >= 0.0 && std::isfinite(arguments.prior_effect_sd))) {
+    refuse_option("--prior-effect-sd", "must be a positive SD", "leave it out for the default");
+  }
+  options.prior_effect_sd = arguments.prior_effect_sd;
+  return options;
+}
+
+int execute_signals(const SignalArguments& arguments, const std::string& command_line) {
+  const SignalOptions options = check_signal_options(arguments, command_line);
+  RunLog& log = current_log();
+  log.set_echo(!arguments.analysis.quiet);
+  log.open(options.scan.out_prefix + ".log");
+  try {
+    const SignalsSummary summary = run_signals(options);
+    log.line(std::to_string(summary.signals) + " signals at " + std::to_string(summary.loci) + " loci");
+    for (const std::string& path : summary.files) log.line("wrote " + path);
+  } catch (const Error& error) {
+    log.detail(std::string("error: ") + error.what());
+    throw;
+  }
+  return 0;
+}
+
 // For tests only: TAMIS_TEST_SIGNAL_AFTER_BLOCK=K:TERM (or K:KILL, K:INT)
 // makes the scan send itself that signal once K blocks are written, so that
 // an interrupted run is the same on a fast machine and a slow one.
@@ -745,6 +819,8 @@ int run_command_line(int argc, char** argv) {
   add_merge_command(app, merge_options);
   RelatednessArguments relatedness_arguments;
   add_relatedness_command(app, relatedness_arguments);
+  SignalArguments signal_arguments;
+  add_signals_command(app, signal_arguments);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& error) {
@@ -755,6 +831,7 @@ int run_command_line(int argc, char** argv) {
     if (app.got_subcommand("scan")) return execute_scan(scan_arguments, join_command_line(argc, argv), false);
     if (app.got_subcommand("confirm")) return execute_scan(confirm_arguments, join_command_line(argc, argv), true);
     if (app.got_subcommand("report")) return execute_report(report_arguments);
+    if (app.got_subcommand("signals")) return execute_signals(signal_arguments, join_command_line(argc, argv));
     if (app.got_subcommand("merge")) return execute_merge(merge_options);
     if (app.got_subcommand("relatedness")) return execute_relatedness(relatedness_arguments, join_command_line(argc, argv));
     return execute_simulate(simulation_options);
