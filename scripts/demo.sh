@@ -9,7 +9,10 @@ cmake -S . -B build -DCMAKE_BUILD_TYPE=Release > /dev/null
 cmake --build build -j "$(nproc)" --target tamis
 out=demo_out
 mkdir -p "$out"
-./build/tamis simulate --out "$out/saltmarsh" --samples 2000 --variants 3000 --seed 7
+# Haplotype blocks of about 20 variants give linkage disequilibrium; the
+# first locus of fev1_litres has two causal variants in partial LD.
+./build/tamis simulate --out "$out/saltmarsh" --samples 2000 --variants 3000 --seed 7 \
+  --haplotype-blocks 20 --locus-signals 2
 ./build/tamis scan --genotypes "$out/saltmarsh.vcf.gz" --traits "$out/saltmarsh.traits.tsv" \
   --trait fev1_litres --trait winter_wheeze \
   --covariates age,sex,village,pc1,pc2,pc3,pc4 \

@@ -4,6 +4,8 @@
 #include <gtest/gtest.h>
 
 #include <algorithm>
+#include <cstdio>
+#include <iostream>
 #include <map>
 #include <set>
 #include <string>
@@ -181,6 +183,226 @@ TEST(SimulatedCohort, CausalGeneCountIsChecked) {
       EXPECT_NE(std::string(error.what()).find("--causal-genes"), std::string::npos) << error.what();
     }
   }
+}
+
+// --haplotype-blocks and --locus-signals: r² computed directly from the
+// VCF's genotype calls (Pearson's correlation of allele counts, squared,
+// over the samples called at both variants).
+struct CalledGenotypes {
+  std::vector<std::string> contig;
+  std::vector<long long> position;
+  std::vector<std::vector<int>> counts;  // -1 where the call is missing
+  std::vector<bool> common;             // biallelic, minor allele frequency at least 5%
+};
+
+CalledGenotypes read_called_genotypes(const std::string& vcf_path) {
+  CalledGenotypes called;
+  for (const std::string& line : lines_of(read_gzip_file(vcf_path))) {
+    if (line.empty() || line[0] == '#') continue;
+    const std::vector<std::string> fields = split_fields(line);
+    std::vector<int> counts;
+    double alleles = 0, alt = 0;
+    for (std::size_t field_idx = 9; field_idx < fields.size(); ++field_idx) {
+      const std::string& call = fields[field_idx];
+      if (call[0] == '.') {
+        counts.push_back(-1);
+        continue;
+      }
+      counts.push_back((call[0] == '1') + (call[2] == '1'));
+      alleles += 2;
+      alt += counts.back();
+    }
+    const double frequency = alt / alleles;
+    called.contig.push_back(fields[0]);
+    called.position.push_back(std::stoll(fields[1]));
+    called.counts.push_back(std::move(counts));
+    called.common.push_back(fields[4].find(',') == std::string::npos && std::min(frequency, 1 - frequency) >= 0.05);
+  }
+  return called;
+}
+
+double squared_correlation(const std::vector<int>& first, const std::vector<int>& second) {
+  double count = 0, sum_first = 0, sum_second = 0;
+  for (std::size_t sample_idx = 0; sample_idx < first.size(); ++sample_idx) {
+    if (first[sample_idx] < 0 || second[sample_idx] < 0) continue;
+    ++count;
+    sum_first += first[sample_idx];
+    sum_second += second[sample_idx];
+  }
+  const double mean_first = sum_first / count, mean_second = sum_second / count;
+  double cross = 0, square_first = 0, square_second = 0;
+  for (std::size_t sample_idx = 0; sample_idx < first.size(); ++sample_idx) {
+    if (first[sample_idx] < 0 || second[sample_idx] < 0) continue;
+    cross += (first[sample_idx] - mean_first) * (second[sample_idx] - mean_second);
+    square_first += (first[sample_idx] - mean_first) * (first[sample_idx] - mean_first);
+    square_second += (second[sample_idx] - mean_second) * (second[sample_idx] - mean_second);
+  }
+  return cross * cross / (square_first * square_second);
+}
+
+SimulationOutputs simulate_blocks(const std::string& prefix, int locus_signals) {
+  SimulationOptions options;
+  options.out_prefix = prefix;
+  options.seed = 5;
+  options.samples = 1000;
+  options.variants = 1200;
+  options.chromosomes = 2;
+  options.haplotype_block_variants = 20;
+  options.locus_signals = locus_signals;
+  return simulate_cohort(options);
+}
+
+class SimulatedBlocks : public ::testing::Test {
+ protected:
+  static void SetUpTestSuite() {
+    dir_ = make_temp_dir("simulate_blocks");
+    outputs_ = simulate_blocks(dir_ + "/blocks", 3);
+    called_ = read_called_genotypes(outputs_.vcf_path);
+    // Each variant's block, from the BED.
+    const std::vector<BedGene> blocks = read_bed(outputs_.blocks_path);
+    for (std::size_t variant_idx = 0; variant_idx < called_.position.size(); ++variant_idx) {
+      int found = -1;
+      for (std::size_t block_idx = 0; block_idx < blocks.size(); ++block_idx) {
+        const BedGene& block = blocks[block_idx];
+        const long long position = called_.position[variant_idx];
+        if (block.contig == called_.contig[variant_idx] && position > block.start && position <= block.end) {
+          EXPECT_EQ(found, -1) << "variant " << variant_idx << " lies in one block only";
+          found = static_cast<int>(block_idx);
+        }
+      }
+      block_of_.push_back(found);
+    }
+    block_count_ = blocks.size();
+  }
+  static std::string dir_;
+  static SimulationOutputs outputs_;
+  static CalledGenotypes called_;
+  static std::vector<int> block_of_;
+  static std::size_t block_count_;
+};
+std::string SimulatedBlocks::dir_;
+SimulationOutputs SimulatedBlocks::outputs_;
+CalledGenotypes SimulatedBlocks::called_;
+std::vector<int> SimulatedBlocks::block_of_;
+std::size_t SimulatedBlocks::block_count_ = 0;
+
+TEST_F(SimulatedBlocks, BlocksCoverTheVariantsInOrder) {
+  ASSERT_EQ(outputs_.blocks_path, dir_ + "/blocks.blocks.bed");
+  const std::vector<BedGene> blocks = read_bed(outputs_.blocks_path);
+  for (std::size_t block_idx = 0; block_idx < blocks.size(); ++block_idx) {
+    char expected_name[32];
+    std::snprintf(expected_name, sizeof expected_name, "SRB%04zu", block_idx + 1);
+    EXPECT_EQ(blocks[block_idx].name, expected_name);
+  }
+  for (std::size_t variant_idx = 0; variant_idx < block_of_.size(); ++variant_idx) {
+    ASSERT_GE(block_of_[variant_idx], 0) << "variant " << variant_idx << " lies in a block";
+    if (variant_idx > 0) {
+      EXPECT_GE(block_of_[variant_idx], block_of_[variant_idx - 1]);
+    }
+  }
+  const double mean_variants = static_cast<double>(block_of_.size()) / static_cast<double>(block_count_);
+  EXPECT_GT(mean_variants, 12.0);  // asked for 20 on average
+  EXPECT_LT(mean_variants, 30.0);
+}
+
+TEST_F(SimulatedBlocks, NeighboursInABlockAreInLdAndBlocksAreNearlyIndependent) {
+  std::vector<double> within, across;
+  for (std::size_t variant_idx = 0; variant_idx + 1 < block_of_.size(); ++variant_idx) {
+    if (!called_.common[variant_idx] || !called_.common[variant_idx + 1]) continue;
+    if (called_.contig[variant_idx] != called_.contig[variant_idx + 1]) continue;
+    const double r2 = squared_correlation(called_.counts[variant_idx], called_.counts[variant_idx + 1]);
+    (block_of_[variant_idx] == block_of_[variant_idx + 1] ? within : across).push_back(r2);
+  }
+  // Pairs of common variants far apart: every 7th against the one 200 further on.
+  std::vector<double> distant;
+  for (std::size_t variant_idx = 0; variant_idx + 200 < block_of_.size(); variant_idx += 7) {
+    if (!called_.common[variant_idx] || !called_.common[variant_idx + 200]) continue;
+    distant.push_back(squared_correlation(called_.counts[variant_idx], called_.counts[variant_idx + 200]));
+  }
+  ASSERT_GT(within.size(), 200u);
+  ASSERT_GT(across.size(), 10u);
+  ASSERT_GT(distant.size(), 10u);
+  auto mean_of = [](const std::vector<double>& values) {
+    double total = 0;
+    for (double value : values) total += value;
+    return total / static_cast<double>(values.size());
+  };
+  std::vector<double> sorted_within = within;
+  std::sort(sorted_within.begin(), sorted_within.end());
+  const double median_within = sorted_within[sorted_within.size() / 2];
+  std::cout << "[ ld ] neighbours' r² within blocks: mean " << mean_of(within) << ", median " << median_within
+            << " (" << within.size() << " pairs); across a block boundary: mean " << mean_of(across) << " ("
+            << across.size() << "); 200 variants apart: mean " << mean_of(distant) << " (" << distant.size()
+            << ")\n";
+  EXPECT_GT(mean_of(within), 0.45);
+  EXPECT_GT(median_within, 0.7);
+  // Independent blocks: r² of about 1/n = 0.001 by chance, a little more
+  // from the founding groups' frequency differences.
+  EXPECT_LT(mean_of(across), 0.01);
+  EXPECT_LT(*std::max_element(across.begin(), across.end()), 0.05);
+  EXPECT_LT(mean_of(distant), 0.01);
+}
+
+TEST_F(SimulatedBlocks, LocusSignalsAreCausalAndInPartialLd) {
+  const std::vector<std::string> truth = lines_of(read_text_file(outputs_.truth_path));
+  // The locus's three signals come first, with the same effect.
+  std::vector<std::size_t> signals;
+  for (std::size_t line_idx = 1; line_idx <= 3; ++line_idx) {
+    const std::vector<std::string> fields = split_fields(truth.at(line_idx));
+    EXPECT_EQ(fields.at(0), "fev1_litres");
+    EXPECT_EQ(fields.at(3), split_fields(truth.at(1)).at(3)) << "the same effect";
+    for (std::size_t variant_idx = 0; variant_idx < called_.position.size(); ++variant_idx) {
+      if (called_.contig[variant_idx] == fields[1] && called_.position[variant_idx] == std::stoll(fields[2])) {
+        signals.push_back(variant_idx);
+      }
+    }
+  }
+  ASSERT_EQ(signals.size(), 3u);
+  for (std::size_t first = 0; first < 3; ++first) {
+    EXPECT_TRUE(called_.common[signals[first]]);
+    EXPECT_EQ(block_of_[signals[first]], block_of_[signals[0]]) << "one block";
+    for (std::size_t second = first + 1; second < 3; ++second) {
+      // r² = 0.336 by the haplotypes' frequencies, less the noise.
+      const double r2 = squared_correlation(called_.counts[signals[first]], called_.counts[signals[second]]);
+      std::cout << "[ ld ] r² between locus signals " << first + 1 << " and " << second + 1 << ": " << r2 << "\n";
+      EXPECT_GT(r2, 0.2);
+      EXPECT_LT(r2, 0.45);
+    }
+  }
+}
+
+TEST(SimulatedCohort, BlocksLeaveTheGenesAndTheirOptionsAreChecked) {
+  const std::string dir = make_temp_dir("simulate_block_options");
+  const SimulationOutputs plain = simulate(dir + "/plain", 5, 1000, 1200);
+  EXPECT_TRUE(plain.blocks_path.empty());
+  SimulationOptions options;
+  options.out_prefix = dir + "/blocks";
+  options.seed = 5;
+  options.samples = 1000;
+  options.variants = 1200;
+  options.haplotype_block_variants = 15;
+  const SimulationOutputs blocks = simulate_cohort(options);
+  EXPECT_EQ(read_text_file(plain.genes_path), read_text_file(blocks.genes_path));
+  EXPECT_NE(read_gzip_file(plain.vcf_path), read_gzip_file(blocks.vcf_path));
+
+  auto expect_refused = [&](int block_variants, int locus_signals, int causal, const std::string& option) {
+    SimulationOptions bad = options;
+    bad.out_prefix = dir + "/bad";
+    bad.haplotype_block_variants = block_variants;
+    bad.locus_signals = locus_signals;
+    bad.causal_per_trait = causal;
+    try {
+      simulate_cohort(bad);
+      ADD_FAILURE() << "blocks " << block_variants << ", locus signals " << locus_signals << " accepted";
+    } catch (const Error& error) {
+      EXPECT_EQ(error.code(), ExitCode::usage);
+      EXPECT_NE(std::string(error.what()).find(option), std::string::npos) << error.what();
+    }
+  };
+  expect_refused(-1, 0, 6, "--haplotype-blocks");
+  expect_refused(0, 2, 6, "--locus-signals needs --haplotype-blocks");
+  expect_refused(20, 4, 6, "--locus-signals");
+  expect_refused(20, 2, 0, "--locus-signals");
 }
 
 }  // namespace

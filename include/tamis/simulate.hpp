@@ -24,6 +24,17 @@
 // that without --causal-genes every other file is the same as before, and
 // with it the genotypes stay the same and only the traits and the truth
 // file change.
+//
+// With --haplotype-blocks N each chromosome is cut into haplotype blocks of
+// about N variants, written as PREFIX.blocks.bed (names SRB0001, ...):
+// founders carry a few haplotypes per block, so that neighbouring variants
+// are in linkage disequilibrium and variants of different blocks nearly
+// independent (src/simulate/haplotype_blocks.hpp). Without it the older,
+// weaker linkage between neighbouring common variants stays, and every file
+// is the same as before. --locus-signals K (1 to 3, with blocks) builds the
+// block around the first planted variant of fev1_litres so that K causal
+// variants in partial LD (r² about 0.3) act on the trait, all with its
+// effect; the other K - 1 follow it in the truth file.
 #pragma once
 
 #include <cstdint>
@@ -44,6 +55,8 @@ struct SimulationOptions {
   double family_share = 0.0;     // share of samples in families of 2 to 6 (--families)
   double heritability = 0.0;     // h² of a polygenic component of both traits (--heritability)
   int causal_genes = 0;          // genes with rare-variant effects on both traits (--causal-genes)
+  int haplotype_block_variants = 0;  // mean variants per haplotype block; 0: no blocks (--haplotype-blocks)
+  int locus_signals = 0;         // causal variants of fev1_litres at one locus in LD, 0 to 3 (--locus-signals)
 };
 
 struct SimulationOutputs {
@@ -52,6 +65,7 @@ struct SimulationOutputs {
   std::string truth_path;   // PREFIX.truth.tsv: the planted effects
   std::string families_path;  // PREFIX.families.tsv: each sample's family; empty without families
   std::string genes_path;     // PREFIX.genes.bed: the genes, for scan --sets
+  std::string blocks_path;    // PREFIX.blocks.bed: the haplotype blocks; empty without them
 };
 
 SimulationOutputs simulate_cohort(const SimulationOptions& options);

@@ -446,6 +446,14 @@ void add_simulate_command(CLI::App& app, SimulationOptions& options) {
                        "Genes of PREFIX.genes.bed whose rare variants (about half of them) carry effects on both "
                        "traits; they are named in the truth file's gene column")
       ->capture_default_str();
+  simulate->add_option("--haplotype-blocks", options.haplotype_block_variants,
+                       "Mean number of variants per haplotype block (linkage disequilibrium within blocks; "
+                       "PREFIX.blocks.bed); 0 keeps the weaker linkage of earlier versions")
+      ->capture_default_str();
+  simulate->add_option("--locus-signals", options.locus_signals,
+                       "With --haplotype-blocks: 1 to 3 causal variants of fev1_litres in partial LD "
+                       "(r² about 0.3) at the locus of its first planted variant")
+      ->capture_default_str();
 }
 
 struct ReportArguments {
@@ -666,6 +674,7 @@ int execute_simulate(const SimulationOptions& options) {
                outputs.table_path.c_str(), outputs.truth_path.c_str());
   if (!outputs.families_path.empty()) std::fprintf(stderr, "families: %s\n", outputs.families_path.c_str());
   std::fprintf(stderr, "genes: %s\n", outputs.genes_path.c_str());
+  if (!outputs.blocks_path.empty()) std::fprintf(stderr, "haplotype blocks: %s\n", outputs.blocks_path.c_str());
   return 0;
 }
 

@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "genes.hpp"
+#include "haplotype_blocks.hpp"
 #include "people.hpp"
 #include "polygenic.hpp"
 #include "random.hpp"
@@ -19,6 +20,7 @@ namespace tamis {
 namespace {
 
 using simulation::Cohort;
+using simulation::HaplotypeBlocks;
 using simulation::kVillages;
 using simulation::Person;
 using simulation::Random;
@@ -241,11 +243,24 @@ class GeneEffects {
   std::vector<double> directions_;
 };
 
+// --haplotype-blocks: a founder's alleles come from the haplotypes of the
+// variant's block; a triallelic record's second ALT replaces some REF alleles
+// as without blocks.
+void draw_block_alleles(const HaplotypeBlocks& blocks, const VariantDesign& design, double ancestry, Random& random,
+                        std::array<int, 2>& haplotypes, int* alleles) {
+  blocks.draw_founder_alleles(ancestry, random, haplotypes, alleles);
+  if (!design.triallelic) return;
+  for (int copy_idx = 0; copy_idx < 2; ++copy_idx) {
+    if (alleles[copy_idx] == 0 && random.bernoulli(design.second_alt_frequency)) alleles[copy_idx] = 2;
+  }
+}
+
 // Writes the VCF record by record; keeps the genotypes of the planted variants
 // (and of the chosen genes' carriers in `carriers`, with `gene_effects`).
 // People are visited parents first, so that children inherit this variant's alleles.
+// With `blocks` (--haplotype-blocks) founders draw from the blocks' haplotypes.
 void write_genotypes(const SimulationOptions& options, const Cohort& cohort, const VariantPositions& variant_positions,
-                     std::vector<CausalVariant>& causal, GeneEffects* gene_effects,
+                     std::vector<CausalVariant>& causal, GeneEffects* gene_effects, HaplotypeBlocks* blocks,
                      std::vector<CausalVariant>& carriers, Random& random, const std::string& path) {
   const std::vector<Person>& people = cohort.people;
   const std::vector<std::int64_t>& contig_lengths = variant_positions.contig_lengths;
@@ -254,6 +269,7 @@ void write_genotypes(const SimulationOptions& options, const Cohort& cohort, con
   BgzfTextFile vcf(path);
   vcf.write(vcf_header(options, cohort, contig_lengths));
   std::vector<std::array<std::uint8_t, 2>> passed_on(people.size());
+  std::vector<std::array<int, 2>> founder_haplotypes(blocks ? people.size() : 0);
   std::string line;
   std::size_t variant_idx = 0;
   for (std::size_t contig = 0; contig < positions.size(); ++contig) {
@@ -278,6 +294,10 @@ void write_genotypes(const SimulationOptions& options, const Cohort& cohort, con
         carrier->chromosome = std::to_string(contig + 1);
         carrier->position = position;
       }
+      if (blocks) {
+        const double rare_frequency = 0.5 * (design.frequency_a + design.frequency_b);
+        blocks->start_variant(variant_idx, design.rare, rare_frequency, planted != nullptr);
+      }
       // Neighbouring common variants share haplotypes, so that associations
       // show as peaks of several variants in linkage disequilibrium.
       const bool common = !design.triallelic && design.frequency_a > 0.05 && design.frequency_b > 0.05;
@@ -295,9 +315,12 @@ void write_genotypes(const SimulationOptions& options, const Cohort& cohort, con
       for (std::size_t person_idx = 0; person_idx < people.size(); ++person_idx) {
         const Person& person = people[person_idx];
         const double frequency =
-            person.ancestry * design.frequency_a + (1.0 - person.ancestry) * design.frequency_b;
+            blocks ? blocks->expected_frequency(person.ancestry)
+                   : person.ancestry * design.frequency_a + (1.0 - person.ancestry) * design.frequency_b;
         int* alleles = haplotypes[person_idx].data();
-        if (person.is_founder()) {
+        if (person.is_founder() && blocks) {
+          draw_block_alleles(*blocks, design, person.ancestry, random, founder_haplotypes[person_idx], alleles);
+        } else if (person.is_founder()) {
           draw_founder_alleles(design, frequency, linked, random, alleles);
         } else {
           inherit_alleles(person, haplotypes, contig_start, random, passed_on[person_idx], alleles);
@@ -430,6 +453,39 @@ void write_truth(const std::vector<CausalVariant>& causal, bool with_genes, cons
   truth.commit();
 }
 
+// --locus-signals K: the block around the first planted variant of
+// fev1_litres, and K - 1 more planted variants of fev1_litres in it, with the
+// same effect, listed after it in the truth file.
+simulation::SignalLocus plant_signal_locus(const SimulationOptions& options, const VariantPositions& positions,
+                                           std::vector<CausalVariant>& causal) {
+  if (options.locus_signals == 0) return {};
+  const std::size_t anchor = causal.front().variant_idx;
+  std::size_t contig_first = 0, contig = 0;
+  while (anchor >= contig_first + positions.of_contig[contig].size()) {
+    contig_first += positions.of_contig[contig++].size();
+  }
+  simulation::SignalLocus locus =
+      simulation::place_signal_locus(anchor, options.locus_signals, contig_first, positions.of_contig[contig].size());
+  bool collides = locus.signal_variants.empty();
+  for (std::size_t signal_idx = 1; signal_idx < locus.signal_variants.size(); ++signal_idx) {
+    collides = collides || find_causal(causal, locus.signal_variants[signal_idx]) != nullptr;
+  }
+  if (collides) {
+    throw Error(ExitCode::usage, "tamis simulate",
+                "--locus-signals: the chromosome of the first planted variant of fev1_litres is too short for a "
+                "locus of 25 variants around it, apart from the other planted variants",
+                "ask for more --variants or fewer --chromosomes");
+  }
+  std::vector<CausalVariant> signals;
+  for (std::size_t signal_idx = 1; signal_idx < locus.signal_variants.size(); ++signal_idx) {
+    CausalVariant signal = causal.front();
+    signal.variant_idx = locus.signal_variants[signal_idx];
+    signals.push_back(signal);
+  }
+  causal.insert(causal.begin() + 1, signals.begin(), signals.end());
+  return locus;
+}
+
 void check_options(const SimulationOptions& options) {
   auto refuse = [](const std::string& what, const std::string& fix) {
     throw Error(ExitCode::usage, "tamis simulate", what, fix);
@@ -450,6 +506,20 @@ void check_options(const SimulationOptions& options) {
     refuse("--heritability must lie in [0, 1)", "for example 0.6");
   }
   if (options.causal_genes < 0) refuse("--causal-genes must be 0 or more", "for example 5");
+  if (options.haplotype_block_variants < 0) {
+    refuse("--haplotype-blocks must be 0 (no blocks) or more",
+           "give the mean number of variants per block, for example 20");
+  }
+  if (options.locus_signals < 0 || options.locus_signals > 3) {
+    refuse("--locus-signals must be 0 to 3", "for example 2");
+  }
+  if (options.locus_signals > 0 && options.haplotype_block_variants == 0) {
+    refuse("--locus-signals needs --haplotype-blocks", "add --haplotype-blocks 20, for example");
+  }
+  if (options.locus_signals > 0 && options.causal_per_trait == 0) {
+    refuse("--locus-signals needs a planted variant of fev1_litres to build the locus around",
+           "drop --causal 0");
+  }
 }
 
 }  // namespace
@@ -475,9 +545,16 @@ SimulationOutputs simulate_cohort(const SimulationOptions& options) {
     gene_effects.emplace(genes, simulation::choose_causal_genes(genes.size(), options.causal_genes, options.seed),
                          static_cast<std::size_t>(options.variants), options.seed);
   }
+  std::optional<HaplotypeBlocks> blocks;
+  if (options.haplotype_block_variants > 0) {
+    const simulation::SignalLocus locus = plant_signal_locus(options, positions, causal);
+    blocks.emplace(positions.of_contig, options.haplotype_block_variants, locus, options.seed);
+    outputs.blocks_path = options.out_prefix + ".blocks.bed";
+  }
   std::vector<CausalVariant> carriers;
-  write_genotypes(options, cohort, positions, causal, gene_effects ? &*gene_effects : nullptr, carriers, random,
-                  outputs.vcf_path);
+  write_genotypes(options, cohort, positions, causal, gene_effects ? &*gene_effects : nullptr,
+                  blocks ? &*blocks : nullptr, carriers, random, outputs.vcf_path);
+  if (blocks) blocks->write_bed(positions.of_contig, outputs.blocks_path);
   GeneEffects::add_trait_effects(carriers, causal);
   simulation::write_gene_bed(genes, positions.of_contig, outputs.genes_path);
   const std::vector<std::array<double, 2>> genetic_values =
