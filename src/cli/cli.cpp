@@ -482,6 +482,51 @@ void add_report_command(CLI::App& app, ReportArguments& arguments) {
   report->add_option("--top-sets", options.top_sets,
                      "Variant sets of smallest overall p listed per trait (OUT.top_sets.tsv and the page)")
       ->capture_default_str();
+  RegionalPlotOptions& regional = options.regional;
+  report->add_option("--genotypes", regional.genotype_paths,
+                     "The scan's genotype files, indexed (.tbi/.csi): each lead locus then gets a regional plot, "
+                     "its variants coloured by LD r^2 with the lead on the trait's analysis samples")
+      ->expected(1, -1);
+  report->add_option("--traits", regional.traits_path, "With --genotypes: the scan's trait and covariate table");
+  report->add_option("--sample-column", regional.table.sample_column, "Sample ID column (default: the first)");
+  report->add_option("--missing-tokens", arguments.missing_tokens,
+                     "Comma-separated tokens that mean missing in the table (as given to the scan)");
+  report->add_option("--covariates", arguments.covariates,
+                     "The scan's covariates, comma-separated (default: those each results file's sidecar lists)");
+  report->add_option("--keep-samples", regional.keep_samples_path, "The scan's --keep-samples list");
+  report->add_option("--drop-samples", regional.drop_samples_path, "The scan's --drop-samples list");
+  report->add_option("--dosage-from", arguments.dosage_from, "auto, DS, GP or GT (as given to the scan)")
+      ->capture_default_str();
+  report->add_option("--haploid-dosage", regional.haploid_dosage, "1 or 2 (as given to the scan)")
+      ->capture_default_str();
+  report->add_option("--regional-plots", regional.plots_per_trait,
+                     "Lead loci per trait given a regional plot, most significant first")
+      ->capture_default_str();
+  report->add_option("--signals-from", regional.signals_prefix,
+                     "The --out prefix of tamis signals: marks other signals' leads and credible-set members "
+                     "(PREFIX.TRAIT.signals.tsv, PREFIX.TRAIT.credible.tsv) on the regional plots");
+}
+
+void check_regional_options(ReportArguments& arguments) {
+  RegionalPlotOptions& regional = arguments.options.regional;
+  for (const std::string& path : regional.genotype_paths) check_readable("--genotypes", path);
+  if (!regional.traits_path.empty()) check_readable("--traits", regional.traits_path);
+  if (!regional.keep_samples_path.empty()) check_readable("--keep-samples", regional.keep_samples_path);
+  if (!regional.drop_samples_path.empty()) check_readable("--drop-samples", regional.drop_samples_path);
+  regional.dosage_field = parse_dosage_field(arguments.dosage_from);
+  if (regional.haploid_dosage != 1 && regional.haploid_dosage != 2) {
+    refuse_option("--haploid-dosage", "must be 1 or 2", "1 counts a haploid ALT call as one copy, 2 as two");
+  }
+  if (!arguments.covariates.empty()) regional.covariates = split_list(arguments.covariates);
+  if (!arguments.missing_tokens.empty()) {
+    regional.table.missing_tokens = split_list(arguments.missing_tokens);
+    regional.table.missing_tokens.push_back("");
+  }
+  if (regional.genotype_paths.empty() && (!regional.traits_path.empty() || !regional.signals_prefix.empty())) {
+    refuse_option(regional.signals_prefix.empty() ? "--traits" : "--signals-from",
+                  "is for the regional plots, which need --genotypes",
+                  "give the genotype files the scan read, or leave the option out");
+  }
 }
 
 int execute_report(ReportArguments arguments) {
@@ -490,6 +535,7 @@ int execute_report(ReportArguments arguments) {
   }
   arguments.options.locus_radius = static_cast<std::int64_t>(std::llround(arguments.locus_radius_kb * 1000.0));
   for (const std::string& path : arguments.options.results) check_readable("--results", path);
+  check_regional_options(arguments);
   const ReportSummary summary = run_report(arguments.options);
   for (const TraitReport& trait : summary.traits) {
     std::fprintf(stderr, "%s: %zu variants, lambda_gc %.4f, %zu lead loci\n", trait.trait.c_str(), trait.n_variants,
@@ -498,6 +544,7 @@ int execute_report(ReportArguments arguments) {
       std::fprintf(stderr, "%s: %zu variant sets, lambda of overall p %.4f\n", trait.trait.c_str(), trait.n_sets,
                    trait.set_lambda);
     }
+    if (trait.regional_plots > 0) std::fprintf(stderr, "%s: %zu regional plots\n", trait.trait.c_str(), trait.regional_plots);
   }
   for (const std::string& path : summary.written_files) std::fprintf(stderr, "wrote %s\n", path.c_str());
   return 0;

@@ -30,6 +30,7 @@ td.number { text-align: right; white-space: nowrap; }
 .plots { display: flex; flex-wrap: wrap; gap: 16px; align-items: flex-start; }
 .plots img.manhattan { width: 100%; max-width: 1800px; height: auto; }
 .plots img.qq { width: 520px; max-width: 100%; height: auto; }
+.plots img.regional { width: 880px; max-width: 100%; height: auto; }
 pre { background: #f3f1ea; border: 1px solid #e0dccf; padding: 10px 12px; font-size: 12px;
       overflow-x: auto; white-space: pre-wrap; }
 )";
@@ -127,6 +128,21 @@ std::string set_section(const std::string& trait, const SetSection& sets) {
   html += png_image(sets.qq_png, "qq sets", "QQ plot of the variant sets' overall p of " + trait);
   html += "</div>\n<h3>Top variant sets</h3>\n" + top_sets_table(sets);
   return html;
+}
+
+std::string regional_section(const TraitSection& section) {
+  if (section.regional.empty()) return "";
+  std::string html = "<h3>Regional plots</h3>\n<p class=\"note\">The " + std::to_string(section.regional.size()) +
+                     " most significant lead loci. Each variant is coloured by its LD r\u00b2 with the lead, "
+                     "the squared correlation of their dosages over this trait's analysis samples (missing "
+                     "dosages replaced by the variant's mean); hollow grey circles: variants not found in the "
+                     "genotype files or without variation. The report's locus_ld.tsv lists every value.";
+  if (!section.regional_note.empty()) html += " " + escape_html(section.regional_note);
+  html += "</p>\n<div class=\"plots\">\n";
+  for (const RegionalEntry& entry : section.regional) {
+    html += png_image(entry.png, "regional", "Regional plot of " + section.trait + ", " + entry.description);
+  }
+  return html + "</div>\n";
 }
 
 std::string log_section(const PageContent& page) {
@@ -232,7 +248,8 @@ std::string compose_html_page(const PageContent& page) {
   html += "<p class=\"note\">Lead loci: p &lt; " + format_p_threshold(page.lead_threshold) +
           ", each lead taking the variants within " + format_distance(page.locus_radius) +
           " of it on its chromosome. Lines on the Manhattan plots: p = 5e-8 (genome-wide) and 1e-5 "
-          "(suggestive).</p>\n";
+          "(suggestive). These are statistical associations; any clinical or diagnostic use goes through "
+          "qualified review and local rules.</p>\n";
   html += "<h2>Summary</h2>\n" + summary_table(page);
   for (const TraitSection& section : page.sections) {
     html += "<h2>" + escape_html(section.trait) + "</h2>\n";
@@ -240,6 +257,7 @@ std::string compose_html_page(const PageContent& page) {
     html += png_image(section.manhattan_png, "manhattan", "Manhattan plot of " + section.trait);
     html += png_image(section.qq_png, "qq", "QQ plot of " + section.trait);
     html += "</div>\n<h3>Lead loci</h3>\n" + loci_table(section);
+    html += regional_section(section);
     if (section.sets) html += set_section(section.trait, *section.sets);
   }
   html += log_section(page);

@@ -29,6 +29,12 @@ struct SetSection {
   std::string line_text;    // the Bonferroni p drawn on the plot
 };
 
+// One regional plot, inlined under the trait's lead loci.
+struct RegionalEntry {
+  std::string png;          // read back and inlined
+  std::string description;  // its alt text: "locus 1, lead rs123"
+};
+
 struct TraitSection {
   std::string trait, results_path, log_path;
   std::string manhattan_png, qq_png;     // read back and inlined
@@ -36,6 +42,8 @@ struct TraitSection {
   std::vector<LocusRow> loci;            // the most significant, up to the page limit
   std::size_t n_loci_total = 0;
   std::optional<SetSection> sets;
+  std::vector<RegionalEntry> regional;  // empty without genotype files, or without lead loci
+  std::string regional_note;            // where the signal marks came from, or that none were found
 };
 
 struct PageContent {

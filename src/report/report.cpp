@@ -7,14 +7,19 @@
 #include <fstream>
 #include <limits>
 #include <map>
+#include <optional>
 #include <set>
 
 #include "report/html_page.hpp"
 #include "report/lead_loci.hpp"
+#include "report/locus_ld.hpp"
 #include "report/manhattan_plot.hpp"
 #include "report/qq_plot.hpp"
+#include "report/regional_plot.hpp"
 #include "report/set_results.hpp"
+#include "report/signal_marks.hpp"
 #include "report/trait_results.hpp"
+#include "scan/sample_lists.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/results_writer.hpp"
 
@@ -40,6 +45,15 @@ void check_options(const ReportOptions& options) {
     throw Error(ExitCode::usage, "", "no output prefix was given", "name one, for example results/cohort.report");
   }
   check_output_prefix_writable(options.out_prefix);
+  const RegionalPlotOptions& regional = options.regional;
+  if (!regional.genotype_paths.empty() && regional.traits_path.empty()) {
+    throw Error(ExitCode::usage, "", "regional plots need the trait table as well as the genotype files",
+                "give the scan's trait table (and its covariates and sample lists, if it had any)");
+  }
+  if (regional.genotype_paths.empty() && !regional.signals_prefix.empty()) {
+    throw Error(ExitCode::usage, "", "signals and credible sets are marked on the regional plots, which need the "
+                "genotype files", "give the genotype files and trait table the scan read");
+  }
 }
 
 // Trait names become parts of file names; anything but letters, digits, '.',
@@ -201,6 +215,110 @@ report::SetSection report_sets(const ReportOptions& options, const std::string& 
   return section;
 }
 
+// What every trait's regional plots share: the genotype files, their
+// samples, the trait table and the samples the lists leave out.
+struct RegionalContext {
+  explicit RegionalContext(const RegionalPlotOptions& regional)
+      : options(regional), table(TraitTable::load(regional.traits_path, regional.table)) {
+    genotypes.paths = regional.genotype_paths;
+    genotypes.field = regional.dosage_field;
+    genotypes.haploid_dosage = regional.haploid_dosage;
+    genotype_samples = GenotypeReader(genotypes).sample_ids();
+    excluded = excluded_samples(regional.keep_samples_path, regional.drop_samples_path, genotype_samples);
+  }
+
+  const RegionalPlotOptions& options;
+  GenotypeReaderOptions genotypes;
+  std::vector<std::string> genotype_samples;
+  std::vector<bool> excluded;
+  TraitTable table;
+};
+
+std::vector<std::string> covariates_for(const RegionalPlotOptions& options, const std::string& results_path) {
+  if (options.covariates) return *options.covariates;
+  const std::string sidecar = results_path + "-meta.yaml";
+  if (!file_exists(sidecar)) return {};
+  return read_metadata_sidecar(sidecar).adjusted_covariates;
+}
+
+// The trait's analysis samples as the scan chose them, in the genotype files' order.
+std::vector<std::size_t> analysis_samples_of(const RegionalContext& context, const report::TraitResults& results) {
+  AnalysisRequest request;
+  request.trait = results.trait;
+  request.covariates = covariates_for(context.options, results.source_path);
+  request.excluded_samples = context.excluded;
+  return build_analysis_set(context.table, context.genotype_samples, request).genotype_index;
+}
+
+// A lead tested on other samples than these means the inputs differ from
+// the scan's, and r^2 would describe another group of people.
+void check_sample_count(const report::TraitResults& results, const report::LocusWindow& window, std::size_t count) {
+  if (window.lead_sample_count == count) return;
+  throw Error(ExitCode::usage, results.source_path + " (" + window.lead_variant_id + ")",
+              "the scan tested trait " + results.trait + " on " + std::to_string(window.lead_sample_count) +
+                  " samples (column n), but the trait table, covariates and sample lists given here leave " +
+                  std::to_string(count),
+              "give the trait table, covariates and sample lists the scan was given");
+}
+
+std::string format_r_squared(double r_squared) { return format_number(r_squared, "%.12g"); }
+
+std::string ld_lines(const std::string& trait, const report::LocusWindow& window) {
+  std::string text;
+  for (const report::WindowVariant& variant : window.variants) {
+    text += trait + '\t' + std::to_string(window.rank) + '\t' + window.lead_variant_id + '\t' + window.chromosome +
+            '\t' + std::to_string(variant.position) + '\t' + variant.variant_id + '\t' +
+            format_number(variant.neg_log_10_p, "%.6g") + '\t' + format_r_squared(variant.r_squared) + '\n';
+  }
+  return text;
+}
+
+std::string regional_note(const std::string& signals_prefix, const std::string& trait,
+                          const report::SignalMarks& marks) {
+  if (signals_prefix.empty()) return "";
+  if (marks.empty()) {
+    return "No signals marked: neither " + report::signals_file_path(signals_prefix, trait) + " nor " +
+           report::credible_file_path(signals_prefix, trait) + " exists.";
+  }
+  std::string note = "Marked from";
+  if (!marks.signals_path.empty()) note += " " + marks.signals_path + " (other signals' leads)";
+  if (!marks.credible_path.empty()) {
+    note += std::string(marks.signals_path.empty() ? "" : " and") + " " + marks.credible_path + " (credible sets)";
+  }
+  return note + ".";
+}
+
+// The regional plots of one trait's most significant lead loci.
+void report_regional(const RegionalContext& context, const report::TraitResults& results,
+                     const std::vector<report::LeadLocus>& leads, std::int64_t radius, const std::string& stem,
+                     TraitReport& trait, report::TraitSection& section, std::string& ld_text,
+                     ReportSummary& summary) {
+  std::vector<report::LocusWindow> windows =
+      report::make_locus_windows(results, leads, radius, context.options.plots_per_trait);
+  if (windows.empty()) return;
+  report::collect_window_rows(results.source_path, windows);
+  const std::vector<std::size_t> samples = analysis_samples_of(context, results);
+  report::SignalMarks marks;
+  if (!context.options.signals_prefix.empty()) marks = report::load_signal_marks(context.options.signals_prefix, results.trait);
+  report::RegionalFacts facts;
+  facts.trait = results.trait;
+  facts.analysis_samples = samples.size();
+  facts.marks = marks.empty() ? nullptr : &marks;
+
+  section.regional_note = regional_note(context.options.signals_prefix, results.trait, marks);
+  for (report::LocusWindow& window : windows) {
+    check_sample_count(results, window, samples.size());
+    report::measure_window_ld(context.genotypes, samples, window);
+    const std::string name = stem + ".locus-" + std::to_string(window.rank);
+    report::render_regional(window, facts, name + ".png", name + ".svg");
+    summary.written_files.push_back(name + ".png");
+    summary.written_files.push_back(name + ".svg");
+    ld_text += ld_lines(results.trait, window);
+    section.regional.push_back({name + ".png", "locus " + std::to_string(window.rank) + ", lead " + window.lead_name});
+  }
+  trait.regional_plots = section.regional.size();
+}
+
 }  // namespace
 
 ReportSummary run_report(const ReportOptions& options) {
@@ -216,7 +334,11 @@ ReportSummary run_report(const ReportOptions& options) {
   std::string top_sets_text =
       "trait\tset\tchromosome\tstart\tend\tn_variants\ttotal_mac\tburden_p\tvariance_p\toptimal_p\tcauchy_p\t"
       "overall_p\ttop_variant\n";
+  std::string ld_text =
+      "trait\tlocus\tlead_variant_id\tchromosome\tbase_pair_location\tvariant_id\tneg_log_10_p_value\tr2_with_lead\n";
   std::set<std::string> used_stems;
+  std::optional<RegionalContext> regional;
+  if (!options.regional.genotype_paths.empty()) regional.emplace(options.regional);
 
   for (const std::string& path : inputs.results) {
     report::TraitResults results = report::load_trait_results(path, options.lead_threshold);
@@ -266,6 +388,9 @@ ReportSummary run_report(const ReportOptions& options) {
     if (set_path != inputs.sets_of.end()) {
       section.sets = report_sets(options, results.trait, set_path->second, stem, trait, top_sets_text, summary);
     }
+    if (regional) {
+      report_regional(*regional, results, leads, options.locus_radius, stem, trait, section, ld_text, summary);
+    }
     page.sections.push_back(std::move(section));
     summary.traits.push_back(trait);
   }
@@ -273,6 +398,7 @@ ReportSummary run_report(const ReportOptions& options) {
   write_text(options.out_prefix + ".summary.tsv", summary_text, summary);
   write_text(options.out_prefix + ".loci.tsv", loci_text, summary);
   if (!inputs.sets_of.empty()) write_text(options.out_prefix + ".top_sets.tsv", top_sets_text, summary);
+  if (regional) write_text(options.out_prefix + ".locus_ld.tsv", ld_text, summary);
   page.lead_threshold = options.lead_threshold;
   page.locus_radius = options.locus_radius;
   write_text(options.out_prefix + ".html", report::compose_html_page(page), summary);
