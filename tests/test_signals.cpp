@@ -5,10 +5,14 @@
 #include <gtest/gtest.h>
 
 #include <cmath>
+#include <algorithm>
 #include <cstdio>
+#include <map>
 #include <random>
 
+#include "scan/conditioning.hpp"
 #include "scan/signal_selection.hpp"
+#include "tamis/errors.hpp"
 #include "support/test_support.hpp"
 
 namespace tamis {
@@ -151,6 +155,162 @@ TEST(SignalSelection, RecoversTwoSignalsOfABinaryTrait) {
 TEST(SignalSelection, NoSignalWhereNothingIsPlanted) {
   const RecoveryFigures figures = run_replicates(TraitKind::quantitative, {}, 0.0, 20, 1705);
   EXPECT_EQ(figures.right_count, figures.replicates);
+}
+
+TEST(Conditioning, RefusesAVariantConstantInTheAnalysisSamples) {
+  AnalysisSet set;
+  set.trait = "fev1_litres";
+  set.genotype_index = {0, 2, 3};
+  set.design = Eigen::MatrixXd::Ones(3, 1);
+  set.design_names = {"intercept"};
+  // Sample 1, outside the analysis set, is the only carrier; sample 3 is missing.
+  const ConditionVariant variant{"rs_cond", "1:100:A:G", {0.0, 1.0, 0.0, NAN}};
+  try {
+    add_condition_columns({variant}, set);
+    FAIL() << "a constant conditioning variant was taken";
+  } catch (const Error& error) {
+    EXPECT_EQ(error.code(), ExitCode::model);
+    EXPECT_NE(error.where().find("rs_cond"), std::string::npos) << error.where();
+    EXPECT_NE(error.problem().find("does not vary"), std::string::npos) << error.problem();
+  }
+}
+
+TEST(Conditioning, ImputesMissingDosagesWithTheAnalysisSamplesMean) {
+  AnalysisSet set;
+  set.trait = "fev1_litres";
+  set.genotype_index = {0, 2, 3};
+  set.design = Eigen::MatrixXd::Ones(3, 1);
+  set.design_names = {"intercept"};
+  const ConditionVariant variant{"1:100:A:G", "1:100:A:G", {2.0, 5.0, 1.0, NAN}};
+  add_condition_columns({variant}, set);
+  ASSERT_EQ(set.design.cols(), 2);
+  EXPECT_EQ(set.design(0, 1), 2.0);
+  EXPECT_EQ(set.design(1, 1), 1.0);
+  EXPECT_EQ(set.design(2, 1), 1.5);  // the mean of 2 and 1; sample 1 (5.0) is not analysed
+  EXPECT_EQ(set.design_names.back(), "condition 1:100:A:G");
+}
+
+// `tamis signals` on a small simulated cohort.
+class SignalsEndToEnd : public ::testing::Test {
+ protected:
+  static void SetUpTestSuite() {
+    dir_ = new std::string(testing::make_temp_dir("signals_end_to_end"));
+    const std::string& dir = *dir_;
+    ASSERT_EQ(testing::run_command(testing::tamis_binary() + " simulate --out " + dir +
+                                   "/cohort --samples 600 --variants 500 --chromosomes 1 --seed 11 2>/dev/null"),
+              0);
+    ASSERT_EQ(testing::run_command(testing::tamis_binary() + " scan --genotypes " + dir + "/cohort.vcf.gz --traits " +
+                                   dir + "/cohort.traits.tsv --trait fev1_litres --covariates age,sex --out " + dir +
+                                   "/scan --quiet --threads 2"),
+              0);
+    // The strongest variant as a loci file `report` would write it.
+    std::string best_line;
+    double best = -1.0;
+    const std::string results = testing::read_gzip_file(dir + "/scan.fev1_litres.tsv.gz");
+    const std::vector<std::string> header = testing::split_fields(testing::lines_of(results)[0]);
+    const auto column = [&](const std::string& name) {
+      return static_cast<std::size_t>(std::find(header.begin(), header.end(), name) - header.begin());
+    };
+    for (const auto& row : testing::data_rows(results)) {
+      const double strength = std::stod(row[column("neg_log_10_p_value")]);
+      if (strength > best) {
+        best = strength;
+        best_line = "fev1_litres\t" + row[column("chromosome")] + "\t" + row[column("base_pair_location")] + "\t" +
+                    row[column("variant_id")] + "\t#NA\t1e-6\t6\t0.1\t" + row[column("base_pair_location")] + "\t" +
+                    row[column("base_pair_location")] + "\t1\n";
+      }
+    }
+    testing::write_text_file(dir + "/cohort.loci.tsv", std::string(kLociHeader) + best_line);
+  }
+  static void TearDownTestSuite() { delete dir_; }
+
+  static std::string signals_command(const std::string& out, int threads, const std::string& extra) {
+    const std::string& dir = *dir_;
+    return testing::tamis_binary() + " signals --genotypes " + dir + "/cohort.vcf.gz --traits " + dir +
+           "/cohort.traits.tsv --covariates age,sex --quiet --select-below 1e-3 --out " + dir + "/" + out +
+           " --threads " + std::to_string(threads) + " " + extra;
+  }
+
+  static constexpr const char* kLociHeader =
+      "trait\tchromosome\tlead_position\tlead_variant_id\tlead_rsid\tp_value\tneg_log_10_p_value\tbeta\t"
+      "span_start\tspan_end\tn_variants\n";
+  static std::string* dir_;
+};
+std::string* SignalsEndToEnd::dir_ = nullptr;
+
+TEST_F(SignalsEndToEnd, SameBytesAtOneAndFourThreads) {
+  const std::string& dir = *dir_;
+  for (const std::string& inputs : {std::string("--trait fev1_litres --loci ") + dir + "/cohort.loci.tsv",
+                                    std::string("--trait fev1_litres --trait winter_wheeze --region 1:1-3000000")}) {
+    ASSERT_EQ(testing::run_command(signals_command("one", 1, inputs)), 0) << inputs;
+    ASSERT_EQ(testing::run_command(signals_command("four", 4, inputs)), 0) << inputs;
+    for (const char* file : {".fev1_litres.signals.tsv", ".fev1_litres.credible.tsv"}) {
+      const std::string one = testing::read_text_file(dir + "/one" + file);
+      EXPECT_EQ(one, testing::read_text_file(dir + "/four" + file)) << file;
+      EXPECT_GT(testing::lines_of(one).size(), 1u) << file << " holds no rows";
+    }
+  }
+  const std::string signals = testing::read_text_file(dir + "/one.fev1_litres.signals.tsv");
+  EXPECT_EQ(testing::lines_of(signals)[0],
+            "signal\tlocus\tchromosome\tbase_pair_location\tvariant_id\teffect_allele\tother_allele\tjoint_beta\t"
+            "joint_standard_error\tjoint_wald_p\tjoint_lr_p\tconditional_beta\tconditional_standard_error\t"
+            "conditional_p\tcredible_95_size\tcredible_99_size\tselection_order\tselection_p\tjoint_refit\t"
+            "window_variants");
+  const std::string credible = testing::read_text_file(dir + "/one.fev1_litres.credible.tsv");
+  EXPECT_EQ(testing::lines_of(credible)[0],
+            "signal\tchromosome\tbase_pair_location\tvariant_id\tpip\tin_95\tin_99\tlog10_bayes_factor\t"
+            "conditional_beta\tconditional_standard_error\tconditional_p");
+  // Each signal's PIPs over its window sum to 1.
+  std::map<std::string, double> pip_sums;
+  for (const auto& row : testing::data_rows(credible)) pip_sums[row[0]] += std::stod(row[4]);
+  for (const auto& [signal, sum] : pip_sums) EXPECT_NEAR(sum, 1.0, 1e-6) << signal;
+}
+
+TEST_F(SignalsEndToEnd, BadInputsGetClearErrors) {
+  const std::string& dir = *dir_;
+  int code = 0;
+  std::string said = testing::capture_command(
+      signals_command("bad", 1, "--trait fev1_litres --region 1:1-1000 --loci " + dir + "/cohort.loci.tsv") + " 2>&1",
+      &code);
+  EXPECT_EQ(code, 2) << said;
+  EXPECT_NE(said.find("either --loci or --region"), std::string::npos) << said;
+
+  testing::write_text_file(dir + "/wrong.loci.tsv", std::string(kLociHeader) +
+                                                        "fev1_litres\t1\t5000\t1_5000_A_G\t#NA\t1e-9\t9\t0.1\t5000\t5000\t1\n");
+  said = testing::capture_command(signals_command("bad", 1, "--trait fev1_litres --loci " + dir + "/wrong.loci.tsv") +
+                                      " 2>&1",
+                                  &code);
+  EXPECT_EQ(code, 4) << said;
+  EXPECT_NE(said.find("1_5000_A_G"), std::string::npos) << said;
+
+  testing::write_text_file(dir + "/cut.loci.tsv", "trait\tchromosome\n");
+  said = testing::capture_command(signals_command("bad", 1, "--trait fev1_litres --loci " + dir + "/cut.loci.tsv") +
+                                      " 2>&1",
+                                  &code);
+  EXPECT_EQ(code, 7) << said;
+  EXPECT_NE(said.find("lead_position"), std::string::npos) << said;
+
+  said = testing::capture_command(
+      signals_command("bad", 1, "--trait fev1_litres --region 1:1-100000 --condition-on 1:999:A:C") + " 2>&1", &code);
+  EXPECT_EQ(code, 4) << said;
+  EXPECT_NE(said.find("1:999:A:C"), std::string::npos) << said;
+  EXPECT_FALSE(testing::file_exists(dir + "/bad.fev1_litres.signals.tsv"));
+}
+
+TEST_F(SignalsEndToEnd, ScanRefusesAMultiAllelicRecordNamedByItsId) {
+  const std::string& dir = *dir_;
+  // The ID of the first record with two ALT alleles.
+  const std::string id = testing::capture_command("zcat " + dir + "/cohort.vcf.gz | awk '!/^#/ && $5 ~ /,/ && $3 != \".\" {print $3; exit}'");
+  ASSERT_FALSE(id.empty());
+  int code = 0;
+  const std::string said = testing::capture_command(
+      testing::tamis_binary() + " scan --genotypes " + dir + "/cohort.vcf.gz --traits " + dir +
+          "/cohort.traits.tsv --trait fev1_litres --quiet --out " + dir + "/multi --condition-on " +
+          id.substr(0, id.find('\n')) + " 2>&1",
+      &code);
+  EXPECT_EQ(code, 4) << said;
+  EXPECT_NE(said.find("ALT alleles"), std::string::npos) << said;
+  EXPECT_NE(said.find("name the allele"), std::string::npos) << said;
 }
 
 }  // namespace
