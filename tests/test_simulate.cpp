@@ -240,7 +240,7 @@ double squared_correlation(const std::vector<int>& first, const std::vector<int>
   return cross * cross / (square_first * square_second);
 }
 
-SimulationOutputs simulate_blocks(const std::string& prefix, int locus_signals) {
+SimulationOptions block_options(const std::string& prefix, int locus_signals) {
   SimulationOptions options;
   options.out_prefix = prefix;
   options.seed = 5;
@@ -249,14 +249,14 @@ SimulationOutputs simulate_blocks(const std::string& prefix, int locus_signals) 
   options.chromosomes = 2;
   options.haplotype_block_variants = 20;
   options.locus_signals = locus_signals;
-  return simulate_cohort(options);
+  return options;
 }
 
 class SimulatedBlocks : public ::testing::Test {
  protected:
   static void SetUpTestSuite() {
     dir_ = make_temp_dir("simulate_blocks");
-    outputs_ = simulate_blocks(dir_ + "/blocks", 3);
+    outputs_ = simulate_cohort(block_options(dir_ + "/blocks", 3));
     called_ = read_called_genotypes(outputs_.vcf_path);
     // Each variant's block, from the BED.
     const std::vector<BedGene> blocks = read_bed(outputs_.blocks_path);
@@ -373,14 +373,12 @@ TEST_F(SimulatedBlocks, LocusSignalsAreCausalAndInPartialLd) {
 
 TEST(SimulatedCohort, BlocksLeaveTheGenesAndTheirOptionsAreChecked) {
   const std::string dir = make_temp_dir("simulate_block_options");
-  const SimulationOutputs plain = simulate(dir + "/plain", 5, 1000, 1200);
+  const SimulationOptions options = block_options(dir + "/blocks", 0);
+  SimulationOptions plain_options = options;
+  plain_options.out_prefix = dir + "/plain";
+  plain_options.haplotype_block_variants = 0;
+  const SimulationOutputs plain = simulate_cohort(plain_options);
   EXPECT_TRUE(plain.blocks_path.empty());
-  SimulationOptions options;
-  options.out_prefix = dir + "/blocks";
-  options.seed = 5;
-  options.samples = 1000;
-  options.variants = 1200;
-  options.haplotype_block_variants = 15;
   const SimulationOutputs blocks = simulate_cohort(options);
   EXPECT_EQ(read_text_file(plain.genes_path), read_text_file(blocks.genes_path));
   EXPECT_NE(read_gzip_file(plain.vcf_path), read_gzip_file(blocks.vcf_path));

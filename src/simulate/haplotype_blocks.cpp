@@ -4,7 +4,7 @@
 #include <cmath>
 #include <cstdio>
 
-#include "tamis/results_writer.hpp"
+#include "genes.hpp"
 
 namespace tamis::simulation {
 namespace {
@@ -15,8 +15,9 @@ constexpr std::size_t kMostHaplotypes = 8;
 // How far the two founding groups' haplotype frequencies drift apart (SD of
 // a log-normal factor on each frequency).
 constexpr double kGroupDrift = 0.4;
-// A common variant sits on its neighbour's branch with this probability, and
-// on the haplotypes outside its branch with the other.
+// A common variant sits on its neighbour's branch with probability
+// kSameBranch; otherwise on a random branch, or, with probability
+// kComplement, on the haplotypes outside it.
 constexpr double kSameBranch = 0.5;
 constexpr double kComplement = 0.3;
 // The noise that keeps LD below perfect (per founder chromosome and variant).
@@ -63,6 +64,24 @@ double mask_frequency(std::uint32_t mask, const std::vector<double>& frequencies
   return total;
 }
 
+double draw_exponential(Random& random) {
+  double uniform = random.uniform();
+  while (uniform <= 0.0) uniform = random.uniform();
+  return -std::log(uniform);
+}
+
+// The first index whose cumulative weight exceeds `uniform` (the last one if
+// rounding leaves the total just below it).
+template <typename Weight>
+std::size_t pick_by_weight(std::size_t count, double uniform, Weight weight) {
+  double cumulative = 0.0;
+  for (std::size_t index = 0; index + 1 < count; ++index) {
+    cumulative += weight(index);
+    if (uniform < cumulative) return index;
+  }
+  return count - 1;
+}
+
 std::string block_name(std::size_t block_idx) {
   char name[24];
   std::snprintf(name, sizeof name, "SRB%04zu", block_idx + 1);
@@ -106,10 +125,8 @@ void HaplotypeBlocks::lay_out(const std::vector<std::vector<std::int64_t>>& posi
     const std::size_t contig_end = contig_first + positions[contig].size();
     std::size_t first = contig_first;
     while (first < contig_end) {
-      double uniform = random_.uniform();
-      while (uniform <= 0.0) uniform = random_.uniform();
       const auto length =
-          std::max<std::size_t>(1, static_cast<std::size_t>(std::lround(-mean_variants * std::log(uniform))));
+          std::max<std::size_t>(1, static_cast<std::size_t>(std::lround(mean_variants * draw_exponential(random_))));
       std::size_t last = std::min(first + length, contig_end) - 1;
       bool signal_locus = false;
       if (has_locus && first <= locus_.last_variant && last >= locus_.first_variant) {
@@ -139,9 +156,7 @@ void HaplotypeBlocks::draw_haplotypes(Block& block) {
   const std::size_t count = kFewestHaplotypes + random_.index(kMostHaplotypes - kFewestHaplotypes + 1);
   std::vector<double> shared(count), group_a(count), group_b(count);
   for (std::size_t haplotype = 0; haplotype < count; ++haplotype) {
-    double uniform = random_.uniform();
-    while (uniform <= 0.0) uniform = random_.uniform();
-    shared[haplotype] = -std::log(uniform);
+    shared[haplotype] = draw_exponential(random_);
     group_a[haplotype] = shared[haplotype] * std::exp(kGroupDrift * random_.normal());
     group_b[haplotype] = shared[haplotype] * std::exp(kGroupDrift * random_.normal());
   }
@@ -211,20 +226,12 @@ void HaplotypeBlocks::start_variant(std::size_t variant_idx, bool rare, double r
     // One haplotype (by its average frequency) carries the variant; the
     // share of its copies is set so that the variant's frequency is about
     // the one asked for.
-    std::vector<double> average(block.frequency_a.size());
-    for (std::size_t haplotype = 0; haplotype < average.size(); ++haplotype) {
-      average[haplotype] = 0.5 * (block.frequency_a[haplotype] + block.frequency_b[haplotype]);
-    }
-    double uniform = random_.uniform(), cumulative = 0.0;
-    rare_haplotype_ = static_cast<int>(average.size()) - 1;
-    for (std::size_t haplotype = 0; haplotype < average.size(); ++haplotype) {
-      cumulative += average[haplotype];
-      if (uniform < cumulative) {
-        rare_haplotype_ = static_cast<int>(haplotype);
-        break;
-      }
-    }
-    rare_share_ = std::min(1.0, rare_frequency / average[static_cast<std::size_t>(rare_haplotype_)]);
+    auto average = [&block](std::size_t haplotype) {
+      return 0.5 * (block.frequency_a[haplotype] + block.frequency_b[haplotype]);
+    };
+    const std::size_t haplotype = pick_by_weight(block.frequency_a.size(), random_.uniform(), average);
+    rare_haplotype_ = static_cast<int>(haplotype);
+    rare_share_ = std::min(1.0, rare_frequency / average(haplotype));
     mask_ = 0;
   } else {
     mask_ = choose_common_mask(block, planted);
@@ -245,13 +252,10 @@ double HaplotypeBlocks::expected_frequency(double ancestry) const {
 
 int HaplotypeBlocks::draw_haplotype(double ancestry, Random& random) const {
   const Block& block = blocks_[block_idx_];
-  const double uniform = random.uniform();
-  double cumulative = 0.0;
-  for (std::size_t haplotype = 0; haplotype + 1 < block.frequency_a.size(); ++haplotype) {
-    cumulative += ancestry * block.frequency_a[haplotype] + (1.0 - ancestry) * block.frequency_b[haplotype];
-    if (uniform < cumulative) return static_cast<int>(haplotype);
-  }
-  return static_cast<int>(block.frequency_a.size()) - 1;
+  auto mixed = [&block, ancestry](std::size_t haplotype) {
+    return ancestry * block.frequency_a[haplotype] + (1.0 - ancestry) * block.frequency_b[haplotype];
+  };
+  return static_cast<int>(pick_by_weight(block.frequency_a.size(), random.uniform(), mixed));
 }
 
 void HaplotypeBlocks::draw_founder_alleles(double ancestry, Random& random, std::array<int, 2>& haplotypes,
@@ -268,22 +272,15 @@ void HaplotypeBlocks::draw_founder_alleles(double ancestry, Random& random, std:
   }
 }
 
+// The blocks are windows of variants like the genes, in the genes' BED layout.
 void HaplotypeBlocks::write_bed(const std::vector<std::vector<std::int64_t>>& positions,
                                 const std::string& path) const {
-  std::vector<std::size_t> contig_first(positions.size(), 0);
-  for (std::size_t contig = 1; contig < positions.size(); ++contig) {
-    contig_first[contig] = contig_first[contig - 1] + positions[contig - 1].size();
-  }
-  PlainTextFile bed(path);
+  std::vector<SimulatedGene> windows;
   for (std::size_t block_idx = 0; block_idx < blocks_.size(); ++block_idx) {
     const Block& block = blocks_[block_idx];
-    const std::vector<std::int64_t>& contig_positions = positions[block.contig];
-    const std::int64_t start = contig_positions[block.first_variant - contig_first[block.contig]] - 1;
-    const std::int64_t end = contig_positions[block.last_variant - contig_first[block.contig]];
-    bed.write(std::to_string(block.contig + 1) + "\t" + std::to_string(start) + "\t" + std::to_string(end) + "\t" +
-              block_name(block_idx) + "\n");
+    windows.push_back(SimulatedGene{block_name(block_idx), block.contig, block.first_variant, block.last_variant});
   }
-  bed.commit();
+  write_gene_bed(windows, positions, path);
 }
 
 }  // namespace tamis::simulation
