@@ -6,6 +6,7 @@
 #include <optional>
 #include <unordered_map>
 
+#include "scan/variant_keys.hpp"
 #include "tamis/errors.hpp"
 #include "tamis/linkage_disequilibrium.hpp"
 #include "tamis/results_reader.hpp"
@@ -31,7 +32,7 @@ void read_sites(const GenotypeReaderOptions& genotypes, const std::vector<std::s
                 const LocusWindow& window, std::int64_t first, std::int64_t last, Visit visit) {
   GenotypeReaderOptions options = genotypes;
   options.regions.clear();
-  for (const std::string& contig : contigs_for_chromosome(window.chromosome)) {
+  for (const std::string& contig : contig_candidates(window.chromosome)) {
     options.regions.push_back({contig, first, last});
   }
   GenotypeReader reader(options);
@@ -107,13 +108,6 @@ void collect_window_rows(const std::string& results_path, std::vector<LocusWindo
       window.variants.push_back(std::move(variant));
     }
   }
-}
-
-std::vector<std::string> contigs_for_chromosome(const std::string& chromosome) {
-  if (chromosome == "23") return {"X", "chrX", "23", "chr23"};
-  if (chromosome == "24") return {"Y", "chrY", "24", "chr24"};
-  if (chromosome == "25") return {"MT", "chrM", "M", "chrMT", "25"};
-  return {chromosome, "chr" + chromosome};
 }
 
 void measure_window_ld(const GenotypeReaderOptions& genotypes, const std::vector<std::size_t>& analysis_samples,

@@ -44,10 +44,6 @@ std::vector<LocusWindow> make_locus_windows(const TraitResults& results, const s
 // tamis::Error (results_input) for a damaged file.
 void collect_window_rows(const std::string& results_path, std::vector<LocusWindow>& windows);
 
-// The contig names a results chromosome code stands for in a VCF (code 23
-// is X or chrX, ...); a name that is not a code stands for itself.
-std::vector<std::string> contigs_for_chromosome(const std::string& chromosome);
-
 // Reads the window's records through the index and sets each variant's r^2
 // with the lead over `analysis_samples` (positions in the files' sample
 // order), missing dosages mean-imputed per variant as the scan imputes them.

@@ -234,11 +234,28 @@ struct RegionalContext {
   TraitTable table;
 };
 
+// The table columns the scan adjusted for. The sidecar's adjusted_covariates
+// also lists the variants a scan conditioned on; those are left out, since
+// their missing dosages were imputed and drop no sample.
 std::vector<std::string> covariates_for(const RegionalPlotOptions& options, const std::string& results_path) {
   if (options.covariates) return *options.covariates;
   const std::string sidecar = results_path + "-meta.yaml";
   if (!file_exists(sidecar)) return {};
-  return read_metadata_sidecar(sidecar).adjusted_covariates;
+  const SidecarFields fields = read_metadata_sidecar(sidecar);
+  std::set<std::string> conditioned;
+  for (const auto& [key, value] : fields.extra) {
+    if (key != kConditionedOnKey) continue;
+    for (std::size_t start = 0; start <= value.size();) {
+      const std::size_t comma = std::min(value.find(", ", start), value.size());
+      conditioned.insert(value.substr(start, comma - start));
+      start = comma + 2;
+    }
+  }
+  std::vector<std::string> covariates;
+  for (const std::string& covariate : fields.adjusted_covariates) {
+    if (!conditioned.count(covariate)) covariates.push_back(covariate);
+  }
+  return covariates;
 }
 
 // The trait's analysis samples as the scan chose them, in the genotype files' order.
