@@ -173,8 +173,9 @@ void draw_credible_rings(cairo_t* cairo, const LocusWindow& window, const Region
     if (!in_95 && !marks.in_99.count(variant.variant_id)) continue;
     cairo_save(cairo);
     if (!in_95) cairo_set_dash(cairo, dashes, 2, 0);
-    ring(cairo, layout.x_of(variant.position), layout.y_of(variant.neg_log_10_p), dot_radius + 3.2, colours::teal,
-         1.6);
+    // Outside the lead's own rings, which are drawn over this one.
+    const double radius = variant.variant_id == window.lead_variant_id ? lead_radius + 8.0 : dot_radius + 3.2;
+    ring(cairo, layout.x_of(variant.position), layout.y_of(variant.neg_log_10_p), radius, colours::teal, 1.6);
     cairo_restore(cairo);
   }
 }
@@ -202,7 +203,7 @@ void draw_signal_leads(cairo_t* cairo, const LocusWindow& window, const Regional
     if (variant == window.variants.end() || std::isnan(variant->neg_log_10_p)) continue;
     const double x = layout.x_of(variant->position), y = layout.y_of(variant->neg_log_10_p);
     square(cairo, x, y, dot_radius + 3.0, colours::teal);
-    draw_point_label(cairo, "signal " + lead.signal, x, y - 2, layout, 12.0, false, colours::teal);
+    draw_point_label(cairo, lead.variant_id, x, y - 2, layout, 12.0, false, colours::teal);
   }
 }
 
