@@ -391,6 +391,28 @@ TEST_F(RegionalReport, SignalFilesMarkThePlotAndAreNamedOnThePage) {
   EXPECT_NE(message.find("bad.fev1_litres.credible.tsv, line 2, column in_95"), std::string::npos) << message;
 }
 
+TEST_F(RegionalReport, ConditionedScanTakesItsCovariatesFromTheSidecar) {
+  // The sidecar's adjusted_covariates also names the conditioning variant,
+  // which is no table column: the report must leave it out.
+  const auto loci = data_rows(read_text_file(dir_ + "/report.loci.tsv"));
+  const std::string condition = loci.at(1).at(1) + ":" + loci.at(1).at(2) + ":" +
+                                split_fields(loci.at(1).at(3), '_').at(2) + ":" +
+                                split_fields(loci.at(1).at(3), '_').at(3);
+  ASSERT_EQ(run_command(tamis_binary() + " scan --genotypes " + dir_ + "/cohort.vcf.gz --traits " + dir_ +
+                        "/cohort.traits.tsv --trait fev1_litres --covariates " + kCovariates + " --condition-on " +
+                        condition + " --out " + dir_ + "/conditioned --threads 1 --quiet 2>/dev/null"),
+            0);
+  EXPECT_NE(read_text_file(dir_ + "/conditioned.fev1_litres.tsv.gz-meta.yaml").find(condition), std::string::npos);
+  int exit_code = 0;
+  const std::string message = capture_command(
+      tamis_binary() + " report --results " + dir_ + "/conditioned.fev1_litres.tsv.gz --out " + dir_ +
+          "/conditioned_report --lead-below 1e-4 --regional-plots 1 --genotypes " + dir_ + "/cohort.vcf.gz --traits " +
+          dir_ + "/cohort.traits.tsv 2>&1",
+      &exit_code);
+  EXPECT_EQ(exit_code, 0) << message;
+  EXPECT_TRUE(file_exists(dir_ + "/conditioned_report.fev1_litres.locus-1.png"));
+}
+
 TEST_F(RegionalReport, SamplesOtherThanTheScansAreRefused) {
   std::string dropped;
   const auto table = data_rows(read_text_file(dir_ + "/cohort.traits.tsv"));
