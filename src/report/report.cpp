@@ -278,14 +278,12 @@ void check_sample_count(const report::TraitResults& results, const report::Locus
               "give the trait table, covariates and sample lists the scan was given");
 }
 
-std::string format_r_squared(double r_squared) { return format_number(r_squared, "%.12g"); }
-
 std::string ld_lines(const std::string& trait, const report::LocusWindow& window) {
   std::string text;
   for (const report::WindowVariant& variant : window.variants) {
     text += trait + '\t' + std::to_string(window.rank) + '\t' + window.lead_variant_id + '\t' + window.chromosome +
             '\t' + std::to_string(variant.position) + '\t' + variant.variant_id + '\t' +
-            format_number(variant.neg_log_10_p, "%.6g") + '\t' + format_r_squared(variant.r_squared) + '\n';
+            format_number(variant.neg_log_10_p, "%.6g") + '\t' + format_number(variant.r_squared, "%.12g") + '\n';
   }
   return text;
 }
@@ -315,17 +313,23 @@ void report_regional(const RegionalContext& context, const report::TraitResults&
   if (windows.empty()) return;
   report::collect_window_rows(results.source_path, windows);
   const std::vector<std::size_t> samples = analysis_samples_of(context, results);
+  // Every window measured before any is drawn: a lead missing from the
+  // genotype files stops the report before any of its regional plots exists.
+  for (report::LocusWindow& window : windows) {
+    check_sample_count(results, window, samples.size());
+    report::measure_window_ld(context.genotypes, samples, window);
+  }
   report::SignalMarks marks;
-  if (!context.options.signals_prefix.empty()) marks = report::load_signal_marks(context.options.signals_prefix, results.trait);
+  if (!context.options.signals_prefix.empty()) {
+    marks = report::load_signal_marks(context.options.signals_prefix, results.trait);
+  }
   report::RegionalFacts facts;
   facts.trait = results.trait;
   facts.analysis_samples = samples.size();
   facts.marks = marks.empty() ? nullptr : &marks;
 
   section.regional_note = regional_note(context.options.signals_prefix, results.trait, marks);
-  for (report::LocusWindow& window : windows) {
-    check_sample_count(results, window, samples.size());
-    report::measure_window_ld(context.genotypes, samples, window);
+  for (const report::LocusWindow& window : windows) {
     const std::string name = stem + ".locus-" + std::to_string(window.rank);
     report::render_regional(window, facts, name + ".png", name + ".svg");
     summary.written_files.push_back(name + ".png");
