@@ -17,8 +17,10 @@ mkdir -p "$out"
   --trait fev1_litres --trait winter_wheeze \
   --covariates age,sex,village,pc1,pc2,pc3,pc4 \
   --genome-assembly GRCh38 --out "$out/scan"
+# With the genotypes and the table, each lead locus gets a regional plot
+# coloured by LD with its lead, measured on the trait's analysis samples.
 ./build/tamis report --results "$out/scan.fev1_litres.tsv.gz" "$out/scan.winter_wheeze.tsv.gz" \
-  --out "$out/report" 2>/dev/null
+  --out "$out/report" --genotypes "$out/saltmarsh.vcf.gz" --traits "$out/saltmarsh.traits.tsv" 2>/dev/null
 for trait in fev1_litres winter_wheeze; do
   echo
   echo "== top hits for $trait (planted effects: $out/saltmarsh.truth.tsv)"
@@ -28,7 +30,8 @@ for trait in fev1_litres winter_wheeze; do
 done
 echo
 echo "results:  $out/scan.fev1_litres.tsv.gz, $out/scan.winter_wheeze.tsv.gz (GWAS-SSF, tabix-indexed)"
-echo "report:   $out/report.html (Manhattan and QQ plots, lead loci: $out/report.loci.tsv)"
+echo "report:   $out/report.html (Manhattan and QQ plots, lead loci: $out/report.loci.tsv,"
+echo "          regional plots: $out/report.fev1_litres.locus-1.png ..., their LD values: $out/report.locus_ld.tsv)"
 echo "run log:  $out/scan.log"
 
 # Variant sets. The same cohort with rare-variant effects planted in four of
