@@ -25,7 +25,7 @@ namespace {
 // inside a block and blocks are independent.
 struct LocusSimulation {
   std::size_t samples = 1500;
-  std::size_t blocks = 3;
+  std::size_t blocks = 2;
   std::size_t block_size = 24;
   double rho = 0.95;
 };
@@ -157,12 +157,18 @@ TEST(SignalSelection, NoSignalWhereNothingIsPlanted) {
   EXPECT_EQ(figures.right_count, figures.replicates);
 }
 
-TEST(Conditioning, RefusesAVariantConstantInTheAnalysisSamples) {
+// Three analysis samples, genotype samples 0, 2 and 3; sample 1 is not analysed.
+AnalysisSet three_analysis_samples() {
   AnalysisSet set;
   set.trait = "fev1_litres";
   set.genotype_index = {0, 2, 3};
   set.design = Eigen::MatrixXd::Ones(3, 1);
   set.design_names = {"intercept"};
+  return set;
+}
+
+TEST(Conditioning, RefusesAVariantConstantInTheAnalysisSamples) {
+  AnalysisSet set = three_analysis_samples();
   // Sample 1, outside the analysis set, is the only carrier; sample 3 is missing.
   const ConditionVariant variant{"rs_cond", "1:100:A:G", {0.0, 1.0, 0.0, NAN}};
   try {
@@ -176,11 +182,7 @@ TEST(Conditioning, RefusesAVariantConstantInTheAnalysisSamples) {
 }
 
 TEST(Conditioning, ImputesMissingDosagesWithTheAnalysisSamplesMean) {
-  AnalysisSet set;
-  set.trait = "fev1_litres";
-  set.genotype_index = {0, 2, 3};
-  set.design = Eigen::MatrixXd::Ones(3, 1);
-  set.design_names = {"intercept"};
+  AnalysisSet set = three_analysis_samples();
   const ConditionVariant variant{"1:100:A:G", "1:100:A:G", {2.0, 5.0, 1.0, NAN}};
   add_condition_columns({variant}, set);
   ASSERT_EQ(set.design.cols(), 2);

@@ -151,37 +151,42 @@ std::vector<ConditionVariant> read_condition_variants(const ScanOptions& options
   return variants;
 }
 
+std::optional<AnalysisDosages> dosages_over_samples(const double* dosages, const std::vector<std::size_t>& genotype_index) {
+  AnalysisDosages out;
+  double lowest = INFINITY, highest = -INFINITY;
+  for (std::size_t sample : genotype_index) {
+    if (std::isnan(dosages[sample])) continue;
+    out.sum += dosages[sample];
+    out.called += 1.0;
+    lowest = std::fmin(lowest, dosages[sample]);
+    highest = std::fmax(highest, dosages[sample]);
+  }
+  if (!(highest > lowest)) return std::nullopt;
+  const double mean = out.sum / out.called;
+  out.values.resize(static_cast<Eigen::Index>(genotype_index.size()));
+  for (std::size_t sample_idx = 0; sample_idx < genotype_index.size(); ++sample_idx) {
+    const double dosage = dosages[genotype_index[sample_idx]];
+    out.values[static_cast<Eigen::Index>(sample_idx)] = std::isnan(dosage) ? mean : dosage;
+  }
+  return out;
+}
+
 void add_condition_columns(const std::vector<ConditionVariant>& variants, AnalysisSet& set) {
   if (variants.empty()) return;
-  const Eigen::Index n = static_cast<Eigen::Index>(set.genotype_index.size());
-  Eigen::MatrixXd design(n, set.design.cols() + static_cast<Eigen::Index>(variants.size()));
-  design.leftCols(set.design.cols()) = set.design;
+  const Eigen::Index base = set.design.cols();
+  set.design.conservativeResize(Eigen::NoChange, base + static_cast<Eigen::Index>(variants.size()));
   for (std::size_t variant_idx = 0; variant_idx < variants.size(); ++variant_idx) {
     const ConditionVariant& variant = variants[variant_idx];
-    double sum = 0.0, called = 0.0, lowest = INFINITY, highest = -INFINITY;
-    for (std::size_t sample : set.genotype_index) {
-      const double dosage = variant.dosages[sample];
-      if (std::isnan(dosage)) continue;
-      sum += dosage;
-      called += 1.0;
-      lowest = std::fmin(lowest, dosage);
-      highest = std::fmax(highest, dosage);
-    }
-    if (!(highest > lowest)) {
+    const std::optional<AnalysisDosages> column = dosages_over_samples(variant.dosages.data(), set.genotype_index);
+    if (!column) {
       throw Error(ExitCode::model, "--condition-on " + variant.requested + ", trait " + set.trait,
                   "the conditioning variant " + variant.label + " does not vary among the trait's " +
-                      std::to_string(n) + " analysis samples" + (called == 0.0 ? " (every dosage is missing)" : ""),
+                      std::to_string(set.genotype_index.size()) + " analysis samples",
                   "leave it out of --condition-on: a constant covariate adjusts for nothing");
     }
-    const double mean = sum / called;
-    auto column = design.col(set.design.cols() + static_cast<Eigen::Index>(variant_idx));
-    for (Eigen::Index row = 0; row < n; ++row) {
-      const double dosage = variant.dosages[set.genotype_index[static_cast<std::size_t>(row)]];
-      column[row] = std::isnan(dosage) ? mean : dosage;
-    }
+    set.design.col(base + static_cast<Eigen::Index>(variant_idx)) = column->values;
     set.design_names.push_back("condition " + variant.label);
   }
-  set.design = std::move(design);
 }
 
 }  // namespace tamis

@@ -3,6 +3,8 @@
 // trait's null model.
 #pragma once
 
+#include <Eigen/Dense>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -30,6 +32,16 @@ std::vector<ConditionVariant> read_condition_variants(const ScanOptions& options
 // mean of the others. Throws tamis::Error (model) for a variant that does
 // not vary among the analysis samples.
 void add_condition_columns(const std::vector<ConditionVariant>& variants, AnalysisSet& set);
+
+// One site's dosages over a trait's analysis samples (genotype_index[k] is
+// the genotype sample of analysis sample k), each missing one replaced by the
+// mean of the called ones; nothing when they do not vary.
+struct AnalysisDosages {
+  Eigen::VectorXd values;
+  double sum = 0.0;     // over the called dosages
+  double called = 0.0;  // how many were called
+};
+std::optional<AnalysisDosages> dosages_over_samples(const double* dosages, const std::vector<std::size_t>& genotype_index);
 
 // "chr1:1234:A:G" of a site as its file writes it.
 std::string site_label(const VariantSite& site);

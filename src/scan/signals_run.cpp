@@ -148,35 +148,18 @@ struct TraitWindow {
 
 TraitWindow window_for_trait(const WindowRecords& records, const AnalysisSet& set) {
   TraitWindow window;
-  const std::size_t n = set.genotype_index.size();
-  std::vector<std::vector<double>> columns;
+  std::vector<Eigen::VectorXd> columns;
   for (std::size_t site_idx = 0; site_idx < records.block.size(); ++site_idx) {
-    const double* dosages = records.block.site_dosages(site_idx);
-    double sum = 0.0, called = 0.0, lowest = INFINITY, highest = -INFINITY;
-    for (std::size_t sample : set.genotype_index) {
-      if (std::isnan(dosages[sample])) continue;
-      sum += dosages[sample];
-      called += 1.0;
-      lowest = std::fmin(lowest, dosages[sample]);
-      highest = std::fmax(highest, dosages[sample]);
-    }
-    if (!(highest > lowest)) continue;  // monomorphic here: not tested, as in the scan
-    const double mean = sum / called;
-    std::vector<double> column(n);
-    for (std::size_t sample_idx = 0; sample_idx < n; ++sample_idx) {
-      const double dosage = dosages[set.genotype_index[sample_idx]];
-      column[sample_idx] = std::isnan(dosage) ? mean : dosage;
-    }
-    columns.push_back(std::move(column));
+    std::optional<AnalysisDosages> column = dosages_over_samples(records.block.site_dosages(site_idx), set.genotype_index);
+    if (!column) continue;  // monomorphic here: not tested, as in the scan
     window.sites.push_back(site_idx);
-    window.variants.minor_allele_counts.push_back(std::fmin(sum, 2.0 * called - sum));
+    window.variants.minor_allele_counts.push_back(std::fmin(column->sum, 2.0 * column->called - column->sum));
+    columns.push_back(std::move(column->values));
   }
-  window.variants.dosages.resize(static_cast<Eigen::Index>(n), static_cast<Eigen::Index>(columns.size()));
+  window.variants.dosages.resize(static_cast<Eigen::Index>(set.genotype_index.size()),
+                                 static_cast<Eigen::Index>(columns.size()));
   for (std::size_t variant = 0; variant < columns.size(); ++variant) {
-    for (std::size_t sample_idx = 0; sample_idx < n; ++sample_idx) {
-      window.variants.dosages(static_cast<Eigen::Index>(sample_idx), static_cast<Eigen::Index>(variant)) =
-          columns[variant][sample_idx];
-    }
+    window.variants.dosages.col(static_cast<Eigen::Index>(variant)) = columns[variant];
   }
   return window;
 }
