@@ -7,7 +7,7 @@ packages=(
   build-essential cmake pkg-config
   libhts-dev libdeflate-dev libeigen3-dev libtbb-dev libcli11-dev zlib1g-dev
   libgtest-dev libbenchmark-dev
-  r-base-core r-cran-lme4 bcftools tabix snakemake chromium
+  r-base-core r-cran-lme4 r-cran-sandwich r-cran-lmtest bcftools tabix snakemake chromium
   libcairo2-dev python3-pandas python3-matplotlib python3-mpmath
   clang-14 libclang-rt-14-dev
 )

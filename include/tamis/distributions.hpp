@@ -12,6 +12,15 @@ double log_chisq1_upper_tail(double stat);
 // degrees of freedom (df > 0). Exact in the same sense as above.
 double log_student_t_two_sided(double t, double df);
 
+// Natural log of P(X > stat) for X ~ chi-square with `df` (a positive
+// integer) degrees of freedom, from the closed forms of the upper incomplete
+// gamma function at integer and half-integer shape: every term is positive,
+// so the log stays exact far into the tail.
+double log_chisq_upper_tail(double stat, int df);
+
+// Natural log of P(F > f) for F with (df1, df2) degrees of freedom.
+double log_f_upper_tail(double f, double df1, double df2);
+
 // Natural log of the regularized incomplete beta function I_x(a, b).
 double log_regularized_incomplete_beta(double x, double a, double b);
 

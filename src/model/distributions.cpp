@@ -11,8 +11,10 @@
 // correction when an argument is large (as R's lbeta does).
 #include "tamis/distributions.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
+#include <vector>
 #include <stdexcept>
 
 namespace tamis {
@@ -152,6 +154,51 @@ double log_student_t_two_sided(double t, double df) {
     log_y = -std::log1p(ratio);
   }
   return log_ibeta(x, y, log_x, log_y, df / 2.0, 0.5);
+}
+
+double log_chisq_upper_tail(double stat, int df) {
+  if (df < 1) throw std::domain_error("log_chisq_upper_tail: df must be a positive integer");
+  if (df == 1) return log_chisq1_upper_tail(stat);
+  if (!(stat > 0.0)) return 0.0;
+  if (std::isinf(stat)) return -std::numeric_limits<double>::max();
+  // Q(a + 1, x) = Q(a, x) + x^a e^-x / Gamma(a + 1), from a = 1 (Q = e^-x)
+  // for even df or a = 1/2 (the chi-square(1) tail) for odd df; x = stat / 2.
+  // The terms are summed as logs, largest last, by log-sum-exp.
+  const double x = stat / 2.0;
+  const double log_x = std::log(x);
+  const bool even = df % 2 == 0;
+  std::vector<double> log_terms;
+  log_terms.push_back(even ? -x : log_chisq1_upper_tail(stat));
+  for (double a = even ? 1.0 : 0.5; a + 1.0 <= 0.5 * df; a += 1.0) {
+    log_terms.push_back(a * log_x - x - std::lgamma(a + 1.0));
+  }
+  const double largest = *std::max_element(log_terms.begin(), log_terms.end());
+  double sum = 0.0;
+  for (const double log_term : log_terms) sum += std::exp(log_term - largest);
+  return std::fmin(0.0, largest + std::log(sum));
+}
+
+double log_f_upper_tail(double f, double df1, double df2) {
+  if (!(df1 > 0.0) || !(df2 > 0.0)) throw std::domain_error("log_f_upper_tail: df must be positive");
+  if (!(f > 0.0)) return 0.0;
+  if (std::isinf(f)) return -std::numeric_limits<double>::max();
+  // P(F > f) = I_x(df2/2, df1/2) at x = df2 / (df2 + df1 f); x and 1 - x
+  // through q = df1 f / df2 or its inverse, so that neither cancels.
+  const double q = df1 * f / df2;
+  double x, y, log_x, log_y;
+  if (q <= 1.0) {
+    x = 1.0 / (1.0 + q);
+    y = q / (1.0 + q);
+    log_x = -std::log1p(q);
+    log_y = std::log(q) - std::log1p(q);
+  } else {
+    const double ratio = 1.0 / q;
+    x = ratio / (1.0 + ratio);
+    y = 1.0 / (1.0 + ratio);
+    log_x = std::log(ratio) - std::log1p(ratio);
+    log_y = -std::log1p(ratio);
+  }
+  return log_ibeta(x, y, log_x, log_y, df2 / 2.0, df1 / 2.0);
 }
 
 double log_regularized_incomplete_beta(double x, double a, double b) {
