@@ -315,5 +315,51 @@ TEST_F(SignalsEndToEnd, ScanRefusesAMultiAllelicRecordNamedByItsId) {
   EXPECT_NE(said.find("name the allele"), std::string::npos) << said;
 }
 
+// chr_pos_ref_alt as chr:pos:ref:alt.
+std::string colon_form(std::string variant_id) {
+  std::replace(variant_id.begin(), variant_id.end(), '_', ':');
+  return variant_id;
+}
+
+// With --relatedness, a signal's joint refit is the mixed model's refit of
+// it conditioned on the other signals: the same numbers as `confirm
+// --condition-on` of the others.
+TEST(SignalsWithRelatedness, JointFitEqualsConfirmConditionedOnTheOtherSignals) {
+  const std::string dir = testing::make_temp_dir("signals_relatedness");
+  const std::string tamis = testing::tamis_binary();
+  ASSERT_EQ(testing::run_command(tamis + " simulate --out " + dir + "/fam --samples 600 --variants 300 --chromosomes 1 "
+                                 "--families 0.5 --seed 4 2>/dev/null"),
+            0);
+  ASSERT_EQ(testing::run_command(tamis + " relatedness --genotypes " + dir + "/fam.vcf.gz --out " + dir + "/fam --quiet"), 0);
+  const std::string inputs = " --genotypes " + dir + "/fam.vcf.gz --traits " + dir +
+                             "/fam.traits.tsv --trait fev1_litres --covariates age,sex --relatedness " + dir +
+                             "/fam.relatedness.tsv.gz --quiet";
+  ASSERT_EQ(testing::run_command(tamis + " signals" + inputs + " --region 1 --select-below 1e-2 --max-signals 3 --out " +
+                                 dir + "/signals"),
+            0);
+  const auto signals = testing::data_rows(testing::read_text_file(dir + "/signals.fev1_litres.signals.tsv"));
+  ASSERT_GE(signals.size(), 2u) << "the check needs two signals";
+  const std::vector<std::string>& first = signals[0];
+  std::string others;
+  for (std::size_t signal_idx = 1; signal_idx < signals.size(); ++signal_idx) {
+    others += " --condition-on " + colon_form(signals[signal_idx][0]);
+  }
+  testing::write_text_file(dir + "/first.txt", colon_form(first[0]) + "\n");
+  ASSERT_EQ(testing::run_command(tamis + " confirm" + inputs + others + " --variants " + dir + "/first.txt --out " + dir +
+                                 "/confirmed"),
+            0);
+  const std::string results = testing::read_gzip_file(dir + "/confirmed.fev1_litres.tsv.gz");
+  const std::vector<std::string> header = testing::split_fields(testing::lines_of(results)[0]);
+  const auto rows = testing::data_rows(results);
+  ASSERT_EQ(rows.size(), 1u);
+  const auto field = [&](const std::string& name) {
+    return rows[0][static_cast<std::size_t>(std::find(header.begin(), header.end(), name) - header.begin())];
+  };
+  EXPECT_EQ(first[7], field("beta"));
+  EXPECT_EQ(first[8], field("standard_error"));
+  EXPECT_EQ(first[9], field("wald_p"));
+  EXPECT_EQ(first[10], field("lrt_p"));
+}
+
 }  // namespace
 }  // namespace tamis
