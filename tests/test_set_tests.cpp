@@ -492,6 +492,31 @@ TEST(SetTests, OneVariantAndZeroBurden) {
   EXPECT_NEAR(opposed.optimal_log_p, opposed.variance_log_p, 1e-12);
 }
 
+TEST(SetTests, SaddlepointCalibratedScoresMatchRQchisq) {
+  Eigen::VectorXd u(7), variances(7);
+  u << 3.0, -2.5, 0.5, 4.0, 10.0, 60.0, 5.0;
+  variances << 1.5, 0.8, 1.0, 0.2, 2.0, 2.0, 1.0;
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  const std::vector<double> log_p = {std::log(0.01), std::log(0.03), std::log(0.5), std::log(0.2), std::log(1e-30),
+                                     -800.0, nan};
+  const Eigen::VectorXd calibrated = tamis::saddlepoint_calibrated_scores(u, variances, log_p);
+  // R 4.2.2: sign(u) * sqrt(v * qchisq(p, 1, lower.tail = FALSE)), and
+  // qchisq(-800, 1, lower.tail = FALSE, log.p = TRUE) for the far tail.
+  const double expected[] = {3.1547337291016846, -1.9409878406389047, 0.5, 0.57312728344580066,
+                             16.297232446330731, 56.430032912753568, 5.0};
+  for (int index = 0; index < 7; ++index) {
+    EXPECT_NEAR(calibrated[index], expected[index], 1e-10 * std::fabs(expected[index])) << index;
+  }
+  // Below chi-square 4 (0.25 here) the score stands, whatever its p; and so
+  // does a score without a p-value.
+  EXPECT_EQ(calibrated[2], u[2]);
+  EXPECT_EQ(calibrated[6], u[6]);
+  // A p-value that is the normal tail's own gives the score back.
+  const std::vector<double> normal = {tamis::log_chisq1_upper_tail(6.0)};
+  const Eigen::VectorXd same = tamis::saddlepoint_calibrated_scores(u.head(1), variances.head(1), normal);
+  EXPECT_NEAR(same[0], u[0], 1e-12 * u[0]);
+}
+
 TEST(SetTests, FarTailOptimalCombinationKeepsItsDigits) {
   // Where 1 - integral would have lost everything the combination stays
   // within its bounds [T, 8 T] and moves with T.

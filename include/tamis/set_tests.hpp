@@ -131,6 +131,27 @@ double optimal_combination_log_p(const Eigen::MatrixXd& weighted_covariance, con
 // the smallest double): the chi-square a p-value stands for.
 double chisq1_quantile_of_log_p(double log_p);
 
+// Binary traits: scores whose own p-values came from the saddlepoint
+// (`log_p`, two-sided, NaN where none is known), each moved to the normal
+// deviate of its p-value on its own scale,
+//   u'_j = sign(u_j) sqrt(v_j F^-1(1 - p_j)),  F the chi-square(1) distribution,
+// where its chi-square u_j^2 / v_j is at least 4 (below it a single
+// variant's test keeps the normal tail, and so the score stands).
+//
+// Why (ours): rare variants with few cases among their carriers have skewed
+// scores, and a mixture of chi-square(1) built on their covariance is then
+// anti-conservative. Each u'_j has, to the saddlepoint's accuracy, the
+// normal law N(0, v_j) the mixture assumes in its two-sided tails, so with
+// the weights and the covariance kept as they are, Q' = sum w_j^2 u'_j^2 has
+// the mixture's law when the scores are independent (disjoint carriers),
+// and their correlations enter as a Gaussian copula otherwise. Widening
+// each variance to u_j^2 / F^-1(1 - p_j) and keeping Q instead (Zhao et al.
+// 2020, AJHG 106:3-12, as we recall it) gives a score far out on the long
+// side of its skew a larger eigenvalue as well: the test's weights then
+// follow the data and it runs above its level.
+Eigen::VectorXd saddlepoint_calibrated_scores(const Eigen::VectorXd& u, const Eigen::VectorXd& variances,
+                                              const std::vector<double>& log_p);
+
 // Beta(maf; a, b) density as a variant weight (Wu et al. 2011, AJHG 89:82-93:
 // a = 1, b = 25 by default), maf the minor allele frequency in (0, 0.5].
 double beta_density_weight(double maf, double a = 1.0, double b = 25.0);

@@ -183,10 +183,11 @@ double implied_variance(double u, double log_p) {
 // burden's variance is the one its own saddlepoint p implies. Rare variants
 // in unbalanced case-control samples have skewed scores, and without this
 // the variance-component and optimal tests run anti-conservative. Returns
-// the burden's ln p.
+// the burden's ln p. Without `widen` the covariance stands and only the
+// collapsed units' and the burden's saddlepoint p-values are taken.
 double match_covariance_to_saddlepoint(const TraitContext& trait, std::vector<TestUnit>& units,
                                        const Eigen::VectorXd& u, const Eigen::VectorXd& weights,
-                                       Eigen::MatrixXd& covariance) {
+                                       Eigen::MatrixXd& covariance, bool widen) {
   const Eigen::Index count = u.size();
   Eigen::VectorXd root_ratio = Eigen::VectorXd::Ones(count);
   for (Eigen::Index unit_idx = 0; unit_idx < count; ++unit_idx) {
@@ -194,7 +195,7 @@ double match_covariance_to_saddlepoint(const TraitContext& trait, std::vector<Te
     const double variance = covariance(unit_idx, unit_idx);
     if (!(variance > 0.0)) continue;
     if (std::isnan(unit.log_p)) unit.log_p = saddlepoint_log_p(trait, unit_dosages(trait, unit, 1.0), u[unit_idx], variance);
-    if (u[unit_idx] * u[unit_idx] / variance < 4.0) continue;  // the normal tail stood
+    if (!widen || u[unit_idx] * u[unit_idx] / variance < 4.0) continue;  // the normal tail stood
     // Only ever widened: where the saddlepoint finds a score more extreme
     // than the normal tail does (the short side of a skewed score), the
     // score's own variance stands.
@@ -208,6 +209,7 @@ double match_covariance_to_saddlepoint(const TraitContext& trait, std::vector<Te
     burden_dosages += unit_dosages(trait, units[static_cast<std::size_t>(unit_idx)], weights[unit_idx]);
   }
   const double burden_log_p = saddlepoint_log_p(trait, burden_dosages, burden, burden_variance);
+  if (!widen) return burden_log_p;
   covariance = root_ratio.asDiagonal() * covariance * root_ratio.asDiagonal();
   // Where the saddlepoint replaced the burden's normal tail, the matrix is
   // scaled so that the burden's variance is the one its p implies; where it
@@ -295,7 +297,17 @@ SetResultRow test_set_variants(const TraitContext& trait, const SetScanOptions& 
   double burden_log_p = std::numeric_limits<double>::quiet_NaN();
   if (trait.saddlepoint) {
     row.burden_test = "score_spa";
-    burden_log_p = match_covariance_to_saddlepoint(trait, units, u, weights, covariance);
+    // A plain logistic model's scores are sums of independent Bernoulli
+    // outcomes: each is moved to the normal deviate of its saddlepoint p and
+    // the covariance stands (saddlepoint_calibrated_scores, set_tests.hpp).
+    // A mixed model's are its working model's: its covariance is widened.
+    const bool plain_model = !trait.mixed && !trait.logistic_mixed;
+    burden_log_p = match_covariance_to_saddlepoint(trait, units, u, weights, covariance, !plain_model);
+    if (plain_model) {
+      std::vector<double> log_p(units.size());
+      for (std::size_t unit_idx = 0; unit_idx < units.size(); ++unit_idx) log_p[unit_idx] = units[unit_idx].log_p;
+      u = saddlepoint_calibrated_scores(u, covariance.diagonal(), log_p);
+    }
   }
   // Screened with the cheap tails; the sets that come out small are tested
   // again exactly, as hits of the single-variant screen are refitted.

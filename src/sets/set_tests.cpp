@@ -68,6 +68,20 @@ SetTestResult test_variant_set(const Eigen::VectorXd& u, const Eigen::MatrixXd& 
   return result;
 }
 
+Eigen::VectorXd saddlepoint_calibrated_scores(const Eigen::VectorXd& u, const Eigen::VectorXd& variances,
+                                              const std::vector<double>& log_p) {
+  if (variances.size() != u.size() || log_p.size() != static_cast<std::size_t>(u.size()))
+    throw std::invalid_argument("saddlepoint_calibrated_scores: one variance and one p-value per score");
+  Eigen::VectorXd calibrated = u;
+  for (Eigen::Index unit_idx = 0; unit_idx < u.size(); ++unit_idx) {
+    const double variance = variances[unit_idx], log_p_value = log_p[static_cast<std::size_t>(unit_idx)];
+    if (!(variance > 0.0) || std::isnan(log_p_value) || u[unit_idx] * u[unit_idx] / variance < 4.0) continue;
+    const double deviate = std::sqrt(variance * chisq1_quantile_of_log_p(log_p_value));
+    calibrated[unit_idx] = u[unit_idx] < 0.0 ? -deviate : deviate;
+  }
+  return calibrated;
+}
+
 double beta_density_weight(double maf, double a, double b) {
   if (!(maf > 0.0 && maf < 1.0) || !(a > 0.0) || !(b > 0.0))
     throw std::invalid_argument("beta_density_weight: maf must lie in (0, 1), a and b must be positive");

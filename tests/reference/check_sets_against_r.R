@@ -18,13 +18,18 @@
 #     one-step estimate is exact for least squares); for a logistic model the
 #     Rao score statistic of anova(glm0, glm1, test = "Rao");
 #   - Q = sum_j w_j^2 U_j^2 with U_j = g_j'(y - mu) (minor-allele coding);
+#     for a binary trait with the saddlepoint, each U_j whose chi-square
+#     U_j^2 / Phi_jj is at least 4 moved to sign(U_j) sqrt(Phi_jj
+#     qchisq(p_j, 1, lower.tail = FALSE)), p_j the variant's own score_p in
+#     tamis's results (its saddlepoint p-value), as the scan calibrates the
+#     scores it tests;
 #   - cauchy_p from the single-variant score p-values (pchisq of U_j^2 /
 #     Phi_jj) by the Cauchy combination (Liu & Xie 2020, JASA 115:393-402)
 #     with weights w^2 maf (1 - maf), and overall_p as the equal-weight
 #     Cauchy combination of tamis's own four p-values;
-# and writes, for the beta-weighted, listed and common-variant scans (binary
-# traits: the plain ones), Q and the eigenvalues of diag(w) Phi diag(w)
-# (eigen()) to mixtures.tsv, for imhof_upper_tail.py.
+# and writes, for the beta-weighted, listed and common-variant scans, Q and
+# the eigenvalues of diag(w) Phi diag(w) (eigen()) to mixtures.tsv, for
+# imhof_upper_tail.py.
 # Reference: R's stats package (lm, glm, anova, pchisq, dbeta, qr, eigen),
 # R 4.2.2 as printed below. Tolerances (relative): 1e-8 for linear models,
 # 1e-6 for logistic ones (two IRLS fits that each stop at their own
@@ -71,9 +76,9 @@ list_sets <- lapply(unique(listed$set), function(name) {
 })
 # 0.01 is tamis's default --set-maf-ceiling; the "common" scan takes every
 # variant (--set-maf-ceiling 0.5), planted common ones too, for small p.
-# `plain`: run with --binary-score plain, where a binary trait's scores keep
-# their own covariance (with the saddlepoint, tamis matches it to the
-# saddlepoint p-values, which R's stats has no counterpart of).
+# `plain`: run with --binary-score plain, where a binary trait's scores are
+# tested as they are (with the saddlepoint, tamis moves them to the normal
+# deviates of their saddlepoint p-values, taken here from its results).
 runs <- list(list(prefix = "flat", sets = bed_sets, weighting = "flat", ceiling = 0.01, plain = FALSE),
              list(prefix = "beta", sets = bed_sets, weighting = "beta", ceiling = 0.01, plain = FALSE),
              list(prefix = "listed", sets = list_sets, weighting = "listed", ceiling = 0.01, plain = TRUE),
@@ -134,7 +139,16 @@ for (trait in traits) {
   for (run in runs) {
     res <- read.delim(gzfile(file.path(work, paste0(run$prefix, ".", trait, ".sets.tsv.gz"))), header = TRUE,
                       na.strings = "#NA", stringsAsFactors = FALSE, colClasses = c(set = "character"))
+    calibrated <- binary && !run$plain
+    if (calibrated) {
+      # The variants' saddlepoint p-values, by chr:pos:ref:alt (the effect allele is ALT).
+      single <- read.delim(gzfile(file.path(work, paste0(run$prefix, ".", trait, ".tsv.gz"))), header = TRUE,
+                           na.strings = "#NA", stringsAsFactors = FALSE, colClasses = "character")
+      single_p <- setNames(as.numeric(single$score_p), paste(single$chromosome, single$base_pair_location,
+                                                             single$other_allele, single$effect_allele, sep = ":"))
+    }
     checked <- 0
+    moved_sets <- 0
     eligible <- varies & maf <= run$ceiling
     for (set in run$sets) {
       keep <- eligible[set$members]
@@ -188,17 +202,26 @@ for (trait in traits) {
       u <- drop(crossprod(signed, r))
       adjusted <- qr.resid(qr_x, signed * sqrt(W))
       phi <- crossprod(adjusted) * (if (binary) 1 else sigma2)
+      if (calibrated) {
+        spa_p <- single_p[variant_key[idx]]
+        stopifnot(!anyNA(spa_p))
+        moved <- u^2 / diag(phi) >= 4
+        u[moved] <- sign(u[moved]) * sqrt(diag(phi)[moved] * qchisq(spa_p[moved], 1, lower.tail = FALSE))
+        moved_sets <- moved_sets + any(moved)
+      }
       q <- sum(w^2 * u^2)
-      note(kind, "variance_q", rel_err(row$variance_q, q), limit)
+      # A calibrated Q carries the nine digits of the written p-values.
+      note(kind, if (calibrated) "variance_q (saddlepoint-calibrated scores)" else "variance_q", rel_err(row$variance_q, q),
+           if (calibrated) 1e-6 else limit)
 
-      single_p <- pchisq(u^2 / diag(phi), 1, lower.tail = FALSE)
-      if ((!binary || run$plain) && all(single_p < 1 - 1e-12)) {
-        note(kind, "cauchy_p", rel_err(row$cauchy_p, cauchy_p(single_p, w^2 * maf[idx] * (1 - maf[idx]))), limit)
+      normal_p <- pchisq(u^2 / diag(phi), 1, lower.tail = FALSE)
+      if (!calibrated && all(normal_p < 1 - 1e-12)) {
+        note(kind, "cauchy_p", rel_err(row$cauchy_p, cauchy_p(normal_p, w^2 * maf[idx] * (1 - maf[idx]))), limit)
       }
       note(kind, "overall_p (Cauchy of the four)",
            rel_err(row$overall_p, cauchy_p(c(row$burden_p, row$variance_p, row$optimal_p, row$cauchy_p))), 1e-6)
 
-      if (run$prefix != "flat" && (!binary || run$plain)) {
+      if (run$prefix != "flat") {
         lambda <- eigen(phi * outer(w, w), symmetric = TRUE, only.values = TRUE)$values
         mixture_rows <- rbind(mixture_rows, data.frame(
           trait = trait, set = set$name, variance_method = row$variance_method,
@@ -207,7 +230,8 @@ for (trait in traits) {
       }
     }
     if (checked < 10) stop(run$prefix, " ", trait, ": only ", checked, " sets checked")
-    cat(sprintf("  %s: %d sets checked\n", run$prefix, checked))
+    cat(sprintf("  %s: %d sets checked%s\n", run$prefix, checked,
+                if (calibrated) sprintf(", %d with a saddlepoint-calibrated score", moved_sets) else ""))
   }
 }
 # For Imhof's integral (slow in mpmath): per trait the IMHOF_SETS / 2 sets
