@@ -12,7 +12,11 @@
 # ROUNDS (3) times each, interleaved, and prints the median wall times and
 # peak memory (GNU time -v).
 #
-# Environment: SAMPLES, VARIANTS, LOCI, ROUNDS, THREADS, TAMIS (the binary;
+# The simulated cohort has some 100 variants per megabase whatever its size;
+# WINDOW_KB (500) widens the windows to stand for denser data (5000: some
+# 1,000 variants per window, as +-500 kb of imputed genotypes holds).
+#
+# Environment: SAMPLES, VARIANTS, LOCI, WINDOW_KB, ROUNDS, THREADS, TAMIS (the binary;
 # default build/tamis), TAMIS_BENCH_DIR (data). Run it when the machine is
 # otherwise idle: the figures are wall times.
 set -euo pipefail
@@ -22,6 +26,7 @@ data=${TAMIS_BENCH_DIR:-$root/build/bench_signals}
 samples=${SAMPLES:-5000}
 variants=${VARIANTS:-20000}
 loci=${LOCI:-100}
+window_kb=${WINDOW_KB:-500}
 rounds=${ROUNDS:-3}
 threads=${THREADS:-2}
 [ -x /usr/bin/time ] || { echo "GNU time is needed: apt-get install time" >&2; exit 1; }
@@ -50,11 +55,11 @@ bcftools view -m2 -M2 -q 0.05:minor "$cohort.vcf.gz" | bcftools query -f '%CHROM
             "0.1", $2, $2, 1
     }
   }' > "$loci_file"
-echo "cohort: $samples samples, $variants variants; $(($(wc -l < "$loci_file") / 2)) lead loci per trait, +-500 kb"
+echo "cohort: $samples samples, $variants variants; $(($(wc -l < "$loci_file") / 2)) lead loci per trait, +-$window_kb kb"
 
 run_signals() {
   measure "$tamis" signals --genotypes "$cohort.vcf.gz" --traits "$cohort.traits.tsv" --trait "$1" \
-    --covariates age,sex,village,pc1,pc2,pc3,pc4 --loci "$loci_file" --threads "$threads" --quiet \
+    --covariates age,sex,village,pc1,pc2,pc3,pc4 --loci "$loci_file" --window-kb "$window_kb" --threads "$threads" --quiet \
     --out "$data/signals_$1"
 }
 : > "$data/times.tsv"
