@@ -640,6 +640,9 @@ SignalOptions check_signal_options(const SignalArguments& arguments, const std::
   if (arguments.loci.empty() == arguments.analysis.regions.empty()) {
     refuse_option("tamis signals", "give either --loci or --region", "--loci takes the loci file of `tamis report`");
   }
+  if (!arguments.analysis.variant_list.empty()) {
+    refuse_option("--variants", "signals tests every variant of each window", "leave --variants out");
+  }
   if (!arguments.loci.empty()) check_readable("--loci", arguments.loci);
   options.loci_path = arguments.loci;
   for (const std::string& text : arguments.analysis.regions) parse_region(text);
