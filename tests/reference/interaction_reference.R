@@ -86,3 +86,47 @@ fs <- data.frame(f = c(0.2, 3.1, 12, 400, 5000), df1 = c(2, 3, 2, 4, 2), df2 = c
 for (i in seq_len(nrow(fs))) {
   out(sprintf("f.%g.%d.%d", fs$f[i], fs$df1[i], fs$df2[i]), pf(fs$f[i], fs$df1[i], fs$df2[i], lower.tail = FALSE, log.p = TRUE))
 }
+
+# Score tests of the interaction, written out from their formulas with lm
+# and glm fits: U = (g.E)' e at the fit of [X g] (e its residuals), a = the
+# columns g.E less their (weighted) regression on [X g], V = s^2 a'a
+# (model-based; s^2 of that fit; logistic: a' W a) or sum e_i^2 a_i a_i'
+# (HC0; HC3 divides by (1 - h_i)^2 with hatvalues of the [X g] fit). The
+# joint test of (g, g.E) the same against the null fit. The logistic scores
+# are at glm's maximum-likelihood fit of [X g].
+for (name in names(cases)) {
+  case <- cases[[name]]
+  others <- if (case$exposure == "E") "age + site + E" else "age + E + site"
+  m0 <- fit(as.formula(paste(case$trait, "~", others)), case$binary)
+  m_main <- fit(as.formula(paste(case$trait, "~", others, "+ g")), case$binary)
+  X0 <- model.matrix(m0); X1 <- model.matrix(m_main)
+  H <- if (case$exposure == "E") cbind(d$g * d$E) else cbind(d$g * d$siteB, d$g * d$siteC)
+  y <- d[[case$trait]]
+  score_test <- function(fit, X, cols, type) {
+    mu <- fitted(fit); e <- y - mu
+    w <- if (case$binary) mu * (1 - mu) else rep(1, length(y))
+    a <- cols - X %*% solve(crossprod(X, X * w), crossprod(X * w, cols))
+    U <- crossprod(cols, e)
+    V <- if (type == "model") {
+      s2 <- if (case$binary) 1 else sum(e^2) / df.residual(fit)
+      s2 * crossprod(a, a * w)
+    } else {
+      omega <- e^2
+      if (type == "hc3") omega <- omega / (1 - hatvalues(fit))^2
+      crossprod(a, a * omega)
+    }
+    drop(t(U) %*% solve(V, U))
+  }
+  for (v in c("model", "hc0", "hc3")) {
+    k <- ncol(H)
+    stat <- score_test(m_main, X1, H, v)
+    out(paste0(name, ".score.", v, ".interaction_stat"), stat)
+    out(paste0(name, ".score.", v, ".interaction_p"), pchisq(stat, k, lower.tail = FALSE))
+    joint <- score_test(m0, X0, cbind(d$g, H), v)
+    out(paste0(name, ".score.", v, ".joint_stat"), joint)
+    out(paste0(name, ".score.", v, ".joint_p"), pchisq(joint, k + 1, lower.tail = FALSE))
+    vc <- if (v == "model") vcov(m_main) else vcovHC(m_main, type = toupper(v))
+    out(paste0(name, ".score.", v, ".main_beta"), coef(m_main)["g"])
+    out(paste0(name, ".score.", v, ".main_se"), sqrt(vc["g", "g"]))
+  }
+}
