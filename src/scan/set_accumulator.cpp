@@ -19,25 +19,23 @@ namespace tamis {
 namespace {
 
 // One column of the set tests: a variant, or the sum of the set's
-// ultra-rare variants. Signs are applied: every unit counts minor alleles.
+// ultra-rare variants. Every unit counts minor alleles: a variant's column
+// is read where the scan keeps it and its sign applied as it is read.
 struct TestUnit {
-  double u = 0.0;
-  std::vector<double> projections;
-  SparseColumn column;
-  SparseColumn dosages;  // empty when the column is the dosages themselves
+  double u = 0.0;  // signed
+  double sign = 1.0;
+  std::vector<double> projections;  // signed
+  const SparseColumn* column = nullptr;
+  const SparseColumn* dosages = nullptr;  // null when the column is the dosages themselves
+  // A collapsed unit's own signed sums, which `column` and `dosages` point to.
+  std::shared_ptr<SparseColumn> summed_column, summed_dosages;
   double weight = 1.0;
   double minor_allele_frequency = 0.0;
   double log_p = 0.0;  // single-variant p; NaN for a collapsed unit until computed
 };
 
-void scale_column(const SparseColumn& column, double factor, SparseColumn& out) {
-  out.samples = column.samples;
-  out.values.resize(column.values.size());
-  for (std::size_t entry = 0; entry < column.values.size(); ++entry) out.values[entry] = factor * column.values[entry];
-}
-
-// a + b over the union of their samples (both sorted).
-SparseColumn add_columns(const SparseColumn& a, const SparseColumn& b) {
+// a + factor b over the union of their samples (both sorted).
+SparseColumn add_columns(const SparseColumn& a, const SparseColumn& b, double factor) {
   SparseColumn sum;
   std::size_t at_a = 0, at_b = 0;
   while (at_a < a.samples.size() || at_b < b.samples.size()) {
@@ -51,7 +49,7 @@ SparseColumn add_columns(const SparseColumn& a, const SparseColumn& b) {
     }
     if (take_b) {
       sample = b.samples[at_b];
-      value += b.values[at_b++];
+      value += factor * b.values[at_b++];
     }
     sum.samples.push_back(sample);
     sum.values.push_back(value);
@@ -71,10 +69,11 @@ double weight_of(const SetScanOptions& options, double minor_allele_frequency, d
 TestUnit unit_of(const SetScanOptions& options, const SetVariant& variant, double listed_weight) {
   TestUnit unit;
   unit.u = variant.sign * variant.u;
+  unit.sign = variant.sign;
   unit.projections = variant.projections;
   for (double& value : unit.projections) value *= variant.sign;
-  scale_column(variant.column, variant.sign, unit.column);
-  if (!variant.dosages.samples.empty()) scale_column(variant.dosages, variant.sign, unit.dosages);
+  unit.column = &variant.column;
+  if (!variant.dosages.samples.empty()) unit.dosages = &variant.dosages;
   unit.minor_allele_frequency = variant.minor_allele_frequency;
   unit.weight = weight_of(options, variant.minor_allele_frequency, listed_weight);
   unit.log_p = variant.log_p;
@@ -87,6 +86,10 @@ TestUnit collapse_units(const SetScanOptions& options, const std::vector<TestUni
                         const std::vector<double>& listed) {
   TestUnit sum;
   sum.projections.assign(units.front().projections.size(), 0.0);
+  sum.summed_column = std::make_shared<SparseColumn>();
+  const bool any_dosages =
+      std::any_of(units.begin(), units.end(), [](const TestUnit& unit) { return unit.dosages != nullptr; });
+  if (any_dosages) sum.summed_dosages = std::make_shared<SparseColumn>();
   double listed_total = 0.0;
   for (std::size_t unit_idx = 0; unit_idx < units.size(); ++unit_idx) {
     const TestUnit& unit = units[unit_idx];
@@ -94,22 +97,50 @@ TestUnit collapse_units(const SetScanOptions& options, const std::vector<TestUni
     for (std::size_t column_idx = 0; column_idx < unit.projections.size(); ++column_idx) {
       sum.projections[column_idx] += unit.projections[column_idx];
     }
-    sum.column = add_columns(sum.column, unit.column);
-    if (!unit.dosages.samples.empty()) sum.dosages = add_columns(sum.dosages, unit.dosages);
+    *sum.summed_column = add_columns(*sum.summed_column, *unit.column, unit.sign);
+    if (unit.dosages) *sum.summed_dosages = add_columns(*sum.summed_dosages, *unit.dosages, unit.sign);
     sum.minor_allele_frequency += unit.minor_allele_frequency;
     listed_total += std::isnan(listed[unit_idx]) ? 1.0 : listed[unit_idx];
   }
+  sum.column = sum.summed_column.get();
+  sum.dosages = sum.summed_dosages.get();
   sum.minor_allele_frequency = std::min(sum.minor_allele_frequency, 0.5);
   sum.weight = weight_of(options, sum.minor_allele_frequency, listed_total / static_cast<double>(units.size()));
   sum.log_p = std::numeric_limits<double>::quiet_NaN();
   return sum;
 }
 
+// X'WX of the units' (signed) columns, column by column: one column spread
+// over the samples, the others' entries read against it, so the cost is the
+// units times their entries, not the samples.
+Eigen::MatrixXd weighted_cross_products(const std::vector<TestUnit>& units, const Eigen::VectorXd& weights) {
+  const Eigen::Index unit_count = static_cast<Eigen::Index>(units.size());
+  Eigen::MatrixXd cross(unit_count, unit_count);
+  // Kept per thread and left all zero after each set: a set costs its
+  // entries, not a pass over the samples.
+  thread_local std::vector<double> spread;
+  spread.resize(std::max(spread.size(), static_cast<std::size_t>(weights.size())), 0.0);
+  for (Eigen::Index first = 0; first < unit_count; ++first) {
+    const TestUnit& unit = units[static_cast<std::size_t>(first)];
+    const SparseColumn& column = *unit.column;
+    for (std::size_t entry = 0; entry < column.samples.size(); ++entry) {
+      const std::uint32_t sample = column.samples[entry];
+      spread[sample] = weights[static_cast<Eigen::Index>(sample)] * column.values[entry];
+    }
+    for (Eigen::Index second = first; second < unit_count; ++second) {
+      const SparseColumn& other = *units[static_cast<std::size_t>(second)].column;
+      double sum = 0.0;
+      for (std::size_t entry = 0; entry < other.samples.size(); ++entry) sum += spread[other.samples[entry]] * other.values[entry];
+      cross(first, second) = cross(second, first) = unit.sign * units[static_cast<std::size_t>(second)].sign * sum;
+    }
+    for (const std::uint32_t sample : column.samples) spread[sample] = 0.0;
+  }
+  return cross;
+}
+
 // The score covariance of the units: scale (X'WX - P'P), X the columns and P
 // their projections on the kernel's basis; the same sums the kernel takes
-// for each variant's own variance. X'WX goes column by column: one column
-// spread over the samples, the others' entries read against it, so the
-// cost is the units times their entries, not the samples.
+// for each variant's own variance.
 Eigen::MatrixXd score_covariance(const TraitContext& trait, const std::vector<TestUnit>& units) {
   const Eigen::Index unit_count = static_cast<Eigen::Index>(units.size());
   const Eigen::Index basis_columns = static_cast<Eigen::Index>(units.front().projections.size());
@@ -118,28 +149,8 @@ Eigen::MatrixXd score_covariance(const TraitContext& trait, const std::vector<Te
     const std::vector<double>& unit_projections = units[static_cast<std::size_t>(unit_idx)].projections;
     projections.col(unit_idx) = Eigen::Map<const Eigen::VectorXd>(unit_projections.data(), basis_columns);
   }
-  Eigen::MatrixXd covariance = -(projections.transpose() * projections);
-  const Eigen::VectorXd& weights = trait.model.weights;
-  // Kept per thread and left all zero after each set: a set costs its
-  // entries, not a pass over the samples.
-  thread_local std::vector<double> spread;
-  spread.resize(std::max(spread.size(), static_cast<std::size_t>(trait.model.sample_count())), 0.0);
-  for (Eigen::Index first = 0; first < unit_count; ++first) {
-    const SparseColumn& column = units[static_cast<std::size_t>(first)].column;
-    for (std::size_t entry = 0; entry < column.samples.size(); ++entry) {
-      spread[column.samples[entry]] = weights[static_cast<Eigen::Index>(column.samples[entry])] * column.values[entry];
-    }
-    for (Eigen::Index second = first; second < unit_count; ++second) {
-      const SparseColumn& other = units[static_cast<std::size_t>(second)].column;
-      double cross = 0.0;
-      for (std::size_t entry = 0; entry < other.samples.size(); ++entry) {
-        cross += spread[other.samples[entry]] * other.values[entry];
-      }
-      covariance(first, second) += cross;
-      if (second != first) covariance(second, first) += cross;
-    }
-    for (const std::uint32_t sample : column.samples) spread[sample] = 0.0;
-  }
+  const Eigen::MatrixXd covariance =
+      weighted_cross_products(units, trait.model.weights) - projections.transpose() * projections;
   const double scale = trait.model.kind == TraitKind::quantitative ? trait.model.sigma2 : 1.0;
   return scale * covariance;
 }
@@ -162,9 +173,10 @@ double saddlepoint_log_p(const TraitContext& trait, const Eigen::VectorXd& dosag
 
 Eigen::VectorXd unit_dosages(const TraitContext& trait, const TestUnit& unit, double factor) {
   Eigen::VectorXd dosages = Eigen::VectorXd::Zero(trait.model.sample_count());
-  const SparseColumn& column = unit.dosages.samples.empty() ? unit.column : unit.dosages;
+  const SparseColumn& column = unit.dosages ? *unit.dosages : *unit.column;
+  const double signed_factor = unit.sign * factor;
   for (std::size_t entry = 0; entry < column.samples.size(); ++entry) {
-    dosages[static_cast<Eigen::Index>(column.samples[entry])] += factor * column.values[entry];
+    dosages[static_cast<Eigen::Index>(column.samples[entry])] += signed_factor * column.values[entry];
   }
   return dosages;
 }

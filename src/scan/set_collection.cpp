@@ -46,6 +46,8 @@ bool has_id_only_entries(const VariantSets& sets) {
 void find_block_sets(const VariantSets& sets, const DosageBlock& block, BlockSets& out) {
   out.of_site.resize(block.size());
   out.contig_keys.resize(block.size());
+  out.genotype_entries.resize(block.size());
+  out.genotype_entries_found.assign(block.size(), 0);
   std::string last_contig;
   std::string last_key;
   for (std::size_t site_idx = 0; site_idx < block.size(); ++site_idx) {
@@ -60,37 +62,76 @@ void find_block_sets(const VariantSets& sets, const DosageBlock& block, BlockSet
   }
 }
 
+std::vector<std::int32_t> analysis_row_of_genotype_sample(const std::vector<std::size_t>& genotype_index,
+                                                          std::size_t genotype_samples) {
+  std::vector<std::int32_t> rows(genotype_samples, -1);
+  for (std::size_t row = 0; row < genotype_index.size(); ++row) rows[genotype_index[row]] = static_cast<std::int32_t>(row);
+  return rows;
+}
+
 namespace {
 
-// The site's dosages over the analysis samples, a missing one imputed, kept
-// where they are not 0 (a rare variant's carriers, and imputed fills).
-void sparse_dosages(const TraitContext& trait, const DosageBlock& block, std::size_t site_idx, double fill,
-                    SparseColumn& out) {
-  const std::vector<std::size_t>& samples = trait.set.genotype_index;
+// The site's dosages that are not 0 over every genotype sample, a missing
+// one kept as NaN: one pass over the row, eight at a time past the runs of zeros.
+void find_genotype_entries(const DosageBlock& block, std::size_t site_idx, SparseColumn& out) {
   const double* dosages = block.site_dosages(site_idx);
-  out.samples.clear();
-  out.values.clear();
-  auto keep = [&](std::size_t sample_idx, double value) {
-    if (value == 0.0) return;
-    out.samples.push_back(static_cast<std::uint32_t>(sample_idx));
-    out.values.push_back(std::isnan(value) ? fill : value);
-  };
-  // Every genotype sample analysed (the usual case): one pass over the row,
-  // eight at a time past the runs of zeros (NaN, a missing dosage, is not
-  // zero and so is kept).
-  if (samples.size() == block.sample_count) {
-    constexpr std::size_t kRun = 8;
-    std::size_t sample_idx = 0;
-    for (; sample_idx + kRun <= samples.size(); sample_idx += kRun) {
-      bool any = false;
-      for (std::size_t lane = 0; lane < kRun; ++lane) any |= dosages[sample_idx + lane] != 0.0;
-      if (!any) continue;
-      for (std::size_t lane = 0; lane < kRun; ++lane) keep(sample_idx + lane, dosages[sample_idx + lane]);
+  const std::size_t count = block.sample_count;
+  // Written in place and cut to length after: imputed dosages are mostly
+  // not 0, and growing the vectors entry by entry would cost more than the pass.
+  out.samples.resize(count);
+  out.values.resize(count);
+  std::size_t kept = 0;
+  constexpr std::size_t kRun = 8;
+  std::size_t sample_idx = 0;
+  auto keep_run = [&](std::size_t end) {
+    for (; sample_idx < end; ++sample_idx) {
+      out.samples[kept] = static_cast<std::uint32_t>(sample_idx);
+      out.values[kept] = dosages[sample_idx];
+      kept += dosages[sample_idx] != 0.0;  // NaN, a missing dosage, is not 0 and so is kept
     }
-    for (; sample_idx < samples.size(); ++sample_idx) keep(sample_idx, dosages[sample_idx]);
+  };
+  while (sample_idx + kRun <= count) {
+    bool any = false;
+    for (std::size_t lane = 0; lane < kRun; ++lane) any |= dosages[sample_idx + lane] != 0.0;
+    if (any) {
+      keep_run(sample_idx + kRun);
+    } else {
+      sample_idx += kRun;
+    }
+  }
+  keep_run(count);
+  out.samples.resize(kept);
+  out.values.resize(kept);
+}
+
+// The site's dosages over the trait's analysis samples, a missing one
+// imputed, kept where they are not 0 (a rare variant's carriers, and
+// imputed fills): the block's shared entries, read through the trait's rows.
+void sparse_dosages(const TraitSetContext& sets, const DosageBlock& block, const BlockSets& block_sets,
+                    std::size_t site_idx, double fill, SparseColumn& out) {
+  if (!block_sets.genotype_entries_found[site_idx]) {
+    find_genotype_entries(block, site_idx, block_sets.genotype_entries[site_idx]);
+    block_sets.genotype_entries_found[site_idx] = 1;
+  }
+  const SparseColumn& entries = block_sets.genotype_entries[site_idx];
+  const std::vector<std::int32_t>& rows = sets.analysis_row_of_genotype_sample;
+  if (rows.size() == sets.kernel_row_of_sample.size()) {
+    // Every genotype sample analysed (the usual case): the rows are the samples.
+    out.samples = entries.samples;
+    out.values = entries.values;
+    for (double& value : out.values) value = std::isnan(value) ? fill : value;
     return;
   }
-  for (std::size_t sample_idx = 0; sample_idx < samples.size(); ++sample_idx) keep(sample_idx, dosages[samples[sample_idx]]);
+  out.samples.clear();
+  out.values.clear();
+  out.samples.reserve(entries.samples.size());
+  out.values.reserve(entries.samples.size());
+  for (std::size_t entry = 0; entry < entries.samples.size(); ++entry) {
+    const std::int32_t row = rows[entries.samples[entry]];
+    if (row < 0) continue;  // rows rise with the genotype samples: the order holds
+    out.samples.push_back(static_cast<std::uint32_t>(row));
+    out.values.push_back(std::isnan(entries.values[entry]) ? fill : entries.values[entry]);
+  }
 }
 
 // The column a model adjusted (imputed and whitened) for the kernel, read
@@ -140,10 +181,10 @@ void collect_set_variant(const TraitContext& trait, const TraitSetContext& sets,
   // ones imputed by the kernel); a mixed model's reads its own adjusted copy.
   const bool kernel_reads_dosages = input.genotypes == gathered.genotypes.data();
   if (kernel_reads_dosages) {
-    sparse_dosages(trait, block, site_idx, fill, variant.column);
+    sparse_dosages(sets, block, block_sets, site_idx, fill, variant.column);
   } else {
     sparse_kernel_column(sets, input, width, site_idx, variant.column);
-    if (trait.saddlepoint) sparse_dosages(trait, block, site_idx, fill, variant.dosages);
+    if (trait.saddlepoint) sparse_dosages(sets, block, block_sets, site_idx, fill, variant.dosages);
   }
   variant.sets = memberships;
   out.push_back(std::move(variant));

@@ -22,10 +22,22 @@ struct KernelInput;
 struct ResultRow;
 struct ScoreResult;
 
+// Non-zero entries of a column, in sample order.
+struct SparseColumn {
+  std::vector<std::uint32_t> samples;
+  std::vector<double> values;
+};
+
 // The sets each site of a block belongs to.
 struct BlockSets {
   std::vector<std::vector<SetMembership>> of_site;
   std::vector<std::string> contig_keys;  // set_contig_key of each site's contig
+  // A member site's dosages that are not 0, over every genotype sample
+  // (missing ones NaN): found at the first trait's request and read by the
+  // others, so that a site's row is scanned once, not once per trait. Only
+  // the thread that tests the block touches them, trait after trait.
+  mutable std::vector<SparseColumn> genotype_entries;
+  mutable std::vector<char> genotype_entries_found;
 };
 
 // Where a shard's cut at `first_position` of `contig` goes so that no set
@@ -39,12 +51,6 @@ bool has_id_only_entries(const VariantSets& sets);
 
 // Fills `out` for every site of the block (one lookup per site, shared by all traits).
 void find_block_sets(const VariantSets& sets, const DosageBlock& block, BlockSets& out);
-
-// Non-zero entries of a column over a trait's analysis samples, in sample order.
-struct SparseColumn {
-  std::vector<std::uint32_t> samples;
-  std::vector<double> values;
-};
 
 // One variant's evidence for the sets that take it, for one trait.
 struct SetVariant {
@@ -75,7 +81,14 @@ struct TraitSetContext {
   double maf_ceiling = 0.01;
   // The kernel row of each analysis sample (where the kernel's own column is read).
   std::vector<std::size_t> kernel_row_of_sample;
+  // The analysis row of each genotype sample; -1 where it is not analysed.
+  std::vector<std::int32_t> analysis_row_of_genotype_sample;
 };
+
+// The analysis row of each of `genotype_samples` samples, -1 for those
+// outside `genotype_index` (a trait's analysis samples, ascending).
+std::vector<std::int32_t> analysis_row_of_genotype_sample(const std::vector<std::size_t>& genotype_index,
+                                                          std::size_t genotype_samples);
 
 // Adds the variant at `site_idx` to `out` when it belongs to a set, passed
 // the trait's floors (the caller checks those) and lies below the MAF

@@ -144,6 +144,10 @@ double MixtureCgf::log_chernoff_bound(double y) const {
 
 namespace {
 
+// The exact tail where p is below Davies' floor: the inversion, then the
+// saddlepoint, then moment matching (defined with them, below).
+MixtureTail tail_below_davies_floor(const std::vector<double>& lambdas, double q);
+
 constexpr double kPi = 3.14159265358979323846;
 
 // ---- Davies' inversion --------------------------------------------------------
@@ -438,8 +442,12 @@ double MixtureTailTable::log_upper_tail(double q, bool absolute_will_do) const {
     const double half_re = std::cos(0.5 * delta_ * q), half_im = -std::sin(0.5 * delta_ * q);
     const double p = 0.5 + (sum_re * half_im + sum_im * half_re);
     constexpr double kDaviesFloor = 1e-3;  // as in mixture_chisq_upper_tail
+    constexpr double kTableAccuracy = 1e-9;
     if (p >= kDaviesFloor && p <= 1.0) return std::log(p);
     if (absolute_will_do) return std::log(std::clamp(p, 1e-300, 1.0));
+    // Surely below the floor: Davies' own sum would end there too, so the
+    // tail goes straight to the inversion.
+    if (p < kDaviesFloor - 2.0 * kTableAccuracy) return tail_below_davies_floor(lambdas_, q).log_p;
   }
   return mixture_chisq_upper_tail(lambdas_, q).log_p;
 }
@@ -628,6 +636,14 @@ InversionTail invert_on_kept(const std::vector<double>& lambdas, double q) {
   return result;
 }
 
+MixtureTail tail_below_davies_floor(const std::vector<double>& lambdas, double q) {
+  const InversionTail inverted = invert_on_kept(lambdas, q);
+  if (inverted.converged && inverted.log_p <= 0.0) return {inverted.log_p, MixtureTailMethod::contour_inversion};
+  const double saddlepoint = saddlepoint_on_kept(lambdas, q);
+  if (std::isfinite(saddlepoint)) return {saddlepoint, MixtureTailMethod::saddlepoint};
+  return {moment_matching_on_kept(lambdas, q), MixtureTailMethod::moment_matching};
+}
+
 }  // namespace
 
 const char* mixture_tail_method_name(MixtureTailMethod method) {
@@ -693,11 +709,7 @@ MixtureTail mixture_chisq_upper_tail(const std::vector<double>& eigenvalues, dou
     const DaviesTail davies = davies_on_kept(lambdas, q, kDaviesAccuracy, term_budget, false);
     if (davies.reached && davies.p >= kDaviesFloor) return {std::log(davies.p), MixtureTailMethod::davies};
   }
-  const InversionTail inverted = invert_on_kept(lambdas, q);
-  if (inverted.converged && inverted.log_p <= 0.0) return {inverted.log_p, MixtureTailMethod::contour_inversion};
-  const double saddlepoint = saddlepoint_on_kept(lambdas, q);
-  if (std::isfinite(saddlepoint)) return {saddlepoint, MixtureTailMethod::saddlepoint};
-  return {moment_matching_on_kept(lambdas, q), MixtureTailMethod::moment_matching};
+  return tail_below_davies_floor(lambdas, q);
 }
 
 }  // namespace tamis
