@@ -36,11 +36,18 @@ struct ResultRow {
   double call_rate = 0.0;
   std::optional<double> hwe_log_p;  // ln p of the Hardy-Weinberg exact test on the hard calls
   std::optional<std::size_t> n_cases;
+  // Columns some analyses add after the standard ones (interaction tests):
+  // their values already formatted, each preceded by a tab.
+  std::string extra_fields;
 };
 
 // The column names, in file order; the first eight are the GWAS-SSF mandatory set.
 const std::vector<std::string>& result_columns();
 std::string result_header_line();  // the names joined by tabs, with '\n'
+// The same with `extra_columns` after the standard ones.
+std::string result_header_line(const std::vector<std::string>& extra_columns);
+// A number as the standard columns write it ("%.9g"; "#NA" when not finite).
+void append_result_number(double value, std::string& out);
 void append_result_row(const ResultRow& row, std::string& out);  // one line with '\n'
 
 // p from ln p: plain "%.9g" when representable, else mantissa and exponent

@@ -11,6 +11,7 @@
 #include <vector>
 
 #include "tamis/genotype_reader.hpp"
+#include "tamis/interaction.hpp"
 #include "tamis/set_scan_options.hpp"
 #include "tamis/trait_table.hpp"
 #include "tamis/types.hpp"
@@ -110,6 +111,10 @@ struct ScanOptions {
   // --condition-on: variants (chr:pos:ref:alt or IDs) whose dosages join
   // every trait's covariates.
   std::vector<std::string> condition_on;
+  // --interaction-with: the exposure E (a covariate, numeric or text); every
+  // variant is tested for its interaction with E, with robust variances.
+  std::string interaction_with;
+  RobustErrors robust_errors = RobustErrors::hc0;
   QcFloors floors;
   SetScanOptions sets;  // --sets: variant-set tests beside the single-variant ones
   std::string keep_samples_path;  // one sample ID per line

@@ -95,6 +95,8 @@ struct ScanArguments {
   std::vector<std::string> relatedness;
   std::vector<std::string> condition_on;
   std::string condition_list;
+  std::string interaction_with;
+  std::string robust_errors = "hc0";
   std::string drop_samples;
   std::vector<std::string> rank_normalize;
   int haploid_dosage = 1;
@@ -107,6 +109,33 @@ struct ScanArguments {
   std::size_t set_max_variants = 5000;
   double set_exact_below = 1e-3;
 };
+
+// --interaction-with and --robust-errors. The exposure joins the
+// covariates when they do not list it: its main effect is always in the
+// null model.
+void check_interaction_options(const ScanArguments& arguments, ScanOptions& options) {
+  const std::map<std::string, RobustErrors> variances = {
+      {"hc0", RobustErrors::hc0}, {"hc3", RobustErrors::hc3}, {"off", RobustErrors::off}};
+  if (!variances.count(arguments.robust_errors)) {
+    refuse_option("--robust-errors", "'" + arguments.robust_errors + "' is not hc0, hc3 or off",
+                  "hc0 (the default) is White's sandwich; hc3 suits small samples; off keeps model-based variances");
+  }
+  options.robust_errors = variances.at(arguments.robust_errors);
+  if (arguments.interaction_with.empty()) return;
+  if (!arguments.relatedness.empty()) {
+    refuse_option("--interaction-with", "interaction tests take unrelated samples and cannot be combined with --relatedness",
+                  "run the interaction scan without --relatedness, on unrelated samples (--keep-samples)");
+  }
+  if (!arguments.sets.empty()) {
+    refuse_option("--interaction-with", "interaction tests are of single variants and cannot be combined with --sets",
+                  "run the set tests and the interaction scan separately");
+  }
+  options.interaction_with = arguments.interaction_with;
+  if (std::find(options.covariates.begin(), options.covariates.end(), options.interaction_with) ==
+      options.covariates.end()) {
+    options.covariates.push_back(options.interaction_with);
+  }
+}
 
 // --sets and the options that shape the set tests.
 void check_set_options(const ScanArguments& arguments, SetScanOptions& sets) {
@@ -311,6 +340,7 @@ ScanOptions check_scan_options(const ScanArguments& arguments, const std::string
     refuse_option("--shard", "--shard and --region cannot be combined", "shard the whole genome, or list regions");
   }
   check_set_options(arguments, options.sets);
+  check_interaction_options(arguments, options);
   return options;
 }
 
@@ -363,6 +393,12 @@ void add_analysis_options(CLI::App* command, ScanArguments& arguments) {
                       "Variant (ID or chr:pos:ref:alt) whose dosages join every trait's covariates (repeatable)");
   command->add_option("--condition-list", arguments.condition_list,
                       "File of variants to condition on, one per line (as --condition-on)");
+  command->add_option("--interaction-with", arguments.interaction_with,
+                      "Test each variant's interaction with this covariate (numeric, or text with its levels), "
+                      "its main effect in the null model; adds main-effect and joint-test columns");
+  command->add_option("--robust-errors", arguments.robust_errors,
+                      "Variance of the interaction tests: hc0 (sandwich), hc3 (small-sample sandwich) or off")
+      ->capture_default_str();
   command->add_option("--rank-normalize", arguments.rank_normalize,
                       "Quantitative trait to give a rank-based inverse normal transform (repeatable)");
   command->add_option("--haploid-dosage", arguments.haploid_dosage,

@@ -110,6 +110,14 @@ const std::vector<std::string>& result_columns() {
 
 std::string result_header_line() { return header_line_of(result_columns()); }
 
+void append_result_number(double value, std::string& out) { append_number(out, value); }
+
+std::string result_header_line(const std::vector<std::string>& extra_columns) {
+  std::vector<std::string> columns = result_columns();
+  columns.insert(columns.end(), extra_columns.begin(), extra_columns.end());
+  return header_line_of(columns);
+}
+
 std::string format_p_value(double log_p) {
   if (std::isnan(log_p) || log_p == -INFINITY) return missing_text;
   if (log_p >= 0.0) return "1";
@@ -186,6 +194,7 @@ void append_result_row(const ResultRow& row, std::string& out) {
   append_optional_p_value(out, row.hwe_log_p);
   out += '\t';
   append_optional_count(out, row.n_cases);
+  out += row.extra_fields;
   out += '\n';
 }
 

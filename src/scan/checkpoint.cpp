@@ -47,6 +47,10 @@ std::vector<std::string> describe_run(const ScanOptions& options, bool with_shar
   }
   lines.push_back("covariates=" + join(options.covariates));
   if (!options.condition_on.empty()) lines.push_back("condition_on=" + join(options.condition_on));
+  if (!options.interaction_with.empty()) {
+    lines.push_back("interaction_with=" + options.interaction_with);
+    lines.push_back(std::string("robust_errors=") + robust_errors_name(options.robust_errors));
+  }
   lines.push_back(std::string("dosage_from=") + dosage_field_name(options.dosage_field));
   lines.push_back("confirm_below=" + number_text(options.confirm_below));
   lines.push_back("disagreement_flag=" + number_text(options.spread_flag));

@@ -110,7 +110,9 @@ class MixedLinearModel : public WhitenedBlocks<MixedModel> {
   using WhitenedBlocks::WhitenedBlocks;
 
   Confirmation confirm(const Eigen::VectorXd& genotype, double) const override {
-    return {mixed_.confirm(genotype), false, false};
+    Confirmation confirmation;
+    confirmation.result = mixed_.confirm(genotype);
+    return confirmation;
   }
 };
 

@@ -18,6 +18,7 @@
 #include "scan/block_sizing.hpp"
 #include "scan/checkpoint.hpp"
 #include "scan/conditioning.hpp"
+#include "scan/interaction_model.hpp"
 #include "scan/progress.hpp"
 #include "scan/related_samples.hpp"
 #include "scan/sample_lists.hpp"
@@ -193,9 +194,12 @@ std::vector<TraitContext> prepare_traits(const ScanOptions& options, const Trait
   for (TraitContext& trait : traits) {
     trait.kernel = make_kernel(trait);
     const bool mixed = trait.mixed || trait.logistic_mixed;
-    trait.tests = mixed ? make_mixed_model(trait, kernel_row_of_sample(trait))
-                        : make_plain_model(trait.model, options.penalized_refit);
-    if (trait.set.kind == TraitKind::binary && options.binary_score == BinaryScore::saddlepoint) {
+    const bool interaction = !options.interaction_with.empty();
+    trait.tests = mixed         ? make_mixed_model(trait, kernel_row_of_sample(trait))
+                  : interaction ? make_interaction_model(trait, options.interaction_with, options.robust_errors)
+                                : make_plain_model(trait.model, options.penalized_refit);
+    // The saddlepoint approximation is of the main effect's score.
+    if (trait.set.kind == TraitKind::binary && options.binary_score == BinaryScore::saddlepoint && !interaction) {
       // Under the logistic mixed model, the outcomes are Bernoulli given b-hat.
       trait.saddlepoint = std::make_unique<SaddlepointContext>(
           trait.logistic_mixed ? trait.logistic_mixed->conditional_model() : trait.model);
@@ -461,7 +465,7 @@ void open_result_files(const ScanOptions& options, const std::vector<TraitContex
       progress.files.push_back(BgzfTextFile::resume(path, size->second));
     } else {
       progress.files.push_back(std::make_unique<BgzfTextFile>(path));
-      progress.files.back()->write(result_header_line());
+      progress.files.back()->write(result_header_line(trait.tests->extra_columns()));
     }
     progress.files.back()->keep_on_interrupt();
   }

@@ -8,6 +8,7 @@
 #include <Eigen/Dense>
 #include <cstddef>
 #include <memory>
+#include <string>
 #include <vector>
 
 #include "tamis/confirm.hpp"
@@ -33,6 +34,12 @@ struct Confirmation {
   // The refit failed (separation) and no penalised refit applies: the score
   // test's p-value stays the row's primary one.
   bool keeps_score = false;
+  // Models that test something other than the main effect (interaction):
+  // the row's test name, the Wald p-value as its primary one, and the values
+  // of its extra columns (see TraitModel::extra_columns).
+  const char* test = nullptr;
+  bool wald_is_primary = false;
+  std::string extra_fields;
 };
 
 class TraitModel {
@@ -53,6 +60,21 @@ class TraitModel {
     (void)context;
     (void)genotype;
     return score.v;
+  }
+  // Columns this model's rows add after the standard ones.
+  virtual std::vector<std::string> extra_columns() const { return {}; }
+  virtual const char* score_test_name() const { return "score"; }
+  // A model that tests something other than the variant's main effect
+  // scores the block itself (from prepare_block's input) and returns true,
+  // with each variant's extra columns in `extra_fields`; false leaves the
+  // scores to the trait's score kernel.
+  virtual bool score_block(const KernelInput& input, std::size_t width, ScoreResult* scores,
+                           std::vector<std::string>& extra_fields) const {
+    (void)input;
+    (void)width;
+    (void)scores;
+    (void)extra_fields;
+    return false;
   }
 };
 

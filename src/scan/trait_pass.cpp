@@ -554,7 +554,7 @@ double spread_of(double score_log_p, double wald_log_p, double lrt_log_p) {
 }
 
 void fill_score_columns(const TraitContext& trait, const ScoreResult& score, ResultRow& row) {
-  row.test = trait.saddlepoint ? "score_spa" : "score";
+  row.test = trait.saddlepoint ? "score_spa" : trait.tests->score_test_name();
   row.beta = score.beta;
   row.standard_error = score.se;
   row.log_p = score.log_p;
@@ -591,7 +591,10 @@ void confirm_row(const TraitContext& trait, const Eigen::VectorXd& column, Resul
     row.test = trait.saddlepoint ? "score_spa_no_refit" : "score_no_refit";
     return;
   }
-  fill_confirmed_columns(confirmation.result, confirmation.by_firth ? "firth_lrt" : "lrt", row);
+  fill_confirmed_columns(confirmation.result,
+                         confirmation.test ? confirmation.test : confirmation.by_firth ? "firth_lrt" : "lrt", row);
+  if (confirmation.wald_is_primary) row.log_p = confirmation.result.wald_log_p;
+  if (!confirmation.extra_fields.empty()) row.extra_fields = confirmation.extra_fields;
 }
 
 // The saddlepoint tail replaces the normal one beyond its cut-off; below it
@@ -648,7 +651,10 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block, co
   scratch.scores.resize(width);
   const ImputedDosages imputed{gathered.missing_rows.data(), gathered.missing_starts.data(), scratch.fills.data()};
   const KernelInput input = trait.tests->prepare_block(gathered, width, scratch.fills.data(), imputed, scratch.adjusted);
-  trait.kernel->compute(input.genotypes, width, scratch.score_scratch, scratch.scores.data(), input.imputed);
+  scratch.extra_fields.clear();
+  if (!trait.tests->score_block(input, width, scratch.scores.data(), scratch.extra_fields)) {
+    trait.kernel->compute(input.genotypes, width, scratch.score_scratch, scratch.scores.data(), input.imputed);
+  }
 
   ResultRow row;
   for (std::size_t site_idx = 0; site_idx < width; ++site_idx) {
@@ -674,6 +680,7 @@ void process_trait_block(const TraitContext& trait, const DosageBlock& block, co
     }
     calibrate_score(trait, block, scratch, site_idx, score);
     fill_score_columns(trait, score, row);
+    row.extra_fields = scratch.extra_fields.empty() ? std::string() : scratch.extra_fields[site_idx];
     if (sets && trait.set_context) {
       collect_set_variant(trait, *trait.set_context, block, *sets, gathered, input,
                           scratch.score_scratch.projections.data(), site_idx, scratch.fills[site_idx], score, row,

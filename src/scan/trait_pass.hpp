@@ -117,6 +117,7 @@ struct TraitScratch {
   std::vector<ScoreResult> scores;
   ScoreScratch score_scratch;
   std::vector<double> adjusted;  // the block as a model adjusted it for the kernel (whitened rows)
+  std::vector<std::string> extra_fields;  // per site: a model's extra columns (TraitModel::score_block)
   Eigen::VectorXd column;
 };
 
