@@ -268,9 +268,9 @@ TEST_F(SetCalibration, QuantitativeNullTraitIsCalibrated) { expect_calibrated(di
 
 // The variance-component and optimal tests take each score moved to the
 // normal deviate of its saddlepoint p-value (saddlepoint_calibrated_scores
-// in set_tests.hpp). With the
-// covariance widened to those variances instead, TAMIS_CALIBRATION_SEED=424242
-// gave 9 variance p-values below 0.001 of 1,500 (bound 7); now 2, and the
+// in set_tests.hpp). With the covariance widened to those variances instead,
+// TAMIS_CALIBRATION_SEED=424242 gave 9 variance p-values below 0.001 of
+// 1,500 (bound 7); now 2, and the
 // default cohort and seeds 7, 424242, 1001, 2718, 90210, 31337, 555 and
 // 8675309 all stay within the bounds for every test (the variance component
 // 5 to 16 below 0.01: on the conservative side).
