@@ -679,6 +679,11 @@ SignalOptions check_signal_options(const SignalArguments& arguments, const std::
   if (!arguments.analysis.variant_list.empty()) {
     refuse_option("--variants", "signals tests every variant of each window", "leave --variants out");
   }
+  if (arguments.analysis.floors.info > 0.0 || arguments.analysis.floors.hwe_p > 0.0) {
+    refuse_option(arguments.analysis.floors.info > 0.0 ? "--info-floor" : "--hwe-floor",
+                  "signals applies the minor allele frequency, minor allele count and call rate floors only",
+                  "leave the option out, or filter the genotype files first");
+  }
   if (!arguments.loci.empty()) check_readable("--loci", arguments.loci);
   options.loci_path = arguments.loci;
   for (const std::string& text : arguments.analysis.regions) parse_region(text);

@@ -146,12 +146,24 @@ struct TraitWindow {
   std::vector<std::size_t> sites;  // the record site of each variant
 };
 
-TraitWindow window_for_trait(const WindowRecords& records, const AnalysisSet& set) {
+// The scan's floors of minor allele frequency, minor allele count and call
+// rate, taken from the dosages (the info and Hardy-Weinberg floors are
+// refused by the command line).
+bool passes_floors(const AnalysisDosages& column, std::size_t sample_count, const QcFloors& floors) {
+  const double alt_frequency = column.sum / (2.0 * column.called);
+  const double minor_frequency = std::fmin(alt_frequency, 1.0 - alt_frequency);
+  const double minor_count = std::fmin(column.sum, 2.0 * column.called - column.sum);
+  return minor_frequency >= floors.minor_allele_frequency && minor_count >= floors.minor_allele_count &&
+         column.called / static_cast<double>(sample_count) >= floors.call_rate;
+}
+
+TraitWindow window_for_trait(const WindowRecords& records, const AnalysisSet& set, const QcFloors& floors) {
   TraitWindow window;
   std::vector<Eigen::VectorXd> columns;
   for (std::size_t site_idx = 0; site_idx < records.block.size(); ++site_idx) {
     std::optional<AnalysisDosages> column = dosages_over_samples(records.block.site_dosages(site_idx), set.genotype_index);
-    if (!column) continue;  // monomorphic here: not tested, as in the scan
+    // Monomorphic here, or below a floor: not tested, as in the scan.
+    if (!column || !passes_floors(*column, set.genotype_index.size(), floors)) continue;
     window.sites.push_back(site_idx);
     window.variants.minor_allele_counts.push_back(std::fmin(column->sum, 2.0 * column->called - column->sum));
     columns.push_back(std::move(column->values));
@@ -235,13 +247,13 @@ std::optional<std::size_t> lead_in_window(const Locus& locus, const WindowRecord
   }
   throw Error(ExitCode::genotype_input, locus.name,
               "the lead variant " + locus.lead_variant_id + " is not among the genotype files' variants that vary in "
-              "the trait's analysis samples",
+              "the trait's analysis samples (and pass the variant floors given)",
               "give the genotype files the scan read, or follow the locus up with --region");
 }
 
 LocusRows follow_up_locus(const TraitFollowUp& follow_up, const Locus& locus) {
   const WindowRecords records = read_window(*follow_up.options, locus);
-  const TraitWindow window = window_for_trait(records, follow_up.set);
+  const TraitWindow window = window_for_trait(records, follow_up.set, follow_up.options->floors);
   const std::optional<std::size_t> lead = lead_in_window(locus, records, window);
   std::vector<std::string> labels;
   for (std::size_t site_idx : window.sites) labels.push_back(site_label(records.block.sites[site_idx]));
