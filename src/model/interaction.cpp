@@ -178,7 +178,19 @@ InteractionFit fit_logistic_interaction(const NullModel& model, const Eigen::Mat
   }
   Eigen::VectorXd start = Eigen::VectorXd::Zero(p + m);
   start.head(p) = model.coefficients;
-  const detail::LogisticFit full = detail::fit_logistic(z, model.y, start, 100);
+  detail::LogisticFit full = detail::fit_logistic(z, model.y, start, 100);
+  // fit_logistic may stop once the deviance no longer moves, which leaves an
+  // interaction column of small values (a continuous exposure near 0)
+  // short of its optimum by about 1e-4; a second run from there takes the
+  // Newton steps that remain.
+  if (full.converged && !full.separated) {
+    const detail::LogisticFit polished = detail::fit_logistic(z, model.y, full.coefficients, 100);
+    if (polished.converged) {
+      const int iterations = full.iterations + polished.iterations;
+      full = polished;
+      full.iterations = iterations;
+    }
+  }
   const detail::LogisticFit main_only =
       detail::fit_logistic(z.leftCols(p + 1), model.y, start.head(p + 1), 100);
 
