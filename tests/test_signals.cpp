@@ -315,6 +315,29 @@ TEST_F(SignalsEndToEnd, ScanRefusesAMultiAllelicRecordNamedByItsId) {
   EXPECT_NE(said.find("name the allele"), std::string::npos) << said;
 }
 
+TEST_F(SignalsEndToEnd, ConditionListEqualsRepeatedConditionOn) {
+  const std::string& dir = *dir_;
+  // Two biallelic records: one by chr:pos:ref:alt, one by its ID.
+  const std::string records = testing::capture_command(
+      "zcat " + dir + "/cohort.vcf.gz | awk '!/^#/ && $5 !~ /,/ && $3 != \".\" {print $1\":\"$2\":\"$4\":\"$5, $3}' | sed -n '20p;60p'");
+  const std::vector<std::string> lines = testing::lines_of(records);
+  ASSERT_EQ(lines.size(), 2u) << records;
+  const std::string by_position = testing::split_fields(lines[0], ' ')[0];
+  const std::string by_id = testing::split_fields(lines[1], ' ')[1];
+  testing::write_text_file(dir + "/conditions.txt", "# conditioning variants\n" + by_position + "\n\n" + by_id + "\n");
+  const std::string scan = testing::tamis_binary() + " scan --genotypes " + dir + "/cohort.vcf.gz --traits " + dir +
+                           "/cohort.traits.tsv --trait fev1_litres --covariates age,sex --quiet --threads 2 --out " + dir;
+  ASSERT_EQ(testing::run_command(scan + "/listed --condition-list " + dir + "/conditions.txt"), 0);
+  ASSERT_EQ(testing::run_command(scan + "/repeated --condition-on " + by_position + " --condition-on " + by_id), 0);
+  EXPECT_EQ(testing::read_gzip_file(dir + "/listed.fev1_litres.tsv.gz"),
+            testing::read_gzip_file(dir + "/repeated.fev1_litres.tsv.gz"));
+  const std::string sidecar = testing::read_text_file(dir + "/listed.fev1_litres.tsv.gz-meta.yaml");
+  EXPECT_NE(sidecar.find("tamis_conditioned_on: " + by_position + ", " + by_id), std::string::npos) << sidecar;
+  const std::string log = testing::read_text_file(dir + "/listed.log");
+  EXPECT_NE(log.find("conditioning on " + by_position), std::string::npos) << log;
+  EXPECT_NE(log.find("(" + by_id + ")"), std::string::npos) << log;
+}
+
 // chr_pos_ref_alt as chr:pos:ref:alt.
 std::string colon_form(std::string variant_id) {
   std::replace(variant_id.begin(), variant_id.end(), '_', ':');
