@@ -26,15 +26,10 @@ conditions <- strsplit(args[6], ",")[[1]]
 traits <- args[-(1:6)]
 cat(R.version.string, "\n")
 
-dos <- read.delim(dosage_path, header = TRUE, check.names = FALSE, na.strings = ".", colClasses = "character")
-info <- dos[, 1:4]
-geno <- as.matrix(dos[, -(1:4)])
-suppressWarnings(storage.mode(geno) <- "double")
-# VCF stores Type=Float values as 32-bit floats (hts-specs VCF 4.3, 1.6.1).
-as_float32 <- function(x) readBin(writeBin(as.vector(x), raw(), size = 4), "double", size = 4, n = length(x))
-geno[] <- as_float32(geno)
-variant_id <- paste(info[, 1], info[, 2], info[, 3], info[, 4], sep = "_")
-colon_id <- paste(info[, 1], info[, 2], info[, 3], info[, 4], sep = ":")
+script_dir <- dirname(sub("^--file=", "", grep("^--file=", commandArgs(trailingOnly = FALSE), value = TRUE)))
+source(file.path(script_dir, "dosage_table.R"))
+dosages <- read_dosage_table(dosage_path)
+geno <- dosages$geno; variant_id <- dosages$variant_id; colon_id <- dosages$colon_id
 samples <- colnames(geno)
 tab <- read.delim(table_path, header = TRUE, na.strings = c("NA", "na", "NaN", ".", ""),
                   stringsAsFactors = FALSE, check.names = FALSE)
