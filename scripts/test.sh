@@ -36,7 +36,7 @@ cmake --build "$asan_build" -j "$jobs"
 library_leak_tests='InputErrors\.(CorruptBgzfBlockGivesThePositionReached|DamagedBgzfIsReportedAsDamageNotAsABadRecord)|InterruptedScan\.FullDisk.*|ReportInBrowser\..*|workflow_snakemake'
 ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
   ctest --test-dir "$asan_build" --output-on-failure -j "$jobs" \
-  -E "^(reference_r_stats|reference_lme4_mixed|reference_r_relatedness|reference_r_sets|MixedCalibration\..*|BinaryMixedCalibration\..*|SetCalibration\..*|LargeReport\..*|$library_leak_tests)\$" ||
+  -E "^(reference_r_stats|reference_lme4_mixed|reference_r_relatedness|reference_r_sets|reference_r_signals|SignalSelection\.Recovers.*|MixedCalibration\..*|BinaryMixedCalibration\..*|SetCalibration\..*|LargeReport\..*|$library_leak_tests)\$" ||
   failed+=("sanitizer tests")
 ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
   LSAN_OPTIONS="suppressions=$PWD/tests/lsan_suppressions.txt:print_suppressions=0" \
