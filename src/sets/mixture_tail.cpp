@@ -550,6 +550,16 @@ double strip_width(double curvature, double offset) {
   return (1.0 - std::sqrt(discriminant)) / (2.0 * curvature);
 }
 
+// ln(1 - w) for complex w, to absolute accuracy, which is all the sum of
+// such logarithms needs: the library's complex logarithm takes pains over the
+// relative accuracy of ln|1 - w| near |1 - w| = 1 (an exactly rounded
+// x^2 + y^2 - 1, sorting its terms), which made it most of the inversion's cost.
+std::complex<double> log_of_one_minus(std::complex<double> w) {
+  const double re = 1.0 - w.real(), im = -w.imag();
+  const double modulus_squared_less_one = w.real() * (w.real() - 2.0) + im * im;
+  return {0.5 * std::log1p(modulus_squared_less_one), std::atan2(im, re)};
+}
+
 InversionTail invert_on_kept(const std::vector<double>& lambdas, double q) {
   InversionTail result;
   const MixtureCgf cgf(lambdas);
@@ -590,7 +600,7 @@ InversionTail invert_on_kept(const std::vector<double>& lambdas, double q) {
   auto integrand = [&](double y) {
     const std::complex<double> offset(contour.curvature * y * y, y);
     std::complex<double> log_ratio = -offset * q;
-    for (const double bk : b) log_ratio -= 0.5 * std::log(1.0 - offset * bk);
+    for (const double bk : b) log_ratio -= 0.5 * log_of_one_minus(offset * bk);
     const std::complex<double> value =
         std::exp(log_ratio) * std::complex<double>(2.0 * contour.curvature * y, 1.0) / (contour.t + offset);
     return value.imag() / kPi;
