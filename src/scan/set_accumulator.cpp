@@ -323,12 +323,10 @@ SetResultRow test_set_variants(const TraitContext& trait, const SetScanOptions& 
   }
   // Screened with the cheap tails; the sets that come out small are tested
   // again exactly, as hits of the single-variant screen are refitted.
-  // The screen's tails are within a few percent, so a margin of 2 takes
-  // every set whose exact p falls below the threshold. The smallest p over
-  // rho is no trigger of its own: the optimal p it leads to is.
   SetTestResult tests = test_variant_set(u, covariance, weights, kOptimalRhoGrid, SetTestPrecision::screening);
-  const double retest_below = std::log(2.0 * options.exact_below);
-  if (options.exact_below >= 1.0 || tests.variance_log_p < retest_below || tests.optimal_log_p < retest_below) {
+  const double exact_below = std::log(options.exact_below);
+  if (options.exact_below >= 1.0 || tests.variance_log_p < exact_below || tests.optimal_log_p < exact_below ||
+      tests.optimal_min_log_p < exact_below) {
     tests = test_variant_set(u, covariance, weights, kOptimalRhoGrid, SetTestPrecision::exact);
   }
   row.burden_log_p = std::isnan(burden_log_p) ? tests.burden_log_p : burden_log_p;
