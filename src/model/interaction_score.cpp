@@ -24,13 +24,172 @@
 #include <algorithm>
 #include <array>
 #include <cmath>
+#include <cstring>
 
+#include "common/vector_clones.hpp"
 #include "tamis/distributions.hpp"
 
 namespace tamis {
 namespace {
 
 constexpr std::size_t kLanes = 8;
+
+// What the linear passes read: the block, each analysis sample's row in it,
+// and the per-sample values of the null model.
+struct LinearTile {
+  const double* genotypes;
+  std::size_t width;
+  const std::size_t* rows;
+  std::size_t n;
+  const double* basis;     // n x p
+  const double* exposure;  // n x k
+  const double* residual;
+  const double* leverage;
+  std::size_t p, k;
+  bool hc3;
+};
+
+// The first pass's sums, kLanes values each, laid out one after another:
+// g'g, g'r, Q'g (p), then per exposure column l: (g.E_l)'r, g'(g.E_l),
+// Q'(g.E_l) (p), and (g.E_l)'(g.E_m) for m <= l.
+std::size_t first_pass_size(std::size_t p, std::size_t k) { return 2 + p + k * (2 + p) + k * (k + 1) / 2; }
+struct FirstPassSums {
+  FirstPassSums(const double* sums, std::size_t p, std::size_t k) : sums_(sums), p_(p), k_(k) {}
+  const double* gg() const { return sums_; }
+  const double* gr() const { return sums_ + kLanes; }
+  const double* qg(std::size_t c) const { return sums_ + (2 + c) * kLanes; }
+  const double* ger(std::size_t l) const { return column(l); }
+  const double* gge(std::size_t l) const { return column(l) + kLanes; }
+  const double* qge(std::size_t l, std::size_t c) const { return column(l) + (2 + c) * kLanes; }
+  const double* gege(std::size_t l, std::size_t m) const {
+    return sums_ + (2 + p_ + k_ * (2 + p_) + l * (l + 1) / 2 + m) * kLanes;
+  }
+
+ private:
+  const double* column(std::size_t l) const { return sums_ + (2 + p_ + l * (2 + p_)) * kLanes; }
+  const double* sums_;
+  std::size_t p_, k_;
+};
+
+// The second pass's sums: the main effect's sandwich, the interaction's
+// (k x k, m <= l) and the joint score's ((k + 1) x (k + 1), i <= j).
+std::size_t second_pass_size(std::size_t k) { return 1 + k * (k + 1) / 2 + (k + 1) * (k + 2) / 2; }
+struct SecondPassSums {
+  SecondPassSums(const double* sums, std::size_t k) : sums_(sums), k_(k) {}
+  const double* main() const { return sums_; }
+  const double* meat(std::size_t l, std::size_t m) const { return sums_ + (1 + l * (l + 1) / 2 + m) * kLanes; }
+  const double* joint(std::size_t i, std::size_t j) const {
+    return sums_ + (1 + k_ * (k_ + 1) / 2 + joint_index(i, j)) * kLanes;
+  }
+
+ private:
+  // Upper triangle, row by row: (i, j), i <= j.
+  std::size_t joint_index(std::size_t i, std::size_t j) const { return i * (2 * (k_ + 1) - i + 1) / 2 + (j - i); }
+  const double* sums_;
+  std::size_t k_;
+};
+
+// The fit of [X g] per lane, for the second pass.
+struct SecondPassInputs {
+  std::array<double, kLanes> s{}, c_hat{};
+  std::vector<double> t_over_s;  // k x kLanes: g~'h~_l / g~'g~
+};
+
+// Samples per chunk of the passes: a chunk's dosages (and exposure
+// products) stay in L1 while every projection column runs over them.
+constexpr std::size_t kChunk = 32;
+
+// Eight lanes of doubles as a GCC vector type: the compiler maps them onto
+// whatever vector unit a clone targets, and every lane keeps its own sums.
+typedef double Lanes __attribute__((vector_size(kLanes * sizeof(double))));
+
+TAMIS_ALWAYS_INLINE Lanes load(const double* values) {
+  Lanes lanes;
+  std::memcpy(&lanes, values, sizeof lanes);
+  return lanes;
+}
+TAMIS_ALWAYS_INLINE void store(double* values, Lanes lanes) { std::memcpy(values, &lanes, sizeof lanes); }
+TAMIS_ALWAYS_INLINE void add_to(double* values, Lanes lanes) { store(values, load(values) + lanes); }
+
+// The chunk's dosages, kLanes per sample (lanes past the block's end as 0).
+TAMIS_ALWAYS_INLINE void load_chunk(const LinearTile& tile, std::size_t start, std::size_t samples, std::size_t first,
+                                    std::size_t lanes, double* g) {
+  for (std::size_t at = 0; at < samples; ++at) {
+    const double* row = tile.genotypes + tile.rows[start + at] * tile.width + first;
+    if (lanes == kLanes) {
+      store(g + at * kLanes, load(row));
+    } else {
+      for (std::size_t lane = 0; lane < kLanes; ++lane) g[at * kLanes + lane] = lane < lanes ? row[lane] : 0.0;
+    }
+  }
+}
+
+// acc[c] += sum over the chunk's samples, in order, of q[s][c] v[s], four
+// columns at a time so that the accumulators stay in registers.
+TAMIS_ALWAYS_INLINE void project_chunk(const double* q, std::size_t p, const double* v, std::size_t samples,
+                                       double* acc) {
+  std::size_t c = 0;
+  for (; c + 4 <= p; c += 4) {
+    Lanes a0 = load(acc + c * kLanes), a1 = load(acc + (c + 1) * kLanes);
+    Lanes a2 = load(acc + (c + 2) * kLanes), a3 = load(acc + (c + 3) * kLanes);
+    for (std::size_t at = 0; at < samples; ++at) {
+      const double* row = q + at * p + c;
+      const Lanes values = load(v + at * kLanes);
+      a0 += row[0] * values;
+      a1 += row[1] * values;
+      a2 += row[2] * values;
+      a3 += row[3] * values;
+    }
+    store(acc + c * kLanes, a0);
+    store(acc + (c + 1) * kLanes, a1);
+    store(acc + (c + 2) * kLanes, a2);
+    store(acc + (c + 3) * kLanes, a3);
+  }
+  for (; c < p; ++c) {
+    Lanes a0 = load(acc + c * kLanes);
+    for (std::size_t at = 0; at < samples; ++at) a0 += q[at * p + c] * load(v + at * kLanes);
+    store(acc + c * kLanes, a0);
+  }
+}
+
+// out[s] = v[s] - sum_c q[s][c] coef[c], the terms taken in column order,
+// four samples at a time so that each coefficient is loaded once per four.
+TAMIS_ALWAYS_INLINE void residualize_chunk(const double* q, std::size_t p, const double* v, const double* coef,
+                                           std::size_t samples, double* out) {
+  std::size_t at = 0;
+  for (; at + 4 <= samples; at += 4) {
+    Lanes r0 = load(v + at * kLanes), r1 = load(v + (at + 1) * kLanes);
+    Lanes r2 = load(v + (at + 2) * kLanes), r3 = load(v + (at + 3) * kLanes);
+    const double* q0 = q + at * p;
+    for (std::size_t c = 0; c < p; ++c) {
+      const Lanes column = load(coef + c * kLanes);
+      r0 -= q0[c] * column;
+      r1 -= q0[p + c] * column;
+      r2 -= q0[2 * p + c] * column;
+      r3 -= q0[3 * p + c] * column;
+    }
+    store(out + at * kLanes, r0);
+    store(out + (at + 1) * kLanes, r1);
+    store(out + (at + 2) * kLanes, r2);
+    store(out + (at + 3) * kLanes, r3);
+  }
+  for (; at < samples; ++at) {
+    Lanes r0 = load(v + at * kLanes);
+    for (std::size_t c = 0; c < p; ++c) r0 -= q[at * p + c] * load(coef + c * kLanes);
+    store(out + at * kLanes, r0);
+  }
+}
+
+// The exposure products g . E_l of a chunk, column l at ge + l * kChunk * kLanes.
+TAMIS_ALWAYS_INLINE void multiply_chunk(const LinearTile& tile, std::size_t start, std::size_t samples,
+                                        const double* g, double* ge) {
+  for (std::size_t l = 0; l < tile.k; ++l) {
+    double* column = ge + l * kChunk * kLanes;
+    for (std::size_t at = 0; at < samples; ++at) {
+      store(column + at * kLanes, tile.exposure[(start + at) * tile.k + l] * load(g + at * kLanes));
+    }
+  }
+}
 
 // U' V^-1 U, or a negative value when V is not positive definite (relative
 // pivot below 1e-12): the interaction is not estimable.
@@ -66,6 +225,114 @@ void finish(const Eigen::VectorXd& u, const Eigen::MatrixXd& a, double model_sca
   const Eigen::MatrixXd covariance = a_inverse * v * a_inverse;
   out.beta = step[0];
   out.se = std::sqrt(covariance(0, 0));
+}
+
+// First pass over the samples: every lane receives the same operations in
+// sample order, so a variant's sums do not depend on its neighbours.
+TAMIS_VECTOR_CLONES
+void accumulate_first_pass(const LinearTile& tile, std::size_t first, std::size_t lanes, double* sums,
+                           double* scratch) {
+  const std::size_t p = tile.p, k = tile.k;
+  double* qg = sums + 2 * kLanes;
+  double* gege = sums + (2 + p + k * (2 + p)) * kLanes;
+  double* g = scratch;
+  double* ge = scratch + kChunk * kLanes;
+  Lanes gg = load(sums), gr = load(sums + kLanes);
+  for (std::size_t start = 0; start < tile.n; start += kChunk) {
+    const std::size_t samples = std::min(kChunk, tile.n - start);
+    load_chunk(tile, start, samples, first, lanes, g);
+    multiply_chunk(tile, start, samples, g, ge);
+    const double* q = tile.basis + start * p;
+    for (std::size_t at = 0; at < samples; ++at) {
+      const double r = tile.residual[start + at];
+      const Lanes values = load(g + at * kLanes);
+      gg += values * values;
+      gr += values * r;
+      std::size_t pair = 0;
+      for (std::size_t l = 0; l < k; ++l) {
+        const Lanes gel = load(ge + (l * kChunk + at) * kLanes);
+        double* column = sums + (2 + p + l * (2 + p)) * kLanes;
+        add_to(column, gel * r);
+        add_to(column + kLanes, values * gel);
+        for (std::size_t m = 0; m <= l; ++m, ++pair) {
+          add_to(gege + pair * kLanes, gel * load(ge + (m * kChunk + at) * kLanes));
+        }
+      }
+    }
+    project_chunk(q, p, g, samples, qg);
+    for (std::size_t l = 0; l < k; ++l) {
+      project_chunk(q, p, ge + l * kChunk * kLanes, samples, sums + (2 + p + l * (2 + p) + 2) * kLanes);
+    }
+  }
+  store(sums, gg);
+  store(sums + kLanes, gr);
+}
+
+// Second pass: each sample's projections on the basis give g~ and h~, then
+// the sandwich sums (see the file's comment).
+TAMIS_VECTOR_CLONES
+void accumulate_second_pass(const LinearTile& tile, std::size_t first, std::size_t lanes, const double* first_sums,
+                            const SecondPassInputs& fitted, double* sums, double* scratch) {
+  const std::size_t p = tile.p, k = tile.k;
+  const double* qg = first_sums + 2 * kLanes;
+  double* meat = sums + kLanes;
+  double* joint = sums + (1 + k * (k + 1) / 2) * kLanes;
+  double* g = scratch;
+  double* ge = scratch + kChunk * kLanes;  // k columns, then overwritten by h~
+  double* tilde_g = ge + k * kChunk * kLanes;
+  double* adjusted_h = tilde_g + kChunk * kLanes;  // k columns
+  const Lanes c_hat = load(fitted.c_hat.data()), s_value = load(fitted.s.data());
+  Lanes main_meat = load(sums), joint_gg = load(joint);
+  for (std::size_t start = 0; start < tile.n; start += kChunk) {
+    const std::size_t samples = std::min(kChunk, tile.n - start);
+    load_chunk(tile, start, samples, first, lanes, g);
+    multiply_chunk(tile, start, samples, g, ge);
+    const double* q = tile.basis + start * p;
+    residualize_chunk(q, p, g, qg, samples, tilde_g);
+    for (std::size_t l = 0; l < k; ++l) {
+      double* column = ge + l * kChunk * kLanes;
+      residualize_chunk(q, p, column, first_sums + (2 + p + l * (2 + p) + 2) * kLanes, samples, column);
+      const Lanes ratio = load(fitted.t_over_s.data() + l * kLanes);
+      double* adjusted = adjusted_h + l * kChunk * kLanes;
+      for (std::size_t at = 0; at < samples; ++at) {
+        store(adjusted + at * kLanes, load(column + at * kLanes) - ratio * load(tilde_g + at * kLanes));
+      }
+    }
+    for (std::size_t at = 0; at < samples; ++at) {
+      const std::size_t sample = start + at;
+      const double r = tile.residual[sample];
+      const Lanes tg = load(tilde_g + at * kLanes);
+      const double null_room = 1.0 - tile.leverage[sample];
+      const double null_weight = tile.hc3 ? (r * r) / (null_room * null_room) : r * r;
+      const Lanes residual = r - c_hat * tg;
+      Lanes weight = residual * residual;
+      if (tile.hc3) {
+        const Lanes room = null_room - tg * tg / s_value;
+        weight /= room * room;
+      }
+      main_meat += weight * tg * tg;
+      joint_gg += null_weight * tg * tg;
+      std::size_t pair = 0;
+      for (std::size_t l = 0; l < k; ++l) {
+        const Lanes al = load(adjusted_h + (l * kChunk + at) * kLanes);
+        const Lanes hl = load(ge + (l * kChunk + at) * kLanes);
+        add_to(joint + (1 + l) * kLanes, null_weight * tg * hl);
+        for (std::size_t m = 0; m <= l; ++m, ++pair) {
+          add_to(meat + pair * kLanes, weight * al * load(adjusted_h + (m * kChunk + at) * kLanes));
+        }
+      }
+      // The joint variance's lower-right block, (i, j) = (m + 1, l + 1), m <= l.
+      for (std::size_t m = 0; m < k; ++m) {
+        const Lanes hm = load(ge + (m * kChunk + at) * kLanes);
+        for (std::size_t l = m; l < k; ++l) {
+          const std::size_t index = (m + 1) * (2 * (k + 1) - (m + 1) + 1) / 2 + (l - m);
+          add_to(joint + index * kLanes, null_weight * load(ge + (l * kChunk + at) * kLanes) * hm);
+        }
+      }
+    }
+  }
+  store(sums, main_meat);
+  store(joint, joint_gg);
 }
 
 }  // namespace
@@ -114,144 +381,62 @@ void InteractionScoreKernel::compute_linear(const double* genotypes, std::size_t
   const std::size_t n = rows_.size();
   const std::size_t p = p_, k = k_;
   const bool use_robust = robust_ != RobustErrors::off;
-  const bool hc3 = robust_ == RobustErrors::hc3;
-  // Per lane: Q'g (p), Q'(g.E_l) (k x p), g'g, g'r, (g.E_l)'r (k), g'(g.E_l) (k), (g.E_l)'(g.E_m) (k x k).
-  using Lane = std::array<double, kLanes>;
-  std::vector<Lane> qg(p), qge(k * p), ger(k), gge(k), gege(k * k);
-  // Second pass: the robust sums for d (k x k), c and (c, d) ((k + 1) x (k + 1)).
-  std::vector<Lane> meat(k * k), joint_meat((k + 1) * (k + 1));
-  std::vector<Lane> t_over_s(k);
-  Lane gg, gr, main_meat, s_lane, c_hat;
-  std::vector<double> ge(k * kLanes), tilde_h(k * kLanes);
+  const LinearTile tile{genotypes, width, rows_.data(), n, basis_.data(), exposure_.data(), residual_.data(),
+                        leverage_.data(), p, k, robust_ == RobustErrors::hc3};
+  thread_local std::vector<double> first_sums, second_sums, chunk;
+  chunk.resize((2 + 2 * k) * kChunk * kLanes);
+  first_sums.resize(first_pass_size(p, k) * kLanes);
+  second_sums.resize(second_pass_size(k) * kLanes);
   const double dof = static_cast<double>(n) - static_cast<double>(p) - 1.0;
 
   for (std::size_t first = 0; first < width; first += kLanes) {
     const std::size_t lanes = std::min(kLanes, width - first);
-    auto load = [&](std::size_t s, Lane& g) {
-      const double* row = genotypes + rows_[s] * width + first;
-      for (std::size_t lane = 0; lane < kLanes; ++lane) g[lane] = lane < lanes ? row[lane] : 0.0;
-    };
-    for (auto* sums : {&qg, &qge, &ger, &gge, &gege, &meat, &joint_meat}) {
-      for (Lane& lane : *sums) lane.fill(0.0);
-    }
-    gg.fill(0.0);
-    gr.fill(0.0);
-    main_meat.fill(0.0);
-    Lane g;
-    for (std::size_t s = 0; s < n; ++s) {
-      load(s, g);
-      const double* q = basis_.data() + s * p;
-      const double* e = exposure_.data() + s * k;
-      const double r = residual_[s];
-      for (std::size_t lane = 0; lane < kLanes; ++lane) {
-        gg[lane] += g[lane] * g[lane];
-        gr[lane] += g[lane] * r;
-      }
-      for (std::size_t c = 0; c < p; ++c) {
-        for (std::size_t lane = 0; lane < kLanes; ++lane) qg[c][lane] += q[c] * g[lane];
-      }
-      for (std::size_t l = 0; l < k; ++l) {
-        double* gel = ge.data() + l * kLanes;
-        for (std::size_t lane = 0; lane < kLanes; ++lane) gel[lane] = e[l] * g[lane];
-        for (std::size_t lane = 0; lane < kLanes; ++lane) {
-          ger[l][lane] += gel[lane] * r;
-          gge[l][lane] += g[lane] * gel[lane];
-        }
-        for (std::size_t c = 0; c < p; ++c) {
-          for (std::size_t lane = 0; lane < kLanes; ++lane) qge[l * p + c][lane] += q[c] * gel[lane];
-        }
-        for (std::size_t m = 0; m <= l; ++m) {
-          const double* gem = ge.data() + m * kLanes;
-          for (std::size_t lane = 0; lane < kLanes; ++lane) gege[l * k + m][lane] += gel[lane] * gem[lane];
-        }
-      }
-    }
-    // Model-based quantities per lane, and what the second pass needs.
+    std::fill(first_sums.begin(), first_sums.end(), 0.0);
+    std::fill(second_sums.begin(), second_sums.end(), 0.0);
+    accumulate_first_pass(tile, first, lanes, first_sums.data(), chunk.data());
+    const FirstPassSums sums(first_sums.data(), p, k);
+    // Model-based quantities per lane, and the fit of [X g] the second pass needs.
+    SecondPassInputs fitted;
     std::array<bool, kLanes> usable{};
     std::vector<Eigen::VectorXd> u(kLanes);
-    std::vector<Eigen::MatrixXd> a(kLanes);
+    std::vector<Eigen::MatrixXd> a(kLanes), h_model(kLanes);
     std::array<double, kLanes> sigma2{};
-    // Lanes without a usable variant keep harmless values for the second pass.
-    s_lane.fill(1.0);
-    c_hat.fill(0.0);
-    for (Lane& ratio : t_over_s) ratio.fill(0.0);
+    std::vector<double> t_values(k * kLanes, 0.0);
+    fitted.s.fill(1.0);  // lanes without a usable variant keep harmless values
+    fitted.c_hat.fill(0.0);
+    fitted.t_over_s.assign(k * kLanes, 0.0);
     for (std::size_t lane = 0; lane < lanes; ++lane) {
       double projected = 0.0;
-      for (std::size_t c = 0; c < p; ++c) projected += qg[c][lane] * qg[c][lane];
-      const double s_value = gg[lane] - projected;
-      usable[lane] = s_value > 1e-12 * gg[lane];
+      for (std::size_t c = 0; c < p; ++c) projected += sums.qg(c)[lane] * sums.qg(c)[lane];
+      const double s_value = sums.gg()[lane] - projected;
+      usable[lane] = s_value > 1e-12 * sums.gg()[lane];
       if (!usable[lane]) continue;
-      s_lane[lane] = s_value;
-      c_hat[lane] = gr[lane] / s_value;
+      fitted.s[lane] = s_value;
+      fitted.c_hat[lane] = sums.gr()[lane] / s_value;
       Eigen::VectorXd t(k);
       Eigen::MatrixXd h(k, k);
       u[lane].resize(k);
       for (std::size_t l = 0; l < k; ++l) {
         double cross = 0.0;
-        for (std::size_t c = 0; c < p; ++c) cross += qg[c][lane] * qge[l * p + c][lane];
-        t[l] = gge[l][lane] - cross;
-        t_over_s[l][lane] = t[l] / s_value;
-        u[lane][l] = ger[l][lane] - c_hat[lane] * t[l];
+        for (std::size_t c = 0; c < p; ++c) cross += sums.qg(c)[lane] * sums.qge(l, c)[lane];
+        t[l] = sums.gge(l)[lane] - cross;
+        fitted.t_over_s[l * kLanes + lane] = t[l] / s_value;
+        u[lane][l] = sums.ger(l)[lane] - fitted.c_hat[lane] * t[l];
         for (std::size_t m = 0; m <= l; ++m) {
           double both = 0.0;
-          for (std::size_t c = 0; c < p; ++c) both += qge[l * p + c][lane] * qge[m * p + c][lane];
-          h(l, m) = h(m, l) = gege[l * k + m][lane] - both;
+          for (std::size_t c = 0; c < p; ++c) both += sums.qge(l, c)[lane] * sums.qge(m, c)[lane];
+          h(l, m) = h(m, l) = sums.gege(l, m)[lane] - both;
         }
       }
       a[lane] = h - t * t.transpose() / s_value;
-      sigma2[lane] = (model_.rss - c_hat[lane] * gr[lane]) / dof;
-      // Joint model-based variance, kept in joint_meat until the robust one replaces it.
-      if (!use_robust) {
-        joint_meat[0][lane] = model_.sigma2 * s_value;
-        for (std::size_t l = 0; l < k; ++l) {
-          joint_meat[l + 1][lane] = model_.sigma2 * t[l];
-          for (std::size_t m = 0; m < k; ++m) joint_meat[(l + 1) * (k + 1) + m + 1][lane] = model_.sigma2 * h(l, m);
-        }
-      }
+      h_model[lane] = h;
+      for (std::size_t l = 0; l < k; ++l) t_values[l * kLanes + lane] = t[l];
+      sigma2[lane] = (model_.rss - fitted.c_hat[lane] * sums.gr()[lane]) / dof;
     }
     if (use_robust) {
-      Lane tilde_g;
-      for (std::size_t s = 0; s < n; ++s) {
-        load(s, g);
-        const double* q = basis_.data() + s * p;
-        const double* e = exposure_.data() + s * k;
-        const double r = residual_[s];
-        for (std::size_t lane = 0; lane < kLanes; ++lane) tilde_g[lane] = g[lane];
-        for (std::size_t c = 0; c < p; ++c) {
-          for (std::size_t lane = 0; lane < kLanes; ++lane) tilde_g[lane] -= q[c] * qg[c][lane];
-        }
-        for (std::size_t l = 0; l < k; ++l) {
-          double* th = tilde_h.data() + l * kLanes;
-          for (std::size_t lane = 0; lane < kLanes; ++lane) th[lane] = e[l] * g[lane];
-          for (std::size_t c = 0; c < p; ++c) {
-            for (std::size_t lane = 0; lane < kLanes; ++lane) th[lane] -= q[c] * qge[l * p + c][lane];
-          }
-        }
-        const double null_scale = hc3 ? 1.0 / ((1.0 - leverage_[s]) * (1.0 - leverage_[s])) : 1.0;
-        for (std::size_t lane = 0; lane < kLanes; ++lane) {
-          const double residual = r - c_hat[lane] * tilde_g[lane];
-          double weight = residual * residual;
-          if (hc3) {
-            const double room = 1.0 - leverage_[s] - tilde_g[lane] * tilde_g[lane] / s_lane[lane];
-            weight /= room * room;
-          }
-          main_meat[lane] += weight * tilde_g[lane] * tilde_g[lane];
-          const double null_weight = r * r * null_scale;
-          joint_meat[0][lane] += null_weight * tilde_g[lane] * tilde_g[lane];
-          for (std::size_t l = 0; l < k; ++l) {
-            const double hl = tilde_h[l * kLanes + lane];
-            const double al = hl - t_over_s[l][lane] * tilde_g[lane];
-            joint_meat[l + 1][lane] += null_weight * tilde_g[lane] * hl;
-            for (std::size_t m = 0; m <= l; ++m) {
-              const double hm = tilde_h[m * kLanes + lane];
-              const double am = hm - t_over_s[m][lane] * tilde_g[lane];
-              meat[l * k + m][lane] += weight * al * am;
-              joint_meat[(m + 1) * (k + 1) + l + 1][lane] += null_weight * hl * hm;
-            }
-          }
-        }
-      }
+      accumulate_second_pass(tile, first, lanes, first_sums.data(), fitted, second_sums.data(), chunk.data());
     }
+    const SecondPassSums robust_sums(second_sums.data(), k);
     for (std::size_t lane = 0; lane < lanes; ++lane) {
       InteractionScore& out = results[first + lane];
       out = InteractionScore{};
@@ -261,20 +446,30 @@ void InteractionScoreKernel::compute_linear(const double* genotypes, std::size_t
       }
       Eigen::MatrixXd robust(k, k);
       Eigen::MatrixXd joint_v(k + 1, k + 1);
-      // joint_meat holds entry (i, j), i <= j, at i (k + 1) + j.
-      for (std::size_t i = 0; i <= k; ++i) {
-        for (std::size_t j = i; j <= k; ++j) joint_v(i, j) = joint_v(j, i) = joint_meat[i * (k + 1) + j][lane];
-      }
-      for (std::size_t l = 0; l < k; ++l) {
-        for (std::size_t m = 0; m <= l; ++m) robust(l, m) = robust(m, l) = meat[l * k + m][lane];
+      if (use_robust) {
+        for (std::size_t i = 0; i <= k; ++i) {
+          for (std::size_t j = i; j <= k; ++j) joint_v(i, j) = joint_v(j, i) = robust_sums.joint(i, j)[lane];
+        }
+        for (std::size_t l = 0; l < k; ++l) {
+          for (std::size_t m = 0; m <= l; ++m) robust(l, m) = robust(m, l) = robust_sums.meat(l, m)[lane];
+        }
+      } else {
+        // The joint score's model-based variance under the null model.
+        joint_v(0, 0) = fitted.s[lane];
+        for (std::size_t l = 0; l < k; ++l) {
+          joint_v(0, l + 1) = joint_v(l + 1, 0) = t_values[l * kLanes + lane];
+          for (std::size_t m = 0; m < k; ++m) joint_v(l + 1, m + 1) = h_model[lane](l, m);
+        }
+        joint_v *= model_.sigma2;
       }
       Eigen::VectorXd joint_u(k + 1);
-      joint_u[0] = gr[lane];
-      for (std::size_t l = 0; l < k; ++l) joint_u[l + 1] = ger[l][lane];
+      joint_u[0] = sums.gr()[lane];
+      for (std::size_t l = 0; l < k; ++l) joint_u[l + 1] = sums.ger(l)[lane];
       finish(u[lane], a[lane], sigma2[lane], robust, joint_u, joint_v, use_robust, out);
       if (!out.testable) continue;
-      out.main_beta = c_hat[lane];
-      out.main_se = use_robust ? std::sqrt(main_meat[lane]) / s_lane[lane] : std::sqrt(sigma2[lane] / s_lane[lane]);
+      out.main_beta = fitted.c_hat[lane];
+      out.main_se = use_robust ? std::sqrt(robust_sums.main()[lane]) / fitted.s[lane]
+                               : std::sqrt(sigma2[lane] / fitted.s[lane]);
     }
   }
 }
