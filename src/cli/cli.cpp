@@ -495,6 +495,9 @@ void add_simulate_command(CLI::App& app, SimulationOptions& options) {
 struct ReportArguments {
   ReportOptions options;
   double locus_radius_kb = 500.0;
+  std::string dosage_from = "auto";
+  std::string covariates;
+  std::string missing_tokens;
 };
 
 void add_report_command(CLI::App& app, ReportArguments& arguments) {
