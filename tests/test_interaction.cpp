@@ -160,7 +160,7 @@ TEST(InteractionFit, AgreesWithRLmGlmSandwichAndLmtest) {
     const std::vector<std::size_t> rows = identity_rows(data.g.size());
     for (const auto& [kind, robust] : {std::pair<std::string, RobustErrors>{"model", RobustErrors::off},
                                        {"hc0", RobustErrors::hc0}, {"hc3", RobustErrors::hc3}}) {
-      const InteractionScoreKernel kernel(model, exposure, rows, rows.size(), robust);
+      const InteractionScoreKernel kernel(model, exposure, rows, robust);
       InteractionScore score;
       kernel.compute(data.g.data(), 1, &score);
       ASSERT_TRUE(score.testable);
@@ -252,7 +252,7 @@ TEST(InteractionCalibration, RobustTestHoldsTheLevelWhereTheModelBasedOneIsInfla
     rejected[1] += p_of(hc0.interaction_robust) < kLevel;
     rejected[2] += p_of(hc3.interaction_robust) < kLevel;
     InteractionScore score;
-    InteractionScoreKernel(model, exposed, rows, rows.size(), RobustErrors::hc0).compute(g.data(), 1, &score);
+    InteractionScoreKernel(model, exposed, rows, RobustErrors::hc0).compute(g.data(), 1, &score);
     score_rejected[0] += std::exp(score.model_log_p) < kLevel;
     score_rejected[1] += std::exp(score.log_p) < kLevel;
   }
@@ -283,7 +283,7 @@ TEST(InteractionScoreKernel, ResultsDoNotDependOnTheBlock) {
   for (Eigen::Index s = 0; s < n; ++s) block[static_cast<std::size_t>(s) * kWidth + 9] = data.g[s];
   for (const bool binary : {false, true}) {
     const NullModel model = null_model_of(data, binary);
-    const InteractionScoreKernel kernel(model, exposure_of(data, true), identity_rows(n), n, RobustErrors::hc3);
+    const InteractionScoreKernel kernel(model, exposure_of(data, true), identity_rows(n), RobustErrors::hc3);
     InteractionScore alone, in_block[kWidth];
     kernel.compute(data.g.data(), 1, &alone);
     kernel.compute(block.data(), kWidth, in_block);

@@ -35,8 +35,7 @@ class InteractionScoreKernel {
   // a column of the null design. Analysis sample s sits in row
   // row_of_sample[s] of the blocks given to compute; other rows are ignored.
   InteractionScoreKernel(const NullModel& model, const Eigen::MatrixXd& exposure,
-                         const std::vector<std::size_t>& row_of_sample, std::size_t row_count,
-                         RobustErrors robust);
+                         const std::vector<std::size_t>& row_of_sample, RobustErrors robust);
 
   // `genotypes` is sample-major (row s, variant j at genotypes[s * width + j])
   // with every dosage imputed. Each variant's result depends on its own

@@ -338,11 +338,9 @@ void accumulate_second_pass(const LinearTile& tile, std::size_t first, std::size
 }  // namespace
 
 InteractionScoreKernel::InteractionScoreKernel(const NullModel& model, const Eigen::MatrixXd& exposure,
-                                               const std::vector<std::size_t>& row_of_sample, std::size_t row_count,
-                                               RobustErrors robust)
+                                               const std::vector<std::size_t>& row_of_sample, RobustErrors robust)
     : model_(model), robust_(robust), k_(static_cast<std::size_t>(exposure.cols())),
       p_(static_cast<std::size_t>(model.basis.cols())) {
-  (void)row_count;
   const std::size_t n = static_cast<std::size_t>(model.sample_count());
   rows_ = row_of_sample;
   basis_.resize(n * p_);

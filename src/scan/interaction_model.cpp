@@ -46,7 +46,7 @@ class InteractionModel : public TraitModel {
   InteractionModel(const TraitContext& trait, Eigen::MatrixXd exposure, RobustErrors robust)
       : model_(trait.model), exposure_(std::move(exposure)), robust_(robust),
         rows_(trait.kernel_row_samples.size()),
-        kernel_(model_, exposure_, kernel_row_of_sample(trait), rows_, robust) {
+        kernel_(model_, exposure_, kernel_row_of_sample(trait), robust) {
     confirmed_test_ = std::string("interaction_wald") +
                       (robust == RobustErrors::off ? "" : std::string("_") + robust_errors_name(robust));
   }
