@@ -84,6 +84,23 @@ TEST_F(InteractionScan, ConfirmRefitsTheChosenVariantsAsTheScanDoes) {
   }
 }
 
+TEST_F(InteractionScan, ShardsMergeToTheWholeScan) {
+  const std::string options = " --interaction-with pc1 --confirm-below 0.01 --threads 2";
+  ASSERT_EQ(run_command(tamis_binary() + " scan" + inputs() + options + " --out " + dir_ + "/whole"), 0);
+  for (const std::string shard : {"1", "2"}) {
+    ASSERT_EQ(run_command(tamis_binary() + " scan" + inputs() + options + " --shard " + shard + "/2 --out " + dir_ +
+                          "/shard" + shard),
+              0);
+  }
+  ASSERT_EQ(run_command(tamis_binary() + " merge --out " + dir_ + "/merged " + dir_ + "/shard1 " + dir_ +
+                        "/shard2 2>/dev/null"),
+            0);
+  for (const std::string trait : {"fev1_litres", "winter_wheeze"}) {
+    EXPECT_EQ(read_gzip_file(dir_ + "/whole." + trait + ".tsv.gz"), read_gzip_file(dir_ + "/merged." + trait + ".tsv.gz"))
+        << trait;
+  }
+}
+
 TEST_F(InteractionScan, RefusesWhatItCannotDo) {
   const std::string scan = tamis_binary() + " scan" + inputs() + " --out " + dir_ + "/refused";
   int status = 0;

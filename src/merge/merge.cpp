@@ -228,7 +228,11 @@ void copy_reader_rows(ResultsReader& reader, std::string text, BgzfTextFile& out
 
 void copy_rows(const std::string& path, bool with_header, BgzfTextFile& out) {
   ResultsReader reader(path);
-  copy_reader_rows(reader, with_header ? result_header_line() : std::string(), out, [](const ResultsReader&) {});
+  // The standard columns come first; an interaction scan's files add more.
+  const std::vector<std::string>& columns = reader.header();
+  const std::vector<std::string> extra(columns.begin() + std::min(columns.size(), result_columns().size()),
+                                       columns.end());
+  copy_reader_rows(reader, with_header ? result_header_line(extra) : std::string(), out, [](const ResultsReader&) {});
 }
 
 // Where the last set row copied lies, to check that the parts' rows join in
