@@ -47,6 +47,19 @@ class MixtureCgf {
   double normal_variance_ = 0.0;
 };
 
+// ln P(Q > q) by the moment-matched chi-square (moment_matching_upper_log_tail,
+// capped at 0) for many q of one mixture: the eigenvalues kept and their
+// cumulants matched once, so that a point costs one incomplete gamma function.
+class MatchedChisqTail {
+ public:
+  explicit MatchedChisqTail(const std::vector<double>& eigenvalues);
+  double log_upper_tail(double q) const;
+
+ private:
+  bool any_ = false;
+  double mean_ = 0.0, sd_ = 0.0, df_ = 0.0;
+};
+
 // ln P(Q > q) for many q of one mixture within [low, high]: Davies' sum with
 // one step and one number of terms that serve every point of the range, its
 // terms (the characteristic function at the nodes) computed once, so that a

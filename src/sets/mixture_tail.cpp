@@ -504,10 +504,13 @@ MatchedChisq match_moments(const std::vector<double>& lambdas) {
   return {c1, std::sqrt(2.0 * c2), c2 * c2 * c2 / (c3 * c3)};
 }
 
-double moment_matching_on_kept(const std::vector<double>& lambdas, double q) {
-  const MatchedChisq matched = match_moments(lambdas);
+double matched_log_tail(const MatchedChisq& matched, double q) {
   const double x = (q - matched.mean) / matched.sd * std::sqrt(2.0 * matched.df) + matched.df;
   return log_upper_incomplete_gamma(0.5 * matched.df, 0.5 * x);
+}
+
+double moment_matching_on_kept(const std::vector<double>& lambdas, double q) {
+  return matched_log_tail(match_moments(lambdas), q);
 }
 
 // ---- saddlepoint --------------------------------------------------------------------
@@ -690,6 +693,25 @@ InversionTail contour_inversion_upper_log_tail(const std::vector<double>& eigenv
   if (lambdas.empty() || q <= 0.0) return {0.0, true, 0};
   return invert_on_kept(lambdas, q);
 }
+
+namespace sets_detail {
+
+MatchedChisqTail::MatchedChisqTail(const std::vector<double>& eigenvalues) {
+  const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);
+  if (lambdas.empty()) return;
+  const MatchedChisq matched = match_moments(lambdas);
+  any_ = true;
+  mean_ = matched.mean;
+  sd_ = matched.sd;
+  df_ = matched.df;
+}
+
+double MatchedChisqTail::log_upper_tail(double q) const {
+  if (!any_ || q <= 0.0) return 0.0;
+  return std::min(0.0, matched_log_tail({mean_, sd_, df_}, q));
+}
+
+}  // namespace sets_detail
 
 MixtureTail screening_mixture_upper_tail(const std::vector<double>& eigenvalues, double q) {
   const std::vector<double> lambdas = kept_eigenvalues(eigenvalues);

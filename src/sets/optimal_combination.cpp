@@ -122,6 +122,7 @@ struct KappaLaw {
   double mean = 0.0;      // of eta and of kappa
   double sd_ratio = 0.0;  // sd(eta) / sd(kappa)
   std::unique_ptr<MixtureTailTable> eta_tail;  // eta's tail over every point the integral meets (exact)
+  std::unique_ptr<MatchedChisqTail> eta_screen;  // or its moment-matched chi-square (the screen)
   double on_eta_scale(double d) const { return (d - mean) * sd_ratio + mean; }
 };
 
@@ -131,7 +132,7 @@ double log_kappa_upper_tail(const KappaLaw& kappa, double d, bool absolute_will_
   const double on_eta_scale = kappa.on_eta_scale(d);
   if (on_eta_scale <= 0.0) return 0.0;
   // The screen: the moment-matched chi-square at every node.
-  if (!kappa.eta_tail) return std::min(0.0, moment_matching_upper_log_tail(kappa.eta_eigenvalues, on_eta_scale));
+  if (!kappa.eta_tail) return kappa.eta_screen->log_upper_tail(on_eta_scale);
   return kappa.eta_tail->log_upper_tail(on_eta_scale, absolute_will_do);
 }
 
@@ -180,11 +181,12 @@ double mixture_upper_quantile(const std::vector<double>& eigenvalues, double log
   // table's absolute accuracy points the way when the target is above it.
   const bool absolute_will_do = log_p >= std::log(1e-3);
   const bool screening = precision == SetTestPrecision::screening;
+  std::unique_ptr<MatchedChisqTail> matched;
+  if (screening) matched = std::make_unique<MatchedChisqTail>(lambdas);
   auto excess = [&](double q) {
     // The screen takes its quantiles from the moment-matched chi-square,
     // as the paper does: a closed form instead of a saddlepoint per step.
-    const double log_tail = screening ? std::min(0.0, moment_matching_upper_log_tail(lambdas, q))
-                                      : table->log_upper_tail(q, absolute_will_do);
+    const double log_tail = screening ? matched->log_upper_tail(q) : table->log_upper_tail(q, absolute_will_do);
     return log_tail - log_p;
   };
   // P(Q > q) >= P(lambda_1 X_1 > q) puts the root above the first bracket;
@@ -291,6 +293,8 @@ double optimal_log_p_from_family(const Eigen::MatrixXd& k, const RhoFamily& fami
   if (precision == SetTestPrecision::exact) {
     kappa.eta_tail = std::make_unique<MixtureTailTable>(kappa.eta_eigenvalues, 0.0,
                                                         kappa.on_eta_scale(lower_envelope(lines, 0.0)));
+  } else {
+    kappa.eta_screen = std::make_unique<MatchedChisqTail>(kappa.eta_eigenvalues);
   }
 
   // p >= T: with T at least 1e-3, absolute accuracy 1e-9 in the integrand is
