@@ -42,7 +42,11 @@ echo "run log:  $out/scan.log"
 echo
 echo "== independent signals of fev1_litres (locus, signal, joint beta, SE, LR p, 95% set size)"
 awk -F'\t' 'NR > 1 { print $2, $1, $8, $9, $11, $15 }' OFS='\t' "$out/signals.fev1_litres.signals.tsv"
+# The regional plots again, now marking each signal's lead and its credible sets.
+./build/tamis report --results "$out/scan.fev1_litres.tsv.gz" --out "$out/signals_report" \
+  --genotypes "$out/saltmarsh.vcf.gz" --traits "$out/saltmarsh.traits.tsv" --signals-from "$out/signals" 2>/dev/null
 echo "signals:  $out/signals.fev1_litres.signals.tsv, credible sets: $out/signals.fev1_litres.credible.tsv"
+echo "          regional plots with the signals and credible sets marked: $out/signals_report.fev1_litres.locus-1.png ..."
 
 # Variant sets. The same cohort with rare-variant effects planted in four of
 # its genes (--causal-genes 4: about half of each gene's variants below 1%
