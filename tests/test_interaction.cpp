@@ -169,6 +169,8 @@ TEST(InteractionFit, AgreesWithRLmGlmSandwichAndLmtest) {
       expect_reference(score.chisq, reference, key + "interaction_stat", tolerance);
       expect_reference(std::exp(score.log_p), reference, key + "interaction_p", tolerance);
       expect_reference(std::exp(score.joint_log_p), reference, key + "joint_p", c.binary ? 1e-6 : 1e-8);
+      expect_reference(std::exp(score.joint_model_log_p), reference, c.name + ".score.model.joint_p",
+                       c.binary ? 1e-6 : 1e-8);
       expect_reference(score.main_beta, reference, key + "main_beta", tolerance);
       expect_reference(score.main_se, reference, key + "main_se", tolerance);
       if (robust == RobustErrors::off) {

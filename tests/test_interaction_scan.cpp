@@ -1,5 +1,5 @@
 // scan and confirm --interaction-with, end to end: the same bytes at 1 and
-// 4 threads, the interaction columns, confirm refitting as the scan does,
+// 4 threads, the seven interaction columns, confirm refitting as the scan does,
 // and the options refused. The statistics themselves are checked against R
 // in test_interaction.cpp and reference_r_interaction.
 #include <gtest/gtest.h>
@@ -45,9 +45,9 @@ TEST_F(InteractionScan, SameBytesAtOneAndFourThreadsWithTheInteractionColumns) {
       const std::string one = read_gzip_file(dir_ + "/" + exposure + "1." + trait + ".tsv.gz");
       EXPECT_EQ(one, read_gzip_file(dir_ + "/" + exposure + "4." + trait + ".tsv.gz")) << exposure << " " << trait;
       const std::vector<std::string> header = split_fields(lines_of(one).at(0));
-      const std::vector<std::string> extra(header.end() - 5, header.end());
-      EXPECT_EQ(extra, (std::vector<std::string>{"main_beta", "main_standard_error", "joint_p", "interaction_model_p",
-                                                 "interaction_df"}));
+      const std::vector<std::string> extra(header.end() - 7, header.end());
+      EXPECT_EQ(extra, (std::vector<std::string>{"main_beta", "main_standard_error", "joint_p", "joint_model_p",
+                                                 "joint_lrt_p", "interaction_model_p", "interaction_df"}));
       const std::vector<std::string> tests = tests_of(one);
       EXPECT_GT(std::count(tests.begin(), tests.end(), "interaction_score"), 500) << exposure << " " << trait;
       EXPECT_GT(std::count(tests.begin(), tests.end(), "interaction_wald_hc3"), 0) << exposure << " " << trait;

@@ -21,6 +21,7 @@ struct InteractionScore {
   double model_chisq = 0.0; // the same with the model-based V
   double model_log_p = 0.0;
   double joint_log_p = 0.0; // (c, d) against the null model, k + 1 df, same variance as chisq
+  double joint_model_log_p = 0.0;  // the same with the model-based variance
   // The one-step estimate of d (its first exposure column) and its SE from
   // the same variance as chisq: for one exposure column (beta / se)^2 = chisq.
   double beta = 0.0, se = 0.0;

@@ -13,6 +13,10 @@
 // (the per-variant projection) for the sandwich
 //   V_robust = sum_s w_s e_s^2 a_s a_s',  e = r - c-hat g~,  a = h~ - g~ t / S,
 // with w_s = 1 (HC0) or 1 / (1 - h_s)^2 (HC3; h_s the leverage of [X g]).
+// The joint score of (c, d) is taken at the null fit: U = (g'r, (g.E)'r),
+// V = s0^2 [g~ h~]'[g~ h~] or sum_s r_s^2 b_s b_s', b_s = (g~_s, h~_s).
+// Both passes run over chunks of 32 samples held in L1, the projections
+// register-blocked, compiled once per vector extension.
 //
 // Logistic traits, variant by variant: c is fitted by Newton steps along
 // g~ (the profile over the covariates to first order) from the null fit;
@@ -202,15 +206,19 @@ double quadratic_form(const Eigen::VectorXd& u, const Eigen::MatrixXd& v) {
 
 // The statistics of one variant once its score vectors and variances are in
 // hand: U and A for d (k), the joint score and variance for (c, d) (k + 1).
+// The joint score's variance comes model-based (joint_model_v) and robust
+// (joint_robust_v, unused without robust errors).
 void finish(const Eigen::VectorXd& u, const Eigen::MatrixXd& a, double model_scale, const Eigen::MatrixXd& robust,
-            const Eigen::VectorXd& joint_u, const Eigen::MatrixXd& joint_v, bool use_robust, InteractionScore& out) {
+            const Eigen::VectorXd& joint_u, const Eigen::MatrixXd& joint_model_v, const Eigen::MatrixXd& joint_robust_v,
+            bool use_robust, InteractionScore& out) {
   const int k = static_cast<int>(u.size());
   const Eigen::MatrixXd model_v = model_scale * a;
   out.model_chisq = quadratic_form(u, model_v);
   const Eigen::MatrixXd& v = use_robust ? robust : model_v;
   out.chisq = use_robust ? quadratic_form(u, v) : out.model_chisq;
-  const double joint_chisq = quadratic_form(joint_u, joint_v);
-  if (!(out.model_chisq >= 0.0) || !(out.chisq >= 0.0) || !(joint_chisq >= 0.0)) {
+  const double joint_model_chisq = quadratic_form(joint_u, joint_model_v);
+  const double joint_chisq = use_robust ? quadratic_form(joint_u, joint_robust_v) : joint_model_chisq;
+  if (!(out.model_chisq >= 0.0) || !(out.chisq >= 0.0) || !(joint_chisq >= 0.0) || !(joint_model_chisq >= 0.0)) {
     out = InteractionScore{};
     out.testable = false;
     return;
@@ -218,6 +226,7 @@ void finish(const Eigen::VectorXd& u, const Eigen::MatrixXd& a, double model_sca
   out.model_log_p = log_chisq_upper_tail(out.model_chisq, k);
   out.log_p = log_chisq_upper_tail(out.chisq, k);
   out.joint_log_p = log_chisq_upper_tail(joint_chisq, k + 1);
+  out.joint_model_log_p = log_chisq_upper_tail(joint_model_chisq, k + 1);
   // One-step d = A^-1 U, its covariance A^-1 V A^-1 (V / s^2 for the model's).
   const Eigen::LDLT<Eigen::MatrixXd> a_ldlt(a);
   const Eigen::VectorXd step = a_ldlt.solve(u);
@@ -451,19 +460,19 @@ void InteractionScoreKernel::compute_linear(const double* genotypes, std::size_t
         for (std::size_t l = 0; l < k; ++l) {
           for (std::size_t m = 0; m <= l; ++m) robust(l, m) = robust(m, l) = robust_sums.meat(l, m)[lane];
         }
-      } else {
-        // The joint score's model-based variance under the null model.
-        joint_v(0, 0) = fitted.s[lane];
-        for (std::size_t l = 0; l < k; ++l) {
-          joint_v(0, l + 1) = joint_v(l + 1, 0) = t_values[l * kLanes + lane];
-          for (std::size_t m = 0; m < k; ++m) joint_v(l + 1, m + 1) = h_model[lane](l, m);
-        }
-        joint_v *= model_.sigma2;
       }
+      // The joint score's model-based variance under the null model.
+      Eigen::MatrixXd joint_model_v(k + 1, k + 1);
+      joint_model_v(0, 0) = fitted.s[lane];
+      for (std::size_t l = 0; l < k; ++l) {
+        joint_model_v(0, l + 1) = joint_model_v(l + 1, 0) = t_values[l * kLanes + lane];
+        for (std::size_t m = 0; m < k; ++m) joint_model_v(l + 1, m + 1) = h_model[lane](l, m);
+      }
+      joint_model_v *= model_.sigma2;
       Eigen::VectorXd joint_u(k + 1);
       joint_u[0] = sums.gr()[lane];
       for (std::size_t l = 0; l < k; ++l) joint_u[l + 1] = sums.ger(l)[lane];
-      finish(u[lane], a[lane], sigma2[lane], robust, joint_u, joint_v, use_robust, out);
+      finish(u[lane], a[lane], sigma2[lane], robust, joint_u, joint_model_v, joint_v, use_robust, out);
       if (!out.testable) continue;
       out.main_beta = fitted.c_hat[lane];
       out.main_se = use_robust ? std::sqrt(robust_sums.main()[lane]) / fitted.s[lane]
@@ -563,10 +572,9 @@ void InteractionScoreKernel::compute_logistic_variant(const double* genotypes, s
   Eigen::VectorXd joint_u(k + 1);
   joint_u[0] = g.dot(r);
   joint_u.tail(k) = h.transpose() * r;
-  const Eigen::MatrixXd joint_v = use_robust
-                                      ? Eigen::MatrixXd(joint_columns.transpose() * null_omega.asDiagonal() * joint_columns)
-                                      : Eigen::MatrixXd(joint_columns.transpose() * model_.weights.asDiagonal() * joint_columns);
-  finish(u, a, 1.0, robust, joint_u, joint_v, use_robust, out);
+  const Eigen::MatrixXd joint_model_v = joint_columns.transpose() * model_.weights.asDiagonal() * joint_columns;
+  const Eigen::MatrixXd joint_robust_v = joint_columns.transpose() * null_omega.asDiagonal() * joint_columns;
+  finish(u, a, 1.0, robust, joint_u, joint_model_v, joint_robust_v, use_robust, out);
   if (!out.testable) return;
   out.main_beta = main_beta;
   out.main_se = use_robust ? std::sqrt(tilde_g.cwiseAbs2().dot(omega)) / information : 1.0 / std::sqrt(information);

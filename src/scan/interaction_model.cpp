@@ -1,6 +1,7 @@
 #include "scan/interaction_model.hpp"
 
 #include <algorithm>
+#include <cmath>
 
 #include "tamis/errors.hpp"
 #include "tamis/interaction_score.hpp"
@@ -26,16 +27,18 @@ Eigen::MatrixXd exposure_columns(const NullModel& model, const std::string& expo
   return values;
 }
 
-// main_beta, main_standard_error, joint_p, interaction_model_p, interaction_df.
-std::string format_extra_fields(double main_beta, double main_se, double joint_log_p, double model_log_p, int df) {
+// The values of interaction_columns() in order; a NaN ln p (the joint LR
+// test of a score row) is written "#NA".
+std::string format_extra_fields(double main_beta, double main_se, double joint_log_p, double joint_model_log_p,
+                                double joint_lrt_log_p, double model_log_p, int df) {
   std::string text = "\t";
   append_result_number(main_beta, text);
   text += '\t';
   append_result_number(main_se, text);
-  text += '\t';
-  text += format_p_value(joint_log_p);
-  text += '\t';
-  text += format_p_value(model_log_p);
+  for (const double log_p : {joint_log_p, joint_model_log_p, joint_lrt_log_p, model_log_p}) {
+    text += '\t';
+    text += format_p_value(log_p);
+  }
   text += '\t';
   text += std::to_string(df);
   return text;
@@ -87,7 +90,8 @@ class InteractionModel : public TraitModel {
       out.se = score.se;
       out.v = score.testable ? 1.0 : 0.0;
       extra_fields[variant] =
-          format_extra_fields(score.main_beta, score.main_se, score.joint_log_p, score.model_log_p, df);
+          format_extra_fields(score.main_beta, score.main_se, score.joint_log_p, score.joint_model_log_p,
+                              std::nan(""), score.model_log_p, df);
     }
     return true;
   }
@@ -111,8 +115,9 @@ class InteractionModel : public TraitModel {
     result.lrt_log_p = fit.interaction_lr.log_p;
     result.iterations = fit.iterations;
     result.converged = fit.converged;
-    confirmation.extra_fields = format_extra_fields(fit.main_beta, fit.main_se, fit.joint_robust.log_p,
-                                                    fit.interaction_model.log_p, fit.interaction_model.df);
+    confirmation.extra_fields =
+        format_extra_fields(fit.main_beta, fit.main_se, fit.joint_robust.log_p, fit.joint_model.log_p,
+                            fit.joint_lr.log_p, fit.interaction_model.log_p, fit.interaction_model.df);
     return confirmation;
   }
 
@@ -128,8 +133,9 @@ class InteractionModel : public TraitModel {
 }  // namespace
 
 const std::vector<std::string>& interaction_columns() {
-  static const std::vector<std::string> columns = {"main_beta", "main_standard_error", "joint_p",
-                                                   "interaction_model_p", "interaction_df"};
+  static const std::vector<std::string> columns = {"main_beta",       "main_standard_error", "joint_p",
+                                                   "joint_model_p",   "joint_lrt_p",         "interaction_model_p",
+                                                   "interaction_df"};
   return columns;
 }
 

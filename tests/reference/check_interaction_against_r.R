@@ -7,14 +7,17 @@
 #   HC          HC0 or HC3, the scan's --robust-errors
 # Refitted rows: beta, standard_error, wald_chisq and p_value (the robust
 # Wald test of the interaction), lrt_chisq and lrt_p, main_beta and
-# main_standard_error, joint_p and interaction_model_p against
+# main_standard_error, joint_p, joint_model_p, joint_lrt_p and
+# interaction_model_p against
 #   R 4.2.2 `stats`: lm / glm(binomial) of trait ~ covariates + g * E;
 #   sandwich::vcovHC(type = HC) (Debian r-cran-sandwich);
 #   lmtest::coeftest, lmtest::waldtest (F for lm, Chisq for glm), lmtest::lrtest
 #   (lm) (Debian r-cran-lmtest); anova(..., test = "LRT") (glm).
 # Linear score rows: the robust score statistic from its formula with the lm
 # fit of [X g] (e its residuals, a = g.E less its regression on [X g]):
-#   U = (g.E)' e, V = sum e_i^2 a_i a_i' (HC3: over (1 - h_i)^2).
+#   U = (g.E)' e, V = sum e_i^2 a_i a_i' (HC3: over (1 - h_i)^2);
+# the joint score of (g, g.E) the same at the null fit (and model-based:
+# V = s0^2 b'b, b the columns less their regression on X).
 # Tolerances (relative): 1e-8 linear, 1e-6 logistic (the file's nine
 # significant digits allow 5e-9).
 suppressPackageStartupMessages({ library(sandwich); library(lmtest) })
@@ -107,6 +110,7 @@ for (trait in c("fev1_litres", "winter_wheeze")) {
     note(kind, "main_standard_error", row$main_standard_error, ct["tamis_g", 2])
     note(kind, "joint_p", row$joint_p, wj[2, 4])
     note(kind, "interaction_model_p", row$interaction_model_p, waldtest(m_main, m1, test = test_kind)[2, 4])
+    note(kind, "joint_model_p", row$joint_model_p, waldtest(m0, m1, test = test_kind)[2, 4])
     if (binary) {
       lr <- anova(m_main, m1, test = "LRT"); lr_stat <- lr$Deviance[2]; lr_p <- lr[2, "Pr(>Chi)"]
     } else {
@@ -114,6 +118,8 @@ for (trait in c("fev1_litres", "winter_wheeze")) {
     }
     note(kind, "lrt_chisq", row$lrt_chisq, lr_stat)
     note(kind, "lrt_p", row$lrt_p, lr_p)
+    joint_lr <- if (binary) anova(m0, m1, test = "LRT")[2, "Pr(>Chi)"] else lrtest(m0, m1)[2, "Pr(>Chisq)"]
+    note(kind, "joint_lrt_p", row$joint_lrt_p, joint_lr)
   }
   if (binary) next  # the logistic score is approximate (see test_interaction.cpp)
   for (k in seq_len(nrow(scored))) {
@@ -135,6 +141,16 @@ for (trait in c("fev1_litres", "winter_wheeze")) {
     note("linear score", "score_chisq", row$score_chisq, stat)
     note("linear score", "score_p", row$score_p, pchisq(stat, ncol(H), lower.tail = FALSE))
     note("linear score", "main_beta", row$main_beta, coef(m_main)["tamis_g"])
+    B <- cbind(d$tamis_g, H)
+    X0 <- model.matrix(m0); r0 <- resid(m0)
+    b <- B - X0 %*% solve(crossprod(X0), crossprod(X0, B))
+    U0 <- crossprod(B, r0)
+    omega0 <- r0^2
+    if (hc == "HC3") omega0 <- omega0 / (1 - hatvalues(m0))^2
+    joint <- drop(t(U0) %*% solve(crossprod(b, b * omega0), U0))
+    joint_model <- drop(t(U0) %*% solve(sum(r0^2) / df.residual(m0) * crossprod(b), U0))
+    note("linear score", "joint_p", row$joint_p, pchisq(joint, ncol(B), lower.tail = FALSE))
+    note("linear score", "joint_model_p", row$joint_model_p, pchisq(joint_model, ncol(B), lower.tail = FALSE))
   }
 }
 
