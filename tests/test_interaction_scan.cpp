@@ -115,6 +115,11 @@ TEST_F(InteractionScan, RefusesWhatItCannotDo) {
   EXPECT_NE(status, 0);
   EXPECT_NE(output.find("hours_outdoors"), std::string::npos) << output;
   EXPECT_FALSE(file_exists(dir_ + "/refused.fev1_litres.tsv.gz"));
+  output = capture_command(tamis_binary() + " signals" + inputs() + " --region 1 --interaction-with village --out " +
+                               dir_ + "/refused_signals 2>&1",
+                           &status);
+  EXPECT_NE(status, 0);
+  EXPECT_NE(output.find("--interaction-with"), std::string::npos) << output;
 }
 
 }  // namespace

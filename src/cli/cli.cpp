@@ -682,6 +682,10 @@ SignalOptions check_signal_options(const SignalArguments& arguments, const std::
   if (!arguments.analysis.variant_list.empty()) {
     refuse_option("--variants", "signals tests every variant of each window", "leave --variants out");
   }
+  if (!arguments.analysis.interaction_with.empty()) {
+    refuse_option("--interaction-with", "signals selects main effects, not interactions",
+                  "run `tamis scan --interaction-with` for interaction tests");
+  }
   if (arguments.analysis.floors.info > 0.0 || arguments.analysis.floors.hwe_p > 0.0) {
     refuse_option(arguments.analysis.floors.info > 0.0 ? "--info-floor" : "--hwe-floor",
                   "signals applies the minor allele frequency, minor allele count and call rate floors only",
