@@ -1,5 +1,6 @@
 #include "scan/set_accumulator.hpp"
 
+#include <tbb/task_arena.h>
 #include <tbb/task_group.h>
 
 #include <algorithm>
@@ -431,9 +432,11 @@ void SetAccumulator::test_and_keep(const std::vector<std::uint32_t>& closing) {
     tasks_->run([this, task] { test_closed_set(*task); });
   }
   // Back-pressure: when the tests fall behind the stream, the writer waits
-  // for them, so that memory holds a bounded number of closed sets' variants.
-  constexpr std::size_t kMostInFlight = 512;
-  if (closed_.size() > kMostInFlight) collect_closed_sets();
+  // for them, so that memory holds a bounded number of closed sets' variants:
+  // enough to keep every worker busy, few enough that imputed dosages (dense
+  // columns) of sets in flight stay within tens of megabytes.
+  const std::size_t most_in_flight = 16 * static_cast<std::size_t>(tbb::this_task_arena::max_concurrency());
+  if (closed_.size() > most_in_flight) collect_closed_sets();
 }
 
 void SetAccumulator::test_closed_set(ClosedSet& job) const {
