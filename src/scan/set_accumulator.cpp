@@ -35,9 +35,21 @@ struct TestUnit {
   double log_p = 0.0;  // single-variant p; NaN for a collapsed unit until computed
 };
 
-// a + factor b over the union of their samples (both sorted).
-SparseColumn add_columns(const SparseColumn& a, const SparseColumn& b, double factor) {
+// a + factor b over the union of their samples (both sorted); dense over
+// `count` samples where either is.
+SparseColumn add_columns(const SparseColumn& a, const SparseColumn& b, double factor, std::size_t count) {
   SparseColumn sum;
+  if (a.dense() || b.dense()) {
+    sum.values.assign(count, 0.0);
+    auto add = [&](const SparseColumn& column, double scale) {
+      for (std::size_t entry = 0; entry < column.values.size(); ++entry) {
+        sum.values[column.dense() ? entry : column.samples[entry]] += scale * column.values[entry];
+      }
+    };
+    add(a, 1.0);
+    add(b, factor);
+    return sum;
+  }
   std::size_t at_a = 0, at_b = 0;
   while (at_a < a.samples.size() || at_b < b.samples.size()) {
     const bool take_a = at_b == b.samples.size() || (at_a < a.samples.size() && a.samples[at_a] <= b.samples[at_b]);
@@ -74,7 +86,7 @@ TestUnit unit_of(const SetScanOptions& options, const SetVariant& variant, doubl
   unit.projections = variant.projections;
   for (double& value : unit.projections) value *= variant.sign;
   unit.column = &variant.column;
-  if (!variant.dosages.samples.empty()) unit.dosages = &variant.dosages;
+  if (!variant.dosages.empty()) unit.dosages = &variant.dosages;
   unit.minor_allele_frequency = variant.minor_allele_frequency;
   unit.weight = weight_of(options, variant.minor_allele_frequency, listed_weight);
   unit.log_p = variant.log_p;
@@ -84,7 +96,7 @@ TestUnit unit_of(const SetScanOptions& options, const SetVariant& variant, doubl
 // The ultra-rare units summed into one, whose frequency is their combined
 // one (the weight of a listed set: their mean weight).
 TestUnit collapse_units(const SetScanOptions& options, const std::vector<TestUnit>& units,
-                        const std::vector<double>& listed) {
+                        const std::vector<double>& listed, std::size_t sample_count) {
   TestUnit sum;
   sum.projections.assign(units.front().projections.size(), 0.0);
   sum.summed_column = std::make_shared<SparseColumn>();
@@ -98,8 +110,10 @@ TestUnit collapse_units(const SetScanOptions& options, const std::vector<TestUni
     for (std::size_t column_idx = 0; column_idx < unit.projections.size(); ++column_idx) {
       sum.projections[column_idx] += unit.projections[column_idx];
     }
-    *sum.summed_column = add_columns(*sum.summed_column, *unit.column, unit.sign);
-    if (unit.dosages) *sum.summed_dosages = add_columns(*sum.summed_dosages, *unit.dosages, unit.sign);
+    *sum.summed_column = add_columns(*sum.summed_column, *unit.column, unit.sign, sample_count);
+    if (unit.dosages) {
+      *sum.summed_dosages = add_columns(*sum.summed_dosages, *unit.dosages, unit.sign, sample_count);
+    }
     sum.minor_allele_frequency += unit.minor_allele_frequency;
     listed_total += std::isnan(listed[unit_idx]) ? 1.0 : listed[unit_idx];
   }
@@ -111,30 +125,43 @@ TestUnit collapse_units(const SetScanOptions& options, const std::vector<TestUni
   return sum;
 }
 
+// Sum over a column's entries of spread[sample] * value: a plain dot
+// product over the samples where the column is dense.
+double dot_with_spread(const std::vector<double>& spread, const SparseColumn& column) {
+  double sum = 0.0;
+  if (column.dense()) {
+    for (std::size_t sample = 0; sample < column.values.size(); ++sample) sum += spread[sample] * column.values[sample];
+    return sum;
+  }
+  for (std::size_t entry = 0; entry < column.samples.size(); ++entry) sum += spread[column.samples[entry]] * column.values[entry];
+  return sum;
+}
+
 // X'WX of the units' (signed) columns, column by column: one column spread
-// over the samples, the others' entries read against it, so the cost is the
-// units times their entries, not the samples.
+// over the samples, the others read against it, so that sparse columns cost
+// the units times their entries, not the samples.
 Eigen::MatrixXd weighted_cross_products(const std::vector<TestUnit>& units, const Eigen::VectorXd& weights) {
   const Eigen::Index unit_count = static_cast<Eigen::Index>(units.size());
   Eigen::MatrixXd cross(unit_count, unit_count);
-  // Kept per thread and left all zero after each set: a set costs its
-  // entries, not a pass over the samples.
+  // Kept per thread and left all zero after each set.
   thread_local std::vector<double> spread;
   spread.resize(std::max(spread.size(), static_cast<std::size_t>(weights.size())), 0.0);
   for (Eigen::Index first = 0; first < unit_count; ++first) {
     const TestUnit& unit = units[static_cast<std::size_t>(first)];
     const SparseColumn& column = *unit.column;
-    for (std::size_t entry = 0; entry < column.samples.size(); ++entry) {
-      const std::uint32_t sample = column.samples[entry];
+    for (std::size_t entry = 0; entry < column.values.size(); ++entry) {
+      const std::size_t sample = column.dense() ? entry : column.samples[entry];
       spread[sample] = weights[static_cast<Eigen::Index>(sample)] * column.values[entry];
     }
     for (Eigen::Index second = first; second < unit_count; ++second) {
-      const SparseColumn& other = *units[static_cast<std::size_t>(second)].column;
-      double sum = 0.0;
-      for (std::size_t entry = 0; entry < other.samples.size(); ++entry) sum += spread[other.samples[entry]] * other.values[entry];
-      cross(first, second) = cross(second, first) = unit.sign * units[static_cast<std::size_t>(second)].sign * sum;
+      const TestUnit& other = units[static_cast<std::size_t>(second)];
+      cross(first, second) = cross(second, first) = unit.sign * other.sign * dot_with_spread(spread, *other.column);
     }
-    for (const std::uint32_t sample : column.samples) spread[sample] = 0.0;
+    if (column.dense()) {
+      std::fill(spread.begin(), spread.begin() + static_cast<std::ptrdiff_t>(column.values.size()), 0.0);
+    } else {
+      for (const std::uint32_t sample : column.samples) spread[sample] = 0.0;
+    }
   }
   return cross;
 }
@@ -176,8 +203,9 @@ Eigen::VectorXd unit_dosages(const TraitContext& trait, const TestUnit& unit, do
   Eigen::VectorXd dosages = Eigen::VectorXd::Zero(trait.model.sample_count());
   const SparseColumn& column = unit.dosages ? *unit.dosages : *unit.column;
   const double signed_factor = unit.sign * factor;
-  for (std::size_t entry = 0; entry < column.samples.size(); ++entry) {
-    dosages[static_cast<Eigen::Index>(column.samples[entry])] += signed_factor * column.values[entry];
+  for (std::size_t entry = 0; entry < column.values.size(); ++entry) {
+    const std::size_t sample = column.dense() ? entry : column.samples[entry];
+    dosages[static_cast<Eigen::Index>(sample)] += signed_factor * column.values[entry];
   }
   return dosages;
 }
@@ -286,7 +314,7 @@ SetResultRow test_set_variants(const TraitContext& trait, const SetScanOptions& 
   }
   if (ultra_rare.size() >= 2) {
     row.n_collapsed = ultra_rare.size();
-    units.push_back(collapse_units(options, ultra_rare, ultra_rare_listed));
+    units.push_back(collapse_units(options, ultra_rare, ultra_rare_listed, trait.set.genotype_index.size()));
   } else if (!ultra_rare.empty()) {
     units.push_back(std::move(ultra_rare.front()));
   }

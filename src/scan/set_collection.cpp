@@ -106,16 +106,30 @@ void find_genotype_entries(const DosageBlock& block, std::size_t site_idx, Spars
 
 // The site's dosages over the trait's analysis samples, a missing one
 // imputed, kept where they are not 0 (a rare variant's carriers, and
-// imputed fills): the block's shared entries, read through the trait's rows.
-void sparse_dosages(const TraitSetContext& sets, const DosageBlock& block, const BlockSets& block_sets,
-                    std::size_t site_idx, double fill, SparseColumn& out) {
+// imputed fills): the block's shared entries, read through the trait's rows;
+// or all of them, dense, where most are not 0.
+void sparse_dosages(const TraitSetContext& sets, const std::vector<std::size_t>& genotype_index,
+                    const DosageBlock& block, const BlockSets& block_sets, std::size_t site_idx, double fill,
+                    SparseColumn& out) {
   if (!block_sets.genotype_entries_found[site_idx]) {
     find_genotype_entries(block, site_idx, block_sets.genotype_entries[site_idx]);
     block_sets.genotype_entries_found[site_idx] = 1;
   }
   const SparseColumn& entries = block_sets.genotype_entries[site_idx];
   const std::vector<std::int32_t>& rows = sets.analysis_row_of_genotype_sample;
-  if (rows.size() == sets.kernel_row_of_sample.size()) {
+  const std::size_t count = sets.kernel_row_of_sample.size();
+  if (keep_dense(entries.samples.size(), count)) {
+    // Mostly not 0: every analysis sample's dosage, straight from the block's row.
+    const double* dosages = block.site_dosages(site_idx);
+    out.samples.clear();
+    out.values.resize(count);
+    for (std::size_t row = 0; row < count; ++row) {
+      const double value = dosages[genotype_index[row]];
+      out.values[row] = std::isnan(value) ? fill : value;
+    }
+    return;
+  }
+  if (rows.size() == count) {
     // Every genotype sample analysed (the usual case): the rows are the samples.
     out.samples = entries.samples;
     out.values = entries.values;
@@ -146,6 +160,12 @@ void sparse_kernel_column(const TraitSetContext& sets, const KernelInput& input,
     if (value == 0.0) continue;
     out.samples.push_back(static_cast<std::uint32_t>(sample_idx));
     out.values.push_back(value);
+  }
+  if (keep_dense(out.samples.size(), rows.size())) {
+    std::vector<double> spread(rows.size(), 0.0);
+    for (std::size_t entry = 0; entry < out.samples.size(); ++entry) spread[out.samples[entry]] = out.values[entry];
+    out.samples.clear();
+    out.values = std::move(spread);
   }
 }
 
@@ -181,10 +201,10 @@ void collect_set_variant(const TraitContext& trait, const TraitSetContext& sets,
   // ones imputed by the kernel); a mixed model's reads its own adjusted copy.
   const bool kernel_reads_dosages = input.genotypes == gathered.genotypes.data();
   if (kernel_reads_dosages) {
-    sparse_dosages(sets, block, block_sets, site_idx, fill, variant.column);
+    sparse_dosages(sets, trait.set.genotype_index, block, block_sets, site_idx, fill, variant.column);
   } else {
     sparse_kernel_column(sets, input, width, site_idx, variant.column);
-    if (trait.saddlepoint) sparse_dosages(sets, block, block_sets, site_idx, fill, variant.dosages);
+    if (trait.saddlepoint) sparse_dosages(sets, trait.set.genotype_index, block, block_sets, site_idx, fill, variant.dosages);
   }
   variant.sets = memberships;
   out.push_back(std::move(variant));

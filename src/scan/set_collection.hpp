@@ -22,11 +22,19 @@ struct KernelInput;
 struct ResultRow;
 struct ScoreResult;
 
-// Non-zero entries of a column, in sample order.
+// A column over a trait's analysis samples (or, for the block's shared
+// entries, over the genotype samples): its entries that are not 0, in sample
+// order; or, where most are not 0 (imputed dosages), every value in sample
+// order with `samples` left empty, so that products run over plain arrays.
 struct SparseColumn {
   std::vector<std::uint32_t> samples;
   std::vector<double> values;
+  bool dense() const { return samples.empty() && !values.empty(); }
+  bool empty() const { return values.empty(); }
 };
+
+// Whether a column of `entries` non-zero values over `count` samples is kept dense.
+inline bool keep_dense(std::size_t entries, std::size_t count) { return entries > count / 4; }
 
 // The sets each site of a block belongs to.
 struct BlockSets {
