@@ -63,12 +63,8 @@ void find_position_ranges(const TraitResults& results, std::vector<ChromosomeStr
 }
 
 void draw_background(cairo_t* cairo, const ManhattanLayout& layout) {
-  set_colour(cairo, colours::paper);
-  cairo_paint(cairo);
   const PlotFrame& frame = layout.frame;
-  set_colour(cairo, colours::panel);
-  cairo_rectangle(cairo, frame.left, frame.top, frame.width(), frame.height());
-  cairo_fill(cairo);
+  paint_paper_and_panel(cairo, frame);
   set_colour(cairo, colours::band);
   for (std::size_t strip_idx = 1; strip_idx < layout.strips.size(); strip_idx += 2) {
     const ChromosomeStrip& strip = layout.strips[strip_idx];

@@ -46,6 +46,14 @@ bool TextBox::overlaps(const TextBox& other, double padding) const {
 
 void set_colour(cairo_t* cairo, Rgb colour) { cairo_set_source_rgb(cairo, colour.red, colour.green, colour.blue); }
 
+void paint_paper_and_panel(cairo_t* cairo, const PlotFrame& frame) {
+  set_colour(cairo, colours::paper);
+  cairo_paint(cairo);
+  set_colour(cairo, colours::panel);
+  cairo_rectangle(cairo, frame.left, frame.top, frame.width(), frame.height());
+  cairo_fill(cairo);
+}
+
 void select_font(cairo_t* cairo, double size, bool bold) {
   cairo_select_font_face(cairo, plot_font, CAIRO_FONT_SLANT_NORMAL,
                          bold ? CAIRO_FONT_WEIGHT_BOLD : CAIRO_FONT_WEIGHT_NORMAL);

@@ -53,6 +53,8 @@ struct PlotPoint {
 enum class Anchor { left, centre, right };
 
 void set_colour(cairo_t* cairo, Rgb colour);
+// The page's paper, and the plotting panel over `frame`.
+void paint_paper_and_panel(cairo_t* cairo, const PlotFrame& frame);
 void select_font(cairo_t* cairo, double size, bool bold = false);
 double text_width(cairo_t* cairo, const std::string& text);
 // Draws text with its baseline at y; returns the box it covers.

@@ -166,11 +166,7 @@ std::size_t render_qq(const TraitResults& results, const QqFacts& facts, const s
   const std::vector<PlotPoint> points = thin_qq_points(observed, layout);
 
   render_png_and_svg(png_path, svg_path, plot_size, plot_size, [&](cairo_t* cairo) {
-    set_colour(cairo, colours::paper);
-    cairo_paint(cairo);
-    set_colour(cairo, colours::panel);
-    cairo_rectangle(cairo, layout.frame.left, layout.frame.top, layout.frame.width(), layout.frame.height());
-    cairo_fill(cairo);
+    paint_paper_and_panel(cairo, layout.frame);
     draw_axes(cairo, layout);
     cairo_save(cairo);
     cairo_rectangle(cairo, layout.frame.left, layout.frame.top, layout.frame.width(), layout.frame.height());

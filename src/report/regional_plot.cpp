@@ -336,12 +336,8 @@ std::size_t render_regional(const LocusWindow& window, const RegionalFacts& fact
   const RegionalLayout layout = lay_out_regional(window);
   const std::vector<std::size_t> order = drawing_order(window);
   render_png_and_svg(png_path, svg_path, layout.width, layout.height, [&](cairo_t* cairo) {
-    set_colour(cairo, colours::paper);
-    cairo_paint(cairo);
     const PlotFrame& frame = layout.frame;
-    set_colour(cairo, colours::panel);
-    cairo_rectangle(cairo, frame.left, frame.top, frame.width(), frame.height());
-    cairo_fill(cairo);
+    paint_paper_and_panel(cairo, frame);
     draw_y_axis(cairo, layout);
     draw_x_axis(cairo, layout, window.chromosome);
     draw_genome_wide_line(cairo, layout);
