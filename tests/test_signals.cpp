@@ -327,7 +327,7 @@ TEST_F(SignalsEndToEnd, ConditionListEqualsRepeatedConditionOn) {
   testing::write_text_file(dir + "/conditions.txt", "# conditioning variants\n" + by_position + "\n\n" + by_id + "\n");
   const std::string scan = testing::tamis_binary() + " scan --genotypes " + dir + "/cohort.vcf.gz --traits " + dir +
                            "/cohort.traits.tsv --trait fev1_litres --covariates age,sex --quiet --threads 2 --out " + dir;
-  ASSERT_EQ(testing::run_command(scan + "/listed --condition-list " + dir + "/conditions.txt"), 0);
+  ASSERT_EQ(testing::run_command(scan + "/listed --conditioning-variants " + dir + "/conditions.txt"), 0);
   ASSERT_EQ(testing::run_command(scan + "/repeated --condition-on " + by_position + " --condition-on " + by_id), 0);
   EXPECT_EQ(testing::read_gzip_file(dir + "/listed.fev1_litres.tsv.gz"),
             testing::read_gzip_file(dir + "/repeated.fev1_litres.tsv.gz"));

@@ -65,7 +65,7 @@ bool is_set_results_path(const std::string& path);
 bool select_from_list(const std::string& list_path, ChromosomeCodes codes, VariantSelection& selection,
                       std::vector<GenomicRegion>& regions);
 
-// The conditioning variants of a list file (--condition-list), one per line
+// The conditioning variants of a list file (--conditioning-variants), one per line
 // (blank lines and '#' comments skipped). Throws tamis::Error (usage) for an
 // unreadable file.
 std::vector<std::string> read_condition_list(const std::string& path);

@@ -239,11 +239,11 @@ int thread_count_from(int requested) {
   return requested == 0 ? static_cast<int>(cores) : requested;
 }
 
-// --condition-on entries, then those of --condition-list: each one variant.
+// --condition-on entries, then those of --conditioning-variants: each one variant.
 void check_condition_entries(const ScanArguments& arguments, std::vector<std::string>& entries) {
   entries = arguments.condition_on;
   if (!arguments.condition_list.empty()) {
-    check_readable("--condition-list", arguments.condition_list);
+    check_readable("--conditioning-variants", arguments.condition_list);
     for (const std::string& entry : read_condition_list(arguments.condition_list)) entries.push_back(entry);
   }
   std::set<std::string> seen;
@@ -391,7 +391,7 @@ void add_analysis_options(CLI::App* command, ScanArguments& arguments) {
   command->add_option("--drop-samples", arguments.drop_samples, "Leave out the sample IDs in this file");
   command->add_option("--condition-on", arguments.condition_on,
                       "Variant (ID or chr:pos:ref:alt) whose dosages join every trait's covariates (repeatable)");
-  command->add_option("--condition-list", arguments.condition_list,
+  command->add_option("--conditioning-variants", arguments.condition_list,
                       "File of variants to condition on, one per line (as --condition-on)");
   command->add_option("--interaction-with", arguments.interaction_with,
                       "Test each variant's interaction with this covariate (numeric, or text with its levels), "
