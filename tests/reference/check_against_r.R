@@ -19,21 +19,13 @@ covariates <- strsplit(args[4], ",")[[1]]
 traits <- args[-(1:4)]
 cat(R.version.string, "\n")
 
-dos <- read.delim(dosage_path, header = TRUE, check.names = FALSE, na.strings = ".",
-                  colClasses = "character")
-info <- dos[, 1:4]
-geno <- as.matrix(dos[, -(1:4)])
-suppressWarnings(storage.mode(geno) <- "double")
-# VCF/BCF store Type=Float values as 32-bit IEEE floats (hts-specs VCF 4.3,
-# section 1.6.1), so the reference reads the dosages at that precision too.
-as_float32 <- function(x) readBin(writeBin(as.vector(x), raw(), size = 4), "double", size = 4, n = length(x))
-geno[] <- as_float32(geno)
-variant_id <- paste(info[, 1], info[, 2], info[, 3], info[, 4], sep = "_")
-samples <- colnames(geno)
-
-tab <- read.delim(table_path, header = TRUE, na.strings = c("NA", "na", "NaN", ".", ""),
-                  stringsAsFactors = FALSE, check.names = FALSE)
-rownames(tab) <- tab[[1]]
+source(file.path(dirname(sub("^--file=", "", grep("^--file=", commandArgs(FALSE), value = TRUE))), "reference_inputs.R"))
+dosages <- read_query_dosages(dosage_path)
+info <- dosages$info
+geno <- dosages$geno
+variant_id <- dosages$variant_id
+samples <- dosages$samples
+tab <- read_trait_table(table_path)
 
 rel_err <- function(ours, ref) {
   scale <- pmax(abs(ref), 1e-300)

@@ -18,19 +18,13 @@ dosage_path <- args[1]; table_path <- args[2]; families_path <- args[3]; prefix 
 covariates <- strsplit(args[5], ",")[[1]]; trait <- args[6]
 cat(R.version.string, "; lme4", as.character(packageVersion("lme4")), "\n")
 
-dos <- read.delim(dosage_path, header = TRUE, check.names = FALSE, na.strings = ".", colClasses = "character")
-info <- dos[, 1:4]
-geno <- as.matrix(dos[, -(1:4)])
-suppressWarnings(storage.mode(geno) <- "double")
-# VCF Float values are 32-bit IEEE (hts-specs VCF 4.3, section 1.6.1).
-as_float32 <- function(x) readBin(writeBin(as.vector(x), raw(), size = 4), "double", size = 4, n = length(x))
-geno[] <- as_float32(geno)
-variant_id <- paste(info[, 1], info[, 2], info[, 3], info[, 4], sep = "_")
-samples <- colnames(geno)
-
-tab <- read.delim(table_path, header = TRUE, na.strings = c("NA", "na", "NaN", ".", ""),
-                  stringsAsFactors = FALSE, check.names = FALSE)
-rownames(tab) <- tab[[1]]
+source(file.path(dirname(sub("^--file=", "", grep("^--file=", commandArgs(FALSE), value = TRUE))), "reference_inputs.R"))
+dosages <- read_query_dosages(dosage_path)
+info <- dosages$info
+geno <- dosages$geno
+variant_id <- dosages$variant_id
+samples <- dosages$samples
+tab <- read_trait_table(table_path)
 fam <- read.delim(families_path, header = TRUE, stringsAsFactors = FALSE)
 fam <- fam[fam$role != "ancestor", ]
 family_of <- setNames(ifelse(fam$role == "unrelated", fam$participant, fam$family), fam$participant)
